@@ -1,0 +1,262 @@
+"""ThemeFinder: NMF or LDA themes from a docs x terms count matrix, reproducible through random_state.
+
+NMF (Lee & Seung 1999) runs on tf-idf weights computed from the counts (scikit-learn TfidfTransformer),
+started from NNDSVD, with the Frobenius loss (coordinate descent) or the Kullback-Leibler loss
+(multiplicative updates). LDA (Blei, Ng & Jordan 2003) runs on the raw counts with batch or online
+variational Bayes. Verbatims with no terms are left out of the fit and counted; seeded NMF starts chosen
+themes from the user's term lists (e.g. an existing code frame).
+
+SHORT_TEXT_NOTE below is the user-facing paragraph on short verbatims, min_df and phrases.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import numpy as np
+import scipy.sparse as sp
+from sklearn.base import BaseEstimator
+from sklearn.decomposition import NMF, LatentDirichletAllocation
+from sklearn.decomposition._nmf import _initialize_nmf
+from sklearn.feature_extraction.text import TfidfTransformer
+
+from opencode.errors import OpenCodeError
+
+SHORT_TEXT_NOTE = (
+    "Themes from short verbatims. Most answers hold 3 to 30 words, so each verbatim gives a theme finder "
+    "only a handful of terms, and two answers about the same thing often share no word at all. Two lexicon "
+    "settings therefore move the themes more than the choice of method. min_df (the fewest verbatims a term "
+    "must appear in) removes typos and one-off words: raising it gives cleaner, more general themes and more "
+    "verbatims left with no terms (these are counted, not themed), while lowering it lets rare words and "
+    "misspellings form small, hard-to-read themes. Merged phrases (for example 'opening hours' or 'self "
+    "service' as one term) keep a two-word idea together: a theme then shows the phrase instead of its "
+    "separate words, verbatims that use it are pulled into the same theme, and fewer spurious themes are "
+    "built from common words that only mean something in a pair. Re-run the k search after changing either "
+    "setting; reading the themes and their verbatims stays the final test."
+)
+
+METHODS = ("nmf", "lda")
+LOSSES = {"frobenius": "frobenius", "kullback-leibler": "kullback-leibler", "kl": "kullback-leibler"}
+NMF_INITS = ("nndsvd", "nndsvda", "nndsvdar", "random")
+LEARNING_METHODS = ("batch", "online")
+
+
+def as_count_matrix(counts) -> sp.csr_matrix:
+    """The counts as a CSR float matrix, or a clear error for anything that is not docs x terms counts."""
+    if sp.issparse(counts):
+        matrix = sp.csr_matrix(counts, dtype=np.float64, copy=True)
+    else:
+        array = np.asarray(counts, dtype=np.float64)
+        if array.ndim != 2:
+            raise OpenCodeError(f"term matrix: expected a 2-D docs x terms matrix, got {array.ndim} dimension(s)")
+        matrix = sp.csr_matrix(array)
+    if matrix.nnz and (matrix.data.min() < 0 or not np.isfinite(matrix.data).all()):
+        raise OpenCodeError("term matrix: counts must be finite and not negative")
+    matrix.eliminate_zeros()
+    return matrix
+
+
+def included_rows(counts: sp.csr_matrix) -> np.ndarray:
+    """Mask of verbatims that kept at least one term after the lexicon (the others are counted, not themed)."""
+    return np.diff(counts.indptr) > 0
+
+
+def check_corpus(counts: sp.csr_matrix, k: int) -> np.ndarray:
+    """Raise a clear OpenCodeError when k themes cannot be found in these verbatims; return the included mask."""
+    if int(k) != k or k < 2:
+        raise OpenCodeError(f"number of themes k={k}: must be a whole number of at least 2")
+    keep = included_rows(counts)
+    n_kept = int(keep.sum())
+    n_empty = counts.shape[0] - n_kept
+    empty_note = f" ({n_empty} empty verbatim(s) left out)" if n_empty else ""
+    if n_kept < k:
+        raise OpenCodeError(f"only {n_kept} verbatim(s) with terms{empty_note}: fewer than k={k} themes")
+    used_terms = int(np.count_nonzero(np.asarray(counts[keep].sum(axis=0)).ravel()))
+    if used_terms < k:
+        raise OpenCodeError(f"vocabulary too small: {used_terms} term(s) in use, fewer than k={k} themes "
+                            "(lower min_df or choose a smaller k)")
+    kept = counts[keep]
+    fingerprint = kept @ np.random.default_rng(0).random(kept.shape[1])
+    n_distinct = np.unique(np.round(fingerprint, 10)).size
+    if n_distinct == 1:
+        raise OpenCodeError(f"all {n_kept} verbatims with terms are identical: there is nothing to split into themes")
+    if n_distinct < k:
+        raise OpenCodeError(f"only {n_distinct} distinct verbatims: fewer than k={k} themes")
+    return keep
+
+
+def default_min_share(k: int) -> float:
+    """A theme explains a verbatim when it holds more than 1.5 times an even share (at most one half)."""
+    return min(0.5, 1.5 / k)
+
+
+def dominant_themes(shares: np.ndarray, weights: np.ndarray, min_share: float) -> np.ndarray:
+    """Each verbatim's strongest theme, or -1 when no theme explains it (weights ~0 or max share too low)."""
+    total = weights.sum(axis=1)
+    scale = total.max() if total.size and total.max() > 0 else 1.0
+    explained = (total > 1e-9 * scale) & (shares.max(axis=1, initial=0.0) > min_share)
+    return np.where(explained, shares.argmax(axis=1), -1)
+
+
+def row_shares(weights: np.ndarray) -> np.ndarray:
+    """Rows scaled to sum to one (rows of zeros stay zero)."""
+    total = weights.sum(axis=1, keepdims=True)
+    return np.divide(weights, total, out=np.zeros_like(weights), where=total > 0)
+
+
+class ThemeFinder(BaseEstimator):
+    """Find k themes in a docs x terms count matrix with NMF (on tf-idf) or LDA (on counts).
+
+    Learned: components_ (themes x terms), weights_ (docs x themes, raw), doc_theme_ (rows as shares),
+    dominant_theme_ (-1: empty or unexplained), included_ (mask of verbatims with terms), n_empty_,
+    n_unexplained_, seed_columns_ (term columns each seeded theme started from; seeded themes come first),
+    model_ (the fitted scikit-learn estimator) and, for NMF, tfidf_.
+    """
+
+    def __init__(self, method: str = "nmf", n_themes: int = 10, *, loss: str = "frobenius",
+                 init: str | None = None, learning_method: str = "batch",
+                 seed_terms: Sequence[Sequence[str]] | None = None, min_share: float | None = None,
+                 max_iter: int | None = None, tol: float = 1e-4, doc_topic_prior: float | None = None,
+                 topic_word_prior: float | None = None, random_state: int | None = 0):
+        self.method = method
+        self.n_themes = n_themes
+        self.loss = loss
+        self.init = init
+        self.learning_method = learning_method
+        self.seed_terms = seed_terms
+        self.min_share = min_share
+        self.max_iter = max_iter
+        self.tol = tol
+        self.doc_topic_prior = doc_topic_prior
+        self.topic_word_prior = topic_word_prior
+        self.random_state = random_state
+
+    def _check_params(self) -> None:
+        """Clear errors for unknown options before any work is done."""
+        if self.method not in METHODS:
+            raise OpenCodeError(f"theme method {self.method!r}: choose one of {', '.join(METHODS)}")
+        if self.method == "nmf":
+            if self.loss not in LOSSES:
+                raise OpenCodeError(f"NMF loss {self.loss!r}: choose frobenius or kullback-leibler")
+            if self.init is not None and self.init not in NMF_INITS:
+                raise OpenCodeError(f"NMF init {self.init!r}: choose one of {', '.join(NMF_INITS)}")
+            if LOSSES[self.loss] == "kullback-leibler" and self.init == "nndsvd":
+                raise OpenCodeError("NMF init 'nndsvd' leaves zeros the Kullback-Leibler solver cannot move: "
+                                    "use 'nndsvda'")
+        else:
+            if self.learning_method not in LEARNING_METHODS:
+                raise OpenCodeError(f"LDA learning method {self.learning_method!r}: choose batch or online")
+            if self.seed_terms:
+                raise OpenCodeError("seeded themes are available with method='nmf' only; "
+                                    "drop the seed terms or switch to NMF")
+        if self.min_share is not None and not 0.0 <= self.min_share < 1.0:
+            raise OpenCodeError(f"min_share={self.min_share}: must be between 0 and 1")
+
+    def _nmf_init(self) -> str:
+        """The NNDSVD variant used: nndsvd for Frobenius, nndsvda (no stuck zeros) for Kullback-Leibler."""
+        if self.init is not None:
+            return self.init
+        return "nndsvd" if LOSSES[self.loss] == "frobenius" else "nndsvda"
+
+    def _estimator(self, k: int, init: str | None = None, max_iter: int | None = None, tol: float | None = None):
+        """The scikit-learn estimator these parameters describe."""
+        if self.method == "nmf":
+            kl = LOSSES[self.loss] == "kullback-leibler"
+            return NMF(n_components=k, init=init or self._nmf_init(), solver="mu" if kl else "cd",
+                       beta_loss=LOSSES[self.loss], max_iter=max_iter or self.max_iter or 200,
+                       tol=self.tol if tol is None else tol, random_state=self.random_state)
+        return LatentDirichletAllocation(n_components=k, learning_method=self.learning_method,
+                                         max_iter=max_iter or self.max_iter or 10,
+                                         doc_topic_prior=self.doc_topic_prior,
+                                         topic_word_prior=self.topic_word_prior,
+                                         random_state=self.random_state)
+
+    def _seed_columns(self, terms: Sequence[str] | None, model_input: sp.csr_matrix) -> list[np.ndarray]:
+        """Term columns for each seed list, with clear errors for unknown or absent terms."""
+        if not self.seed_terms:
+            return []
+        if terms is None:
+            raise OpenCodeError("seed terms need the term labels: pass terms= to fit")
+        if len(self.seed_terms) >= self.n_themes:
+            raise OpenCodeError(f"{len(self.seed_terms)} seeded themes leave no room to find new ones with "
+                                f"k={self.n_themes}: choose k larger than the number of seed lists")
+        position = {term: j for j, term in enumerate(terms)}
+        in_use = np.asarray((model_input > 0).sum(axis=0)).ravel() > 0
+        columns = []
+        for number, seed in enumerate(self.seed_terms, start=1):
+            seed = list(seed)
+            if not seed:
+                raise OpenCodeError(f"seed list {number} is empty")
+            unknown = [term for term in seed if term not in position]
+            if unknown:
+                raise OpenCodeError(f"seed list {number}: term(s) not in the vocabulary: {', '.join(unknown)}")
+            absent = [term for term in seed if not in_use[position[term]]]
+            if absent:
+                raise OpenCodeError(f"seed list {number}: term(s) in no verbatim with terms: {', '.join(absent)}")
+            columns.append(np.unique([position[term] for term in seed]))
+        return columns
+
+    def _seeded_init(self, matrix: sp.csr_matrix, seed_columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        """W0, H0: seeded H rows concentrated on their seed terms, the rest NNDSVD of the unseeded terms."""
+        k, n_terms = self.n_themes, matrix.shape[1]
+        n_seeded = len(seed_columns)
+        background = np.sqrt(matrix.mean() / k) * 0.01
+        h_seed = np.full((n_seeded, n_terms), background)
+        for row, cols in enumerate(seed_columns):
+            h_seed[row, cols] = 1.0 / np.sqrt(cols.size)
+        w_seed = np.asarray(matrix @ h_seed.T) / (h_seed ** 2).sum(axis=1)
+        unseeded = np.ones(n_terms)
+        unseeded[np.concatenate(seed_columns)] = 0.0
+        rest = matrix @ sp.diags(unseeded)
+        w_rest, h_rest = _initialize_nmf(rest, k - n_seeded, init=self._nmf_init(), random_state=self.random_state)
+        w0 = np.hstack([np.maximum(w_seed, background), w_rest])
+        h0 = np.vstack([h_seed, np.maximum(h_rest, background if self._nmf_init() != "nndsvd" else 0.0)])
+        return w0, h0
+
+    def model_input(self, counts: sp.csr_matrix) -> tuple[sp.csr_matrix, TfidfTransformer | None]:
+        """What the model is fitted on: tf-idf of the counts for NMF, the counts themselves for LDA."""
+        if self.method == "nmf":
+            tfidf = TfidfTransformer()
+            return sp.csr_matrix(tfidf.fit_transform(counts)), tfidf
+        return counts, None
+
+    def fit(self, X, y=None, terms: Sequence[str] | None = None) -> "ThemeFinder":
+        """Fit on a docs x terms count matrix; `terms` (column labels) are needed only for seed_terms."""
+        self._check_params()
+        counts = as_count_matrix(X)
+        if terms is not None and len(terms) != counts.shape[1]:
+            raise OpenCodeError(f"term labels: {len(terms)} given for a matrix with {counts.shape[1]} columns")
+        keep = check_corpus(counts, self.n_themes)
+        model_input, self.tfidf_ = self.model_input(counts[keep])
+        self.seed_columns_ = self._seed_columns(terms, model_input)
+        return self._fit_input(model_input, keep)
+
+    def _fit_input(self, model_input: sp.csr_matrix, keep: np.ndarray, max_iter: int | None = None,
+                   tol: float | None = None) -> "ThemeFinder":
+        """Fit the model on prepared input rows (the included verbatims) and derive the per-verbatim results."""
+        seed_columns = getattr(self, "seed_columns_", [])
+        if seed_columns:
+            w0, h0 = self._seeded_init(model_input, seed_columns)
+            model = self._estimator(self.n_themes, init="custom", max_iter=max_iter, tol=tol)
+            kept_weights = model.fit_transform(model_input, W=w0, H=h0)
+        else:
+            model = self._estimator(self.n_themes, max_iter=max_iter, tol=tol)
+            kept_weights = model.fit_transform(model_input)
+        self.model_ = model
+        self.components_ = model.components_
+        self.n_iter_ = model.n_iter_
+        self.included_ = keep
+        self.weights_ = np.zeros((keep.size, self.n_themes))
+        self.weights_[keep] = kept_weights
+        self.doc_theme_ = row_shares(self.weights_)
+        self.min_share_ = default_min_share(self.n_themes) if self.min_share is None else self.min_share
+        self.dominant_theme_ = np.where(keep, dominant_themes(self.doc_theme_, self.weights_, self.min_share_), -1)
+        self.n_empty_ = int((~keep).sum())
+        self.n_unexplained_ = int((keep & (self.dominant_theme_ < 0)).sum())
+        return self
+
+    def transform(self, X) -> np.ndarray:
+        """Theme shares (rows sum to one; zero rows for verbatims with no terms) of new verbatims."""
+        counts = as_count_matrix(X)
+        model_input = self.tfidf_.transform(counts) if self.tfidf_ is not None else counts
+        return row_shares(self.model_.transform(model_input))

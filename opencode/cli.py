@@ -1,0 +1,56 @@
+"""The `oecode` command: parse arguments, call the library, print. Each verb lives in opencode/commands/."""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from opencode import __version__
+from opencode.errors import OpenCodeError
+
+#: verb -> module in opencode.commands providing `register(subparsers)`; the verb's handler is set there.
+VERBS = {
+    "new": "study_cmds", "info": "study_cmds", "demo": "demo_cmd",
+    "words": "text_cmds", "kwic": "text_cmds", "phrases": "text_cmds", "lexicon": "text_cmds",
+    "themes": "themes_cmd", "drivers": "drivers_cmd",
+    "frame": "frame_cmd", "autocode": "autocode_cmd", "code": "desk_cmd",
+    "sample": "reliability_cmds", "agree": "reliability_cmds",
+    "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with every available verb."""
+    parser = argparse.ArgumentParser(prog="oecode", description="Code open-ended survey answers: from the survey "
+                                     "file to a code frame, coded data, agreement and tables.")
+    parser.add_argument("--version", action="version", version=f"opencode {__version__}")
+    subparsers = parser.add_subparsers(dest="verb", metavar="VERB")
+    registered = set()
+    for module_name in dict.fromkeys(VERBS.values()):
+        try:
+            module = importlib.import_module(f"opencode.commands.{module_name}")
+        except ModuleNotFoundError as error:
+            if error.name == f"opencode.commands.{module_name}":
+                continue  # verb not built yet
+            raise
+        module.register(subparsers)
+        registered.add(module_name)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run one verb; user-fixable problems print one clear line and exit 1."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "handler", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.handler(args) or 0)
+    except OpenCodeError as error:
+        print(f"oecode {args.verb}: {error}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print(f"oecode {args.verb}: interrupted; nothing was half-written", file=sys.stderr)
+        return 130

@@ -1,0 +1,133 @@
+"""Coded data out as CSV (plus a sibling code-frame CSV) or as an XLSX workbook (data, frame, variables).
+
+Every text cell passes the formula-injection guard; every file is written atomically.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from opencode.errors import OpenCodeError
+from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode, build_table, sibling_path
+from opencode.export.safe_write import atomic_open, atomic_path, check_writable_target
+
+XLSX_MAX_ROWS = 1_048_576
+XLSX_MAX_CELL_CHARS = 32_767
+
+
+def _guard_cell(value):
+    """The shared formula-injection guard (opencode.export.cell_guard), imported when first needed."""
+    from opencode.export.cell_guard import guard_cell
+
+    return guard_cell(value)
+
+
+def _whole_numbers_as_int(column: pd.Series) -> pd.Series:
+    """Float columns holding only whole numbers (and NaN) print as 3, not 3.0."""
+    if column.dtype.kind != "f":
+        return column
+    values = column.to_numpy()
+    finite = values[~np.isnan(values)]
+    if finite.size and not np.array_equal(finite, np.round(finite)):
+        return column
+    return column.astype("Int64")
+
+
+def guarded_frame(df: pd.DataFrame) -> pd.DataFrame:
+    """A copy whose text cells and column names are inert in spreadsheets and whose whole numbers print as such."""
+    out = {}
+    for name in df.columns:
+        column = df[name]
+        if column.dtype.kind in "OSUT" or pd.api.types.is_string_dtype(column):
+            column = column.map(_guard_cell, na_action="ignore")
+        else:
+            column = _whole_numbers_as_int(column)
+        out[_guard_cell(name)] = column
+    return pd.DataFrame(out)
+
+
+def variables_table(table: LabelledTable) -> pd.DataFrame:
+    """One row per variable: name, label, value labels ("1=..; 2=..") and user-missing codes."""
+    def fmt(pairs) -> str:
+        return "; ".join(f"{_number_text(k)}={v}" for k, v in pairs)
+
+    return pd.DataFrame({
+        "variable": list(table.data.columns),
+        "label": [table.column_labels.get(c, "") for c in table.data.columns],
+        "value_labels": [fmt(table.value_labels.get(c, {}).items()) for c in table.data.columns],
+        "missing_codes": [", ".join(_number_text(m) for m in table.missing_codes.get(c, [])) for c in table.data.columns],
+    })
+
+
+def _number_text(x) -> str:
+    """3.0 -> "3", 2.5 -> "2.5"."""
+    return str(int(x)) if float(x).is_integer() else str(x)
+
+
+def write_csv_table(df: pd.DataFrame, path: str | os.PathLike) -> None:
+    """Write one table as guarded CSV through a temporary file and an atomic rename."""
+    with atomic_open(path, "w", newline="") as handle:
+        guarded_frame(df).to_csv(handle, index=False, quoting=csv.QUOTE_MINIMAL, lineterminator="\n")
+
+
+def write_csv(
+    dataset: CodedDataset,
+    path: str | os.PathLike,
+    *,
+    category_columns: bool = False,
+    verbatims: VerbatimMode = "omit",
+) -> list[Path]:
+    """Write the coded data as CSV and the code frame as `<name>-frame.csv` beside it; return both paths."""
+    target = check_writable_target(path)
+    frame_path = check_writable_target(sibling_path(target))
+    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    write_csv_table(table.data, target)
+    write_csv_table(table.code_frame, frame_path)
+    return [target, frame_path]
+
+
+def _xlsx_rows(df: pd.DataFrame):
+    """Header then rows as plain Python values: NaN/NA -> empty cell, text guarded and cleaned for XLSX."""
+    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+
+    def clean(value):
+        if isinstance(value, str):
+            return ILLEGAL_CHARACTERS_RE.sub("", value)[:XLSX_MAX_CELL_CHARS]
+        return value
+
+    safe = guarded_frame(df)
+    yield [clean(c) for c in safe.columns]
+    cols = []
+    for name in safe.columns:
+        column = safe[name].astype(object)
+        cols.append([None if pd.isna(v) else clean(v.item() if isinstance(v, np.generic) else v) for v in column])
+    yield from zip(*cols)
+
+
+def write_xlsx(
+    dataset: CodedDataset,
+    path: str | os.PathLike,
+    *,
+    category_columns: bool = False,
+    verbatims: VerbatimMode = "omit",
+) -> Path:
+    """Write an XLSX workbook with sheets `data`, `frame` (the code frames) and `variables` (labels)."""
+    from openpyxl import Workbook
+
+    target = check_writable_target(path)
+    if dataset.n_respondents + 1 > XLSX_MAX_ROWS:
+        raise OpenCodeError(f"{target}: {dataset.n_respondents} respondents do not fit in one XLSX sheet; export CSV instead")
+    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    workbook = Workbook(write_only=True)
+    for title, df in (("data", table.data), ("frame", table.code_frame), ("variables", variables_table(table))):
+        sheet = workbook.create_sheet(title)
+        for row in _xlsx_rows(df):
+            sheet.append(row)
+    with atomic_path(target, suffix=".xlsx") as tmp:
+        workbook.save(tmp)
+    return target

@@ -1,0 +1,154 @@
+"""Turn a file's columns into study variables: infer each column's kind (the user can override) and convert."""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from opencode.errors import OpenCodeError
+from opencode.ingest.readers import NULL_MARKERS, RawTable
+
+#: A numeric column with at most this many distinct values (or with value labels) is taken as single choice.
+MAX_SINGLE_CODES = 12
+#: A text column with at most this many distinct values (and few compared with its rows) is single choice.
+MAX_TEXT_CATEGORIES = 30
+_MULTI_CELL = re.compile(r"^\s*\d+(\s*[,;|]\s*\d+)*\s*$")
+_MULTI_SPLIT = re.compile(r"\s*[,;|]\s*")
+# Characters that break a terminal or a table: C0/C1 controls (not tab or newline) and bidi overrides.
+_BREAKS_DISPLAY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+@dataclass
+class ColumnPlan:
+    """One variable to create: its kind, role, labels, missing codes and converted values."""
+
+    name: str
+    kind: str
+    role: str
+    label: str = ""
+    value_labels: dict[float, str] = field(default_factory=dict)
+    missing_codes: list[float] = field(default_factory=list)
+    values: object = None  # np.ndarray (float) or list (text, dates, lists of codes)
+
+
+def clean_text(series: pd.Series) -> pd.Series:
+    """Text as given, minus characters that break display; null markers become empty."""
+    text = series.astype(object).where(series.notna(), "").astype(str)
+    text = text.where(~text.isin(["\\N", "NULL", "nan", "NaN", "None"]), "")
+    text = text.str.replace("\r\n", "\n", regex=False)
+    return text.str.replace(_BREAKS_DISPLAY, "", regex=True)
+
+
+def _as_numbers(series: pd.Series) -> pd.Series | None:
+    """The column as floats if every non-empty cell is a number, else None."""
+    if pd.api.types.is_numeric_dtype(series):
+        return series.astype(float)
+    text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+    blank = text.isin(NULL_MARKERS)
+    numbers = pd.to_numeric(text.where(~blank, None), errors="coerce")
+    if (numbers.isna() & ~blank).any():
+        return None
+    return numbers.astype(float)
+
+
+def _is_multiple(text: pd.Series) -> bool:
+    filled = text[~text.isin(NULL_MARKERS)]
+    return len(filled) > 0 and filled.str.match(_MULTI_CELL).all() and filled.str.contains(r"[,;|]").any()
+
+
+def _is_date(text: pd.Series) -> bool:
+    filled = text[~text.isin(NULL_MARKERS)]
+    if len(filled) == 0 or not filled.str.match(r"^\d{4}-\d{2}-\d{2}").all():
+        return False
+    return pd.to_datetime(filled, errors="coerce", format="ISO8601").notna().all()
+
+
+def infer_kind(table: RawTable, name: str) -> str:
+    """A column's kind: single, multiple, numeric, date or text."""
+    series = table.frame[name]
+    if name in table.value_labels and table.value_labels[name]:
+        return "single"
+    numbers = _as_numbers(series)
+    if numbers is not None:
+        distinct = numbers.dropna().unique()
+        whole = bool(np.all(np.mod(distinct, 1) == 0)) if len(distinct) else True
+        return "single" if whole and len(distinct) <= MAX_SINGLE_CODES else "numeric"
+    text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+    if _is_multiple(text):
+        return "multiple"
+    if _is_date(text):
+        return "date"
+    filled = text[~text.isin(NULL_MARKERS)]
+    distinct = filled.nunique()
+    if distinct <= MAX_TEXT_CATEGORIES and distinct <= max(2, len(filled) // 2):
+        return "single"
+    return "text"
+
+
+def _bad_cell(table: RawTable, name: str, mask: pd.Series, what: str) -> OpenCodeError:
+    first = int(np.flatnonzero(mask.to_numpy())[0])
+    value = table.frame[name].iloc[first]
+    return OpenCodeError(f"{table.path}: {table.row_name(first)}, column {name}: {value!r} is not {what}")
+
+
+def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
+    """Convert one column to the given kind, keeping labels and missing codes; bad cells name the row."""
+    series = table.frame[name]
+    plan = ColumnPlan(name, kind, "other", table.variable_labels.get(name, ""),
+                      dict(table.value_labels.get(name, {})), list(table.missing_codes.get(name, [])))
+    if kind in ("single", "numeric"):
+        numbers = _as_numbers(series)
+        if numbers is None:
+            if kind == "numeric":
+                text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+                bad = pd.to_numeric(text.where(~text.isin(NULL_MARKERS), None), errors="coerce").isna() \
+                    & ~text.isin(NULL_MARKERS)
+                raise _bad_cell(table, name, bad, "a number")
+            text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+            blank = text.isin(NULL_MARKERS)
+            categories = sorted(text[~blank].unique())
+            codes = {category: float(i + 1) for i, category in enumerate(categories)}
+            plan.values = text.map(codes).astype(float).to_numpy()
+            plan.value_labels = {code: category for category, code in codes.items()}
+        else:
+            plan.values = numbers.to_numpy(dtype=float)
+    elif kind == "multiple":
+        text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+        blank = text.isin(NULL_MARKERS)
+        bad = ~blank & ~text.str.match(_MULTI_CELL)
+        if bad.any():
+            raise _bad_cell(table, name, bad, "a list of code numbers such as 1,4,12")
+        plan.values = [[] if empty else [float(c) for c in _MULTI_SPLIT.split(cell)]
+                       for cell, empty in zip(text, blank)]
+    elif kind == "date":
+        text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+        blank = text.isin(NULL_MARKERS)
+        parsed = pd.to_datetime(text.where(~blank, None), errors="coerce", format="ISO8601")
+        bad = parsed.isna() & ~blank
+        if bad.any():
+            raise _bad_cell(table, name, bad, "a date (YYYY-MM-DD)")
+        plan.values = [None if pd.isna(d) else d.isoformat() for d in parsed]
+    elif kind == "text":
+        plan.values = clean_text(series).tolist()
+    else:
+        raise OpenCodeError(f"column {name}: unknown kind {kind!r}")
+    return plan
+
+
+def combine_dichotomies(table: RawTable, name: str, columns: list[str]) -> ColumnPlan:
+    """A multiple-response variable from a set of 0/1 columns (code k = the k-th column)."""
+    chosen = []
+    value_labels = {}
+    for code, column in enumerate(columns, start=1):
+        numbers = _as_numbers(table.frame[column])
+        if numbers is None or not numbers.dropna().isin([0.0, 1.0]).all():
+            bad = ~(numbers.isin([0.0, 1.0]) | numbers.isna()) if numbers is not None else table.frame[column].notna()
+            raise _bad_cell(table, column, bad, "0 or 1 (a multiple-response dichotomy)")
+        chosen.append(numbers.fillna(0).to_numpy() == 1)
+        value_labels[float(code)] = table.variable_labels.get(column) or column
+    matrix = np.column_stack(chosen)
+    values = [[float(c + 1) for c in np.flatnonzero(row)] for row in matrix]
+    return ColumnPlan(name, "multiple", "banner", name, value_labels, [], values)

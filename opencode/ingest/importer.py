@@ -1,0 +1,283 @@
+"""Import a survey export into a study: a new study file, or a later wave merged by respondent id.
+
+A new study is built in a temporary file and renamed into place only when complete; a merge runs in one
+transaction. Either way a bad file leaves the study exactly as it was.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import difflib
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from opencode.errors import OpenCodeError
+from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
+from opencode.ingest.labels_file import apply_labels_file
+from opencode.ingest.nonanswers import flag_nonanswers
+from opencode.ingest.readers import RawTable, read_survey_file
+from opencode.study import survey_data
+from opencode.study.store import Study
+
+#: The largest single answer accepted (characters); a bigger cell is almost always a broken export.
+MAX_CELL_CHARS = 1_000_000
+
+
+@dataclass
+class ImportOptions:
+    """How to read the file and what each column is."""
+
+    id_column: str
+    questions: list[str]
+    sheet: str | int | None = None
+    encoding: str | None = None
+    delimiter: str | None = None
+    labels_file: str | Path | None = None
+    kinds: dict[str, str] = field(default_factory=dict)
+    roles: dict[str, str] = field(default_factory=dict)
+    weight: str | None = None
+    multi: dict[str, list[str]] = field(default_factory=dict)
+    missing: dict[str, list[float]] = field(default_factory=dict)
+    max_cell_chars: int = MAX_CELL_CHARS
+
+
+@dataclass
+class ChangedVerbatim:
+    """A verbatim whose text differs in the new file: reported and kept as it was."""
+
+    question: str
+    respondent: str
+    old_text: str
+    new_text: str
+
+
+@dataclass
+class ImportReport:
+    """What an import did."""
+
+    study_path: Path
+    source: Path
+    created: bool
+    respondents_added: int = 0
+    respondents_updated: int = 0
+    variables_added: list[str] = field(default_factory=list)
+    verbatims_added: int = 0
+    nonanswers: int = 0
+    changed_verbatims: list[ChangedVerbatim] = field(default_factory=list)
+    encoding: str | None = None
+
+
+def _unknown_column(table: RawTable, name: str, what: str) -> OpenCodeError:
+    columns = [str(c) for c in table.frame.columns]
+    close = difflib.get_close_matches(name, columns, n=3)
+    hint = f" (did you mean {', '.join(close)}?)" if close else f" (columns: {', '.join(columns[:30])})"
+    return OpenCodeError(f"{table.path}: no column named {name!r} for {what}{hint}")
+
+
+def _check_columns(table: RawTable, options: ImportOptions) -> None:
+    wanted = [(options.id_column, "--id")] + [(q, "--question") for q in options.questions]
+    wanted += [(c, "--kind") for c in options.kinds] + [(c, "--role") for c in options.roles]
+    wanted += [(c, "--missing") for c in options.missing]
+    if options.weight:
+        wanted.append((options.weight, "--weight"))
+    for members in options.multi.values():
+        wanted += [(c, "--multi") for c in members]
+    for name, what in wanted:
+        if name not in table.frame.columns:
+            raise _unknown_column(table, name, what)
+    if options.id_column in options.questions:
+        raise OpenCodeError(f"{table.path}: column {options.id_column!r} cannot be both the id and a question")
+
+
+def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
+    raw = table.frame[id_column]
+    keys = raw.astype(object).where(raw.notna(), "").astype(str).str.strip()
+    keys = keys.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_float_dtype(raw) else keys
+    blank = keys.isin(["", "\\N", "NULL", "nan"])
+    if blank.any():
+        rows = [table.row_name(i) for i in np.flatnonzero(blank.to_numpy())[:5]]
+        raise OpenCodeError(f"{table.path}: column {id_column}: missing respondent id in {', '.join(rows)}")
+    duplicated = keys.duplicated(keep=False)
+    if duplicated.any():
+        first = keys[duplicated].iloc[0]
+        rows = [table.row_name(i) for i in np.flatnonzero((keys == first).to_numpy())[:5]]
+        raise OpenCodeError(f"{table.path}: column {id_column}: respondent id {first!r} appears more than once "
+                            f"({', '.join(rows)})")
+    return keys.tolist()
+
+
+def _check_cell_sizes(table: RawTable, options: ImportOptions) -> None:
+    for name in table.frame.columns:
+        series = table.frame[name]
+        if series.dtype != object:
+            continue
+        lengths = series.astype(str).str.len().to_numpy()
+        if len(lengths) and lengths.max() > options.max_cell_chars:
+            row = int(lengths.argmax())
+            megabytes = lengths[row] / 1_000_000
+            raise OpenCodeError(f"{table.path}: {table.row_name(row)}, column {name}: a cell of {megabytes:.1f} million "
+                                f"characters is over the limit of {options.max_cell_chars:,} for one answer "
+                                "(a broken export?)")
+
+
+def plan_columns(table: RawTable, options: ImportOptions) -> list[ColumnPlan]:
+    """Decide every variable the file brings: questions, closed-ended items, weight, multiple response."""
+    for name, codes in options.missing.items():
+        table.missing_codes.setdefault(name, [])
+        table.missing_codes[name] += [c for c in codes if c not in table.missing_codes[name]]
+    consumed = {c for members in options.multi.values() for c in members}
+    plans = [ColumnPlan(options.id_column, "text", "id", table.variable_labels.get(options.id_column, ""))]
+    for name in table.frame.columns:
+        if name == options.id_column or name in consumed:
+            continue
+        if name in options.questions:
+            plan = ColumnPlan(name, "text", "question", table.variable_labels.get(name, ""))
+            plan.values = clean_text(table.frame[name])
+        else:
+            kind = options.kinds.get(name) or ("numeric" if name == options.weight else infer_kind(table, name))
+            plan = convert(table, name, kind)
+            plan.role = "weight" if name == options.weight else ("banner" if kind in ("single", "multiple") else "other")
+        plan.role = options.roles.get(name, plan.role)
+        plans.append(plan)
+    for name, members in options.multi.items():
+        plans.append(combine_dichotomies(table, name, members))
+    return plans
+
+
+def import_survey(study_path: str | Path, source: str | Path, options: ImportOptions,
+                  progress: Callable[[str], None] | None = None) -> ImportReport:
+    """Import `source` into the study at `study_path` (created if missing, else merged by respondent id)."""
+    say = progress or (lambda message: None)
+    study_path = Path(study_path)
+    say(f"reading {source}")
+    table = read_survey_file(source, sheet=options.sheet, encoding=options.encoding, delimiter=options.delimiter)
+    if options.labels_file:
+        apply_labels_file(table, options.labels_file)
+    if not options.questions:
+        raise OpenCodeError(f"{table.path}: name at least one open question column (--question)")
+    _check_columns(table, options)
+    keys = _respondent_keys(table, options.id_column)
+    _check_cell_sizes(table, options)
+    plans = plan_columns(table, options)
+    report = ImportReport(study_path, Path(source), created=not study_path.exists(), encoding=table.encoding)
+    say("writing the study")
+    if report.created:
+        _create_then_rename(study_path, lambda study: _write(study, keys, plans, report))
+    else:
+        with Study.open(study_path) as study, study.transaction():
+            _write(study, keys, plans, report)
+    return report
+
+
+def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
+    if target.suffix != ".study":
+        raise OpenCodeError(f"{target}: a study file name must end in .study")
+    if not target.parent.exists():
+        raise OpenCodeError(f"{target}: the folder {target.parent} does not exist")
+    fd, temp_name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".study", dir=target.parent)
+    os.close(fd)
+    temp = Path(temp_name)
+    try:
+        study = Study.create(temp, overwrite=True)
+        try:
+            with study.transaction():
+                fill(study)
+            study.db.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        finally:
+            study.close()
+        os.replace(temp, target)
+    finally:
+        for extra in ("", "-wal", "-shm"):
+            with contextlib.suppress(FileNotFoundError):
+                os.remove(str(temp) + extra)
+
+
+def _write(study: Study, keys: list[str], plans: list[ColumnPlan], report: ImportReport) -> None:
+    existing = dict(study.db.execute("SELECT key, id FROM respondents"))
+    next_id = len(existing) + 1
+    new_rows = [(next_id + i, key) for i, key in enumerate(k for k in keys if k not in existing)]
+    study.db.executemany("INSERT INTO respondents (id, key) VALUES (?, ?)", new_rows)
+    existing.update((key, rid) for rid, key in new_rows)
+    report.respondents_added = len(new_rows)
+    report.respondents_updated = len(keys) - len(new_rows)
+    respondent_ids = np.fromiter((existing[k] for k in keys), dtype=np.int64, count=len(keys))
+    total = len(existing)
+    for plan in plans:
+        variable_id = _upsert_variable(study, plan, report)
+        if plan.role == "id":
+            continue
+        if plan.role == "question":
+            _write_verbatims(study, variable_id, plan, respondent_ids, report)
+        else:
+            _write_values(study, variable_id, plan, respondent_ids, total)
+    study.audit("import", "import", "study", None, {
+        "source": str(report.source), "respondents_added": report.respondents_added,
+        "respondents_updated": report.respondents_updated, "variables_added": report.variables_added,
+        "verbatims_added": report.verbatims_added, "changed_verbatims": len(report.changed_verbatims)})
+
+
+def _upsert_variable(study: Study, plan: ColumnPlan, report: ImportReport) -> int:
+    row = study.db.execute("SELECT id, kind, role FROM variables WHERE name = ?", (plan.name,)).fetchone()
+    if row is None:
+        report.variables_added.append(plan.name)
+        return survey_data.add_variable(study, plan.name, label=plan.label, kind=plan.kind, role=plan.role,
+                                        value_labels=plan.value_labels, missing_codes=plan.missing_codes)
+    variable_id, kind, role = row
+    if kind != plan.kind and not (role == "question" and plan.role == "question"):
+        raise OpenCodeError(f"{report.source}: column {plan.name} is {plan.kind} here but {kind} in the study "
+                            f"{study.path.name}; use --kind {plan.name}={kind}")
+    if plan.label:
+        study.db.execute("UPDATE variables SET label = ? WHERE id = ?", (plan.label, variable_id))
+    labels = survey_data.get_variable(study, plan.name).value_labels
+    for code, label in plan.value_labels.items():
+        labels.setdefault(code, label)
+    survey_data.set_value_labels(study, variable_id, labels)
+    study.db.executemany("INSERT OR IGNORE INTO missing_codes (variable_id, code) VALUES (?, ?)",
+                         [(variable_id, float(c)) for c in plan.missing_codes])
+    return variable_id
+
+
+def _write_values(study: Study, variable_id: int, plan: ColumnPlan, respondent_ids: np.ndarray, total: int) -> None:
+    row = study.db.execute("SELECT encoding, data FROM variable_data WHERE variable_id = ?", (variable_id,)).fetchone()
+    positions = respondent_ids - 1
+    if isinstance(plan.values, np.ndarray):
+        values = np.full(total, np.nan)
+        if row is not None:
+            old = survey_data.decode_values(*row)
+            values[: len(old)] = old
+        values[positions] = plan.values
+    else:
+        values = [None] * total
+        if row is not None:
+            old = survey_data.decode_values(*row)
+            values[: len(old)] = old
+        for position, value in zip(positions.tolist(), plan.values):
+            values[position] = value
+    survey_data.write_values(study, variable_id, values)
+
+
+def _write_verbatims(study: Study, question_id: int, plan: ColumnPlan, respondent_ids: np.ndarray,
+                     report: ImportReport) -> None:
+    texts: pd.Series = plan.values
+    flags = flag_nonanswers(texts)
+    known = {rid: (text, key) for rid, text, key in study.db.execute(
+        "SELECT v.respondent_id, v.text, r.key FROM verbatims v JOIN respondents r ON r.id = v.respondent_id "
+        "WHERE v.question_id = ?", (question_id,))}
+    rows = []
+    for rid, text, flag in zip(respondent_ids.tolist(), texts.tolist(), flags.tolist()):
+        if rid in known:
+            old_text, key = known[rid]
+            if old_text != text:
+                report.changed_verbatims.append(ChangedVerbatim(plan.name, key, old_text, text))
+            continue
+        rows.append((question_id, rid, text, flag))
+    study.db.executemany("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) VALUES (?, ?, ?, ?)",
+                         rows)
+    report.verbatims_added += len(rows)
+    report.nonanswers += sum(row[3] for row in rows)

@@ -1,0 +1,45 @@
+"""Recognise non-answers ("n/a", "no comment", "don't know", "-", blank...) from the per-language lists."""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from functools import lru_cache
+
+import numpy as np
+import pandas as pd
+
+from opencode.resources import lexicon_dir, read_lexicon
+
+#: Non-answers are short; longer texts are never checked against the list.
+MAX_NONANSWER_CHARS = 60
+_DROP = re.compile(r"[^\w\s]|_", re.UNICODE)
+_SPACES = re.compile(r"\s+")
+
+
+def normalise(text: str) -> str:
+    """Fold a short answer to compare it with the list: NFKC, lower case, no punctuation, single spaces."""
+    text = unicodedata.normalize("NFKC", text).lower().replace("'", "").replace("\u2019", "")
+    return _SPACES.sub(" ", _DROP.sub(" ", text)).strip()
+
+
+@lru_cache(maxsize=None)
+def nonanswer_phrases(languages: tuple[str, ...] | None = None) -> frozenset[str]:
+    """The normalised phrases of the bundled lists (all languages when none are named)."""
+    if languages is None:
+        files = sorted(p.name for p in lexicon_dir().glob("nonanswers-*.txt"))
+    else:
+        files = [f"nonanswers-{code}.txt" for code in languages]
+    return frozenset(normalise(entry) for name in files for entry in read_lexicon(name))
+
+
+def flag_nonanswers(texts: pd.Series, extra: tuple[str, ...] = ()) -> np.ndarray:
+    """True where a verbatim is a non-answer: blank, punctuation only, or a listed phrase. Texts stay as given."""
+    phrases = nonanswer_phrases() | {normalise(e) for e in extra}
+    flags = np.zeros(len(texts), dtype=bool)
+    lengths = texts.str.len().to_numpy()
+    short = np.flatnonzero(lengths <= MAX_NONANSWER_CHARS)
+    for position, text in zip(short, texts.iloc[short]):
+        folded = normalise(text)
+        flags[position] = (not folded) or folded in phrases
+    return flags
