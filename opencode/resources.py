@@ -8,14 +8,22 @@ from pathlib import Path
 from opencode.errors import OpenCodeError
 
 
+def _bundled(package: str, top_level: str) -> Path:
+    """An installed data package's folder; in a plain source checkout, the top-level folder it is built from."""
+    try:
+        return Path(str(resources.files(package)))
+    except ModuleNotFoundError:
+        return Path(__file__).resolve().parent.parent / top_level
+
+
 def lexicon_dir() -> Path:
     """The folder holding the bundled plain-text lexicons."""
-    return Path(str(resources.files("opencode.lexicons")))
+    return _bundled("opencode.lexicons", "lexicons")
 
 
 def demo_dir() -> Path:
     """The folder holding the bundled demo survey, its generator and starter code frames."""
-    return Path(str(resources.files("opencode.demo")))
+    return _bundled("opencode.demo", "demo")
 
 
 def read_lexicon(name: str) -> list[str]:

@@ -132,7 +132,8 @@ def write_xlsx(tables: Sequence[Table] | Table, path: str | os.PathLike) -> Path
     bold = Font(bold=True)
     for table in tables:
         layout = layout_table(table)
-        sheet = workbook.create_sheet(_sheet_name(table.question, used))
+        kind = "banner" if isinstance(table, BannerTable) else "codes"
+        sheet = workbook.create_sheet(_sheet_name(f"{table.question} {kind}", used))
         sheet.cell(row=1, column=1, value=_xlsx_text(layout.title)).font = bold
         widths: dict[int, int] = {}
         for r, (cells, kind) in enumerate(zip(layout.rows, layout.row_kinds), start=2):

@@ -28,8 +28,11 @@ _URL = re.compile(
     re.IGNORECASE,
 )
 
-# A run that may be a phone number: optional + or 00, digits with space, dot, dash or bracket separators.
-_PHONE_CANDIDATE = re.compile(r"(?<![\w/.,:£$€-])(?:\+|\(\+?)?\d[\d ().-]{5,}\d\)?(?![\w/,:%-]|\.\d)")
+# A run that may be a phone number: optional +, digit groups split by space, dot, dash or brackets.
+# The atomic group stops a run from matching only its front part when what follows rules it out.
+_PHONE_CANDIDATE = re.compile(
+    r"(?<![\w/.,:£$€+(-])(?>(?:\+|\(\+?)?\d+(?:[ ().-]{1,3}\d+)*\)?)(?![\w/:%-]|[.,]\d)"
+)
 _DATE_LIKE = re.compile(r"^\d{1,4}([-./])\d{1,2}\1\d{1,4}$")
 _YEAR = re.compile(r"^(?:1[89]|20)\d\d$")
 

@@ -115,7 +115,7 @@ def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
 def _check_cell_sizes(table: RawTable, options: ImportOptions) -> None:
     for name in table.frame.columns:
         series = table.frame[name]
-        if series.dtype != object:
+        if pd.api.types.is_numeric_dtype(series):
             continue
         lengths = series.astype(str).str.len().to_numpy()
         if len(lengths) and lengths.max() > options.max_cell_chars:

@@ -1,0 +1,78 @@
+"""Benchmark the theme finder against a bare scikit-learn NMF fit, and time the k search.
+
+Usage: /work/venv/bin/python bench/bench_themes.py [--quick]
+
+Data: a synthetic sparse count matrix with planted themes (opencode.analysis.theme_synthetic), 100,000 short
+verbatims (3-30 tokens) over 5,000 terms with a Zipf background; --quick uses 20,000 verbatims and k 4..8.
+Targets: finder (fit + top terms + shares + representatives) <= 1.5 x a bare NMF fit on the same tf-idf
+matrix, measured in the same run; k search 4..20 <= 180 s.
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import time
+
+from sklearn.decomposition import NMF
+from sklearn.feature_extraction.text import TfidfTransformer
+
+from opencode.analysis.theme_search import choose_k
+from opencode.analysis.theme_summary import summarise
+from opencode.analysis.theme_synthetic import planted_corpus
+from opencode.analysis.themes import ThemeFinder
+
+FIT_RATIO_TARGET = 1.5
+SEARCH_SECONDS_TARGET = 180.0
+
+
+def best_of(repeats: int, work) -> float:
+    """Fastest wall time of `repeats` calls (less noise from other processes)."""
+    times = []
+    for _ in range(repeats):
+        started = time.perf_counter()
+        work()
+        times.append(time.perf_counter() - started)
+    return min(times)
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="20,000 verbatims and k 4..8")
+    args = parser.parse_args()
+    n_docs, k_range = (20_000, "4:8") if args.quick else (100_000, "4:20")
+    k = 10
+    corpus = planted_corpus(n_docs=n_docs, n_themes=k, n_terms=5000, core_size=40, random_state=1)
+    counts, terms = corpus.counts, corpus.terms
+    texts = [f"verbatim {i}" for i in range(n_docs)]
+    print(f"corpus: {n_docs} verbatims x {counts.shape[1]} terms, {counts.nnz} non-zeros, k = {k}")
+
+    def bare_nmf():
+        tfidf = TfidfTransformer().fit_transform(counts)
+        NMF(n_components=k, init="nndsvd", random_state=0).fit(tfidf)
+
+    def finder_run():
+        finder = ThemeFinder(n_themes=k, random_state=0).fit(counts, terms=terms)
+        summarise(finder, counts, terms, texts=texts, n_top=10, n_representatives=5)
+
+    reference = best_of(3, bare_nmf)
+    ours = best_of(3, finder_run)
+    ratio = ours / reference
+    print(f"bare scikit-learn tf-idf + NMF fit: {reference:.3f} s")
+    print(f"ThemeFinder fit + summary (top terms, shares, coherence, representatives): {ours:.3f} s")
+    print(f"ratio {ratio:.2f} (target <= {FIT_RATIO_TARGET}) {'PASS' if ratio <= FIT_RATIO_TARGET else 'FAIL'}")
+
+    started = time.perf_counter()
+    search = choose_k(counts, k_range)
+    search_seconds = time.perf_counter() - started
+    n_k = len(search.table)
+    print(f"k search {k_range} ({n_k} values of k, 1 reference + 3 resample fits each): {search_seconds:.1f} s, "
+          f"{search_seconds / reference:.1f} x one bare fit; recommended k = {search.recommended_k} (planted {k})")
+    search_ok = search_seconds <= SEARCH_SECONDS_TARGET
+    print(f"k search target <= {SEARCH_SECONDS_TARGET:.0f} s {'PASS' if search_ok else 'FAIL'}")
+    print(f"peak memory {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
+    return 0 if ratio <= FIT_RATIO_TARGET and search_ok else 1
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

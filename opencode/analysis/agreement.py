@@ -1,0 +1,269 @@
+"""Inter-coder agreement for one question's multi-code data: per code, across the frame, and where coders differ.
+
+Entry points: `CodingMatrix.from_assignments(...)` builds the data, `measure_agreement(matrix)` returns an
+`AgreementResult`; agreement_report.py turns it into terminal text, CSV or an HTML section.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from opencode.analysis.agreement_bands import krippendorff_band, landis_koch_band
+from opencode.analysis.agreement_bootstrap import bootstrap_totals, percentile_interval
+from opencode.analysis.agreement_codes import CodeFeatures, statistic_names
+from opencode.analysis.agreement_disagreement import (
+    ConfusedPair,
+    DisputedUnit,
+    PairTables,
+    confused_pairs,
+    disputed_units,
+    pair_tables,
+)
+from opencode.analysis.agreement_matrix import CodingMatrix
+from opencode.analysis.agreement_sets import DISTANCES, SetAlphaParts, alpha_from_totals
+from opencode.errors import OpenCodeError
+
+__all__ = ["AgreementResult", "CodeAgreement", "CodingMatrix", "Estimate", "STATISTIC_LABELS", "measure_agreement"]
+
+STATISTIC_LABELS = {
+    "percent": "% agreement",
+    "cohen_kappa": "Cohen's kappa",
+    "fleiss_kappa": "Fleiss' kappa",
+    "krippendorff_alpha": "Krippendorff's alpha",
+    "gwet_ac1": "Gwet's AC1",
+    "pabak": "PABAK",
+    "prevalence_index": "prevalence index",
+    "bias_index": "bias index",
+    "alpha_masi": "Krippendorff's alpha, MASI distance",
+    "alpha_jaccard": "Krippendorff's alpha, Jaccard distance",
+    "mean_kappa": "mean per-code kappa",
+}
+_LANDIS_KOCH = {"cohen_kappa", "fleiss_kappa", "gwet_ac1", "pabak", "mean_kappa"}
+_KRIPPENDORFF = {"krippendorff_alpha", "alpha_masi", "alpha_jaccard"}
+SMALL_BASE = 30  # common practice (no published source): flag bases under 30
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """A statistic with its bootstrap interval; None where undefined, with `words` saying why or how to read it."""
+
+    value: float | None
+    low: float | None = None
+    high: float | None = None
+    words: str = ""
+
+
+@dataclass(frozen=True)
+class CodeAgreement:
+    """Agreement on one code (present / absent) over the units coded by two or more coders."""
+
+    code: object
+    label: str
+    n_pairable: int
+    n_mentions: int  # ratings with this code on those units, summed over coders
+    statistics: dict[str, Estimate]
+
+
+@dataclass(frozen=True)
+class AgreementResult:
+    """Everything `measure_agreement` found, ready for the text, CSV and HTML formatters."""
+
+    coders: tuple[str, ...]
+    n_units: int
+    n_pairable: int
+    n_single: int
+    units_per_coder: dict[str, int]
+    statistic_names: tuple[str, ...]
+    per_code: tuple[CodeAgreement, ...]
+    frame: dict[str, Estimate]
+    n_distinct_sets: int
+    pair_tables: PairTables
+    disputed_units: tuple[DisputedUnit, ...]
+    confused_pairs: tuple[ConfusedPair, ...]
+    code_labels: dict = field(default_factory=dict)
+    n_resamples: int = 0
+    confidence: float = 0.95
+    random_state: int | None = 0
+    warnings: tuple[str, ...] = ()
+
+    def label(self, code) -> str:
+        """The code's label, or the code itself when the frame gave none."""
+        return str(self.code_labels.get(code, code))
+
+
+def _number(x) -> float | None:
+    """A plain float, or None for NaN (undefined)."""
+    x = float(x)
+    return None if math.isnan(x) else x
+
+
+def _band(name: str, value: float | None) -> str:
+    if name in _LANDIS_KOCH:
+        return landis_koch_band(value)
+    if name in _KRIPPENDORFF:
+        return krippendorff_band(value)
+    return ""
+
+
+def _estimate(name: str, value, low, high, undefined: str, interval_note: str = "") -> Estimate:
+    """Wrap numbers as an Estimate, with band words or the reason the statistic is undefined."""
+    value, low, high = _number(value), _number(low), _number(high)
+    if value is None:
+        return Estimate(None, None, None, undefined)
+    words = "; ".join(part for part in (_band(name, value), interval_note) if part)
+    return Estimate(value, low, high, words)
+
+
+def _undefined_reasons(matrix: CodingMatrix, parts: dict[str, np.ndarray]) -> list[str]:
+    """Why a per-code statistic can be undefined, in words, one per code."""
+    used = matrix.present.any(axis=(0, 1))
+    reasons = []
+    for c in range(len(matrix.codes)):
+        n, k, m = parts["n_units"][c], parts["k_sum"][c], parts["m_sum"][c]
+        if n == 0:
+            reasons.append("undefined: no verbatim was coded by two or more coders")
+        elif k == 0 and not used[c]:
+            reasons.append("undefined: no coder used this code")
+        elif k == 0:
+            reasons.append(f"undefined: no coder used this code on the {int(n)} verbatims coded by two or more coders")
+        elif k == m:
+            reasons.append("undefined: every coder used this code on every verbatim they coded")
+        else:
+            reasons.append("undefined for these data")
+    return reasons
+
+
+def _interval(samples: np.ndarray | None, confidence: float, shape) -> tuple[np.ndarray, np.ndarray]:
+    if samples is None:
+        return np.full(shape, np.nan), np.full(shape, np.nan)
+    return percentile_interval(samples, confidence)
+
+
+def _interval_note(has_samples: bool, value: float, low: float) -> str:
+    if has_samples and not math.isnan(value) and math.isnan(low):
+        return "no interval: undefined in most resamples"
+    return ""
+
+
+def measure_agreement(
+    matrix: CodingMatrix,
+    *,
+    code_labels: Mapping | None = None,
+    n_resamples: int = 1000,
+    confidence: float = 0.95,
+    random_state: int | None = 0,
+    top: int = 10,
+    max_sets_for_interval: int = 3000,
+) -> AgreementResult:
+    """Per-code and frame-wide agreement with seeded bootstrap percentile intervals (resampling units).
+
+    `max_sets_for_interval` bounds the distinct code sets for which the set-valued alphas get an
+    interval (that interval needs a sets x sets distance matrix); above it the value comes without one.
+    """
+    if not 0 < confidence < 1:
+        raise OpenCodeError(f"confidence must be between 0 and 1, got {confidence}")
+    if n_resamples < 0:
+        raise OpenCodeError(f"number of bootstrap resamples must be 0 or more, got {n_resamples}")
+    pairable = matrix.pairable
+    n_pairable = int(pairable.sum())
+    if n_pairable == 0:
+        raise OpenCodeError(
+            f"no verbatim was coded by two or more of the coders {', '.join(matrix.coders)}: nothing to compare"
+        )
+    names = statistic_names(len(matrix.coders))
+    features = CodeFeatures.from_matrix(matrix)
+    point_totals = features.totals()
+    point = features.statistics(point_totals)
+    kappa_name = "cohen_kappa" if "cohen_kappa" in names else "fleiss_kappa"
+    sets = {kind: SetAlphaParts.from_matrix(matrix, kind) for kind in DISTANCES}
+    values = sets["masi"].value_counts
+    n_sets = values.shape[1]
+
+    samples: dict[str, np.ndarray] | None = None
+    set_samples: dict[str, np.ndarray] = {}
+    if n_resamples > 0:
+        dense_sets = np.column_stack([sets[k].unit_disagreement for k in DISTANCES]).astype(np.float32)
+        columns = [features.columns, dense_sets] + ([values] if n_sets <= max_sets_for_interval else [])
+        totals = bootstrap_totals(columns, n_resamples, random_state)
+        samples = features.statistics(totals[0])
+        if n_sets <= max_sets_for_interval:
+            counts = totals[2]
+            for d, kind in enumerate(DISTANCES):
+                expected = ((counts @ sets[kind].distance_matrix()) * counts).sum(axis=1)
+                set_samples[kind] = alpha_from_totals(totals[1][:, d], counts.sum(axis=1), expected)
+
+    reasons = _undefined_reasons(matrix, features.parts(point_totals))
+    labels = dict(code_labels or {})
+    per_stat = {}
+    for name in names:
+        low, high = _interval(None if samples is None else samples[name], confidence, point[name].shape)
+        per_stat[name] = (point[name], low, high)
+    k_sum = features.parts(point_totals)["k_sum"]
+    per_code = []
+    for c, code in enumerate(matrix.codes):
+        stats = {}
+        for name in names:
+            value, low, high = (arr[c] for arr in per_stat[name])
+            stats[name] = _estimate(name, value, low, high, reasons[c], _interval_note(samples is not None, value, low))
+        per_code.append(CodeAgreement(code, str(labels.get(code, code)), n_pairable, int(k_sum[c]), stats))
+
+    frame = {}
+    for kind in DISTANCES:
+        value = sets[kind].alpha()
+        note = ""
+        low = high = np.nan
+        if kind in set_samples:
+            low, high = percentile_interval(set_samples[kind], confidence)
+            note = _interval_note(True, value, low)
+        elif n_resamples > 0:
+            note = f"no interval: {n_sets:,} distinct code sets (interval limit {max_sets_for_interval:,})"
+        frame[f"alpha_{kind}"] = _estimate(
+            f"alpha_{kind}", value, low, high, "undefined: every coder gave every verbatim the same set of codes", note
+        )
+    defined = ~np.isnan(point[kappa_name])
+    n_defined = int(defined.sum())
+    mean_low = mean_high = np.nan
+    if samples is not None and n_defined:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            mean_samples = np.nanmean(samples[kappa_name][:, defined], axis=1)
+        mean_low, mean_high = percentile_interval(mean_samples, confidence)
+    mean_value = point[kappa_name][defined].mean() if n_defined else np.nan
+    left_out = len(matrix.codes) - n_defined
+    mean_note = f"{STATISTIC_LABELS[kappa_name]} averaged over {n_defined} of {len(matrix.codes)} codes" + (
+        f" ({left_out} undefined, left out)" if left_out else ""
+    )
+    frame["mean_kappa"] = _estimate(
+        "mean_kappa", mean_value, mean_low, mean_high, "undefined: kappa is undefined for every code", mean_note
+    )
+
+    n_single = int((matrix.coders_per_unit == 1).sum())
+    notes = []
+    if n_single:
+        notes.append(f"{n_single} verbatims coded by one coder only are left out (they cannot show agreement)")
+    if n_pairable < SMALL_BASE:
+        notes.append(f"small base: only {n_pairable} verbatims coded by two or more coders; read with care")
+    return AgreementResult(
+        coders=matrix.coders,
+        n_units=len(matrix.units),
+        n_pairable=n_pairable,
+        n_single=n_single,
+        units_per_coder={coder: int(matrix.coded[:, r].sum()) for r, coder in enumerate(matrix.coders)},
+        statistic_names=names,
+        per_code=tuple(per_code),
+        frame=frame,
+        n_distinct_sets=n_sets,
+        pair_tables=pair_tables(matrix),
+        disputed_units=tuple(disputed_units(matrix, top)),
+        confused_pairs=tuple(confused_pairs(matrix, top)),
+        code_labels=labels,
+        n_resamples=n_resamples,
+        confidence=confidence,
+        random_state=random_state,
+        warnings=tuple(notes),
+    )

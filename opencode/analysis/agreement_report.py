@@ -1,0 +1,232 @@
+"""Agreement results as terminal text, a CSV file and an HTML section; undefined values are always in words."""
+
+from __future__ import annotations
+
+import csv
+import html
+import os
+from collections.abc import Sequence
+from pathlib import Path
+
+from opencode.analysis.agreement import STATISTIC_LABELS, AgreementResult, Estimate
+from opencode.export.safe_write import atomic_open
+
+UNDEFINED = "undefined"
+_PERCENT = {"percent"}
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def _number(name: str, value: float | None) -> str:
+    """A value as text: percentages for % agreement, three decimals otherwise, 'undefined' for None."""
+    if value is None:
+        return UNDEFINED
+    return f"{100 * value:.1f}%" if name in _PERCENT else f"{value:.3f}"
+
+
+def _with_interval(name: str, est: Estimate) -> str:
+    """'0.748 [0.717, 0.778]', or the bare value when there is no interval."""
+    if est.value is None or est.low is None:
+        return _number(name, est.value)
+    return f"{_number(name, est.value)} [{_number(name, est.low)}, {_number(name, est.high)}]"
+
+
+def _codes(codes: tuple | None) -> str:
+    """A coder's code set as text: 'not coded', 'no code' or the codes."""
+    if codes is None:
+        return "not coded"
+    return " ".join(map(str, codes)) if codes else "no code"
+
+
+def _kappa_name(result: AgreementResult) -> str:
+    return "cohen_kappa" if "cohen_kappa" in result.statistic_names else "fleiss_kappa"
+
+
+def _summary_lines(result: AgreementResult) -> list[str]:
+    per_coder = ", ".join(f"{coder} {n:,}" for coder, n in result.units_per_coder.items())
+    lines = [
+        f"Coders: {', '.join(result.coders)} (verbatims coded: {per_coder})",
+        f"Verbatims: {result.n_units:,} coded; {result.n_pairable:,} by two or more coders (compared); "
+        f"{result.n_single:,} by one coder only",
+    ]
+    if result.n_resamples:
+        lines.append(
+            f"Intervals: {100 * result.confidence:.0f}% bootstrap percentile, {result.n_resamples:,} resamples "
+            f"of verbatims (seed {result.random_state})"
+        )
+    return lines + [f"Note: {note}" for note in result.warnings]
+
+
+def _frame_rows(result: AgreementResult) -> list[list[str]]:
+    return [[STATISTIC_LABELS[name], _with_interval(name, est), est.words] for name, est in result.frame.items()]
+
+
+def _code_rows(result: AgreementResult, statistics: Sequence[str]) -> list[list[str]]:
+    kappa = _kappa_name(result)
+    return [
+        [str(c.code), c.label, f"{c.n_mentions:,}"]
+        + [_with_interval(name, c.statistics[name]) for name in statistics]
+        + [c.statistics[kappa].words]
+        for c in result.per_code
+    ]
+
+
+def _pair_kappa(table, kappa: float) -> str:
+    """Cohen's kappa of one coder pair's 2 x 2 table as text, or why it is undefined."""
+    if kappa == kappa:
+        return f"{kappa:.3f}"
+    if table.sum() == 0:
+        return "undefined: no verbatim coded by both"
+    if table[0, 0] + table[0, 1] + table[1, 0] == 0:
+        return "undefined: neither coder used this code"
+    return "undefined: both coders used this code on every verbatim"
+
+
+def _pair_blocks(result: AgreementResult) -> list[tuple[str, list[str], list[list[str]]]]:
+    """One table per coder pair: per code both / first only / second only / neither and Cohen's kappa."""
+    pt = result.pair_tables
+    blocks = []
+    for p, (a, b) in enumerate(pt.pairs):
+        rows = []
+        for c, code in enumerate(pt.codes):
+            t = pt.tables[p, c]
+            rows.append(
+                [str(code), result.label(code), str(t[0, 0]), str(t[0, 1]), str(t[1, 0]), str(t[1, 1]),
+                 _pair_kappa(t, pt.kappa[p, c])]
+            )
+        headers = ["code", "label", "both", f"{a} only", f"{b} only", "neither", "Cohen's kappa"]
+        blocks.append((f"{a} and {b}", headers, rows))
+    return blocks
+
+
+def _disputed_rows(result: AgreementResult) -> list[list[str]]:
+    return [
+        [str(u.unit), str(u.n_disputed_codes)] + [_codes(u.sets[coder]) for coder in result.coders]
+        for u in result.disputed_units
+    ]
+
+
+def _confused_rows(result: AgreementResult) -> list[list[str]]:
+    return [
+        [f"{p.code_a} {result.label(p.code_a)}", f"{p.code_b} {result.label(p.code_b)}", str(p.count)]
+        for p in result.confused_pairs
+    ]
+
+
+def _text_table(headers: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
+    """Left-aligned columns separated by two spaces, with a rule under the header."""
+    widths = [max(len(str(x)) for x in column) for column in zip(headers, *rows)]
+
+    def line(cells: Sequence[str]) -> str:
+        return "  ".join(str(x).ljust(w) for x, w in zip(cells, widths)).rstrip()
+
+    return "\n".join([line(headers), "  ".join("-" * w for w in widths)] + [line(r) for r in rows])
+
+
+def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | None = None) -> str:
+    """The whole result as plain-text tables for the terminal (choose per-code statistics with `statistics`)."""
+    stats = tuple(statistics or result.statistic_names)
+    parts = ["\n".join(_summary_lines(result)), "Across the code frame",
+             _text_table(["statistic", "value [interval]", "reading"], _frame_rows(result)),
+             "Per code (present / absent)",
+             _text_table(["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats]
+                         + [f"reading of {STATISTIC_LABELS[_kappa_name(result)]}"], _code_rows(result, stats))]
+    for title, headers, rows in _pair_blocks(result):
+        parts += [f"Coder pair {title}", _text_table(headers, rows)]
+    if result.disputed_units:
+        parts += ["Verbatims with most disputed codes",
+                  _text_table(["verbatim", "disputed codes", *result.coders], _disputed_rows(result))]
+    if result.confused_pairs:
+        parts += ["Codes most often swapped between coders",
+                  _text_table(["one coder", "another coder", "times"], _confused_rows(result))]
+    return "\n\n".join(parts) + "\n"
+
+
+def _safe_cell(text: str) -> str:
+    """Guard a text cell against formula injection (OWASP "CSV Injection"): prefix a single quote."""
+    return "'" + text if text.startswith(_FORMULA_START) else text
+
+
+def _csv_number(value) -> str:
+    return "" if value is None else repr(float(value))
+
+
+CSV_HEADER = ["section", "code", "label", "other_code", "coders", "statistic", "value", "low", "high", "reading"]
+_CSV_NUMERIC = {6, 7, 8}
+
+
+def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
+    """The result as long rows under CSV_HEADER; empty value cells always have their reason in 'reading'."""
+    coders = "|".join(result.coders)
+    rows = [["frame", "", "", "", coders, STATISTIC_LABELS[n], _csv_number(e.value), _csv_number(e.low),
+             _csv_number(e.high), e.words] for n, e in result.frame.items()]
+    for c in result.per_code:
+        rows.append(["code", str(c.code), c.label, "", coders, "mentions", str(c.n_mentions), "", "", ""])
+        rows += [["code", str(c.code), c.label, "", coders, STATISTIC_LABELS[n], _csv_number(e.value),
+                  _csv_number(e.low), _csv_number(e.high), e.words] for n, e in c.statistics.items()]
+    pt = result.pair_tables
+    for p, (a, b) in enumerate(pt.pairs):
+        for c, code in enumerate(pt.codes):
+            t, k = pt.tables[p, c], pt.kappa[p, c]
+            cells = {"both": t[0, 0], f"{a} only": t[0, 1], f"{b} only": t[1, 0], "neither": t[1, 1]}
+            base = ["pair", str(code), result.label(code), "", f"{a}|{b}"]
+            rows += [base + [name, str(n), "", "", ""] for name, n in cells.items()]
+            words = _pair_kappa(t, k)
+            rows.append(base + ["Cohen's kappa", "" if k != k else repr(float(k)), "", "",
+                                words if words.startswith(UNDEFINED) else ""])
+    for u in result.disputed_units:
+        sets = "; ".join(f"{coder}: {_codes(u.sets[coder])}" for coder in result.coders)
+        rows.append(["disputed_unit", "", "", "", coders, f"verbatim {u.unit}", str(u.n_disputed_codes), "", "", sets])
+    for q in result.confused_pairs:
+        rows.append(["confused_pair", str(q.code_a), result.label(q.code_a), str(q.code_b), coders, "times",
+                     str(q.count), "", "", result.label(q.code_b)])
+    return [[str(x) if i in _CSV_NUMERIC else _safe_cell(str(x)) for i, x in enumerate(row)] for row in rows]
+
+
+def write_agreement_csv(result: AgreementResult, path: str | os.PathLike) -> Path:
+    """Write the long CSV atomically (temporary file + rename) and return its path."""
+    with atomic_open(path, "w", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(CSV_HEADER)
+        writer.writerows(agreement_csv_rows(result))
+    return Path(path)
+
+
+def _html_table(css: str, headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: range) -> str:
+    """An HTML table; `numeric` columns get class oc-num, undefined cells class oc-undefined."""
+
+    def cell(i: int, text: str) -> str:
+        classes = []
+        if i in numeric:
+            classes.append("oc-num")
+        if text == UNDEFINED or text.startswith("undefined"):
+            classes.append("oc-undefined")
+        attr = f' class="{" ".join(classes)}"' if classes else ""
+        return f"<td{attr}>{html.escape(text)}</td>"
+
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in headers)
+    body = "".join("<tr>" + "".join(cell(i, str(x)) for i, x in enumerate(r)) + "</tr>" for r in rows)
+    return f'<table class="oc-table {css}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+
+
+def format_agreement_html(result: AgreementResult, title: str = "Coder agreement") -> str:
+    """The result as an HTML fragment (<section class="oc-agreement">) for the report."""
+    kappa = _kappa_name(result)
+    stats = result.statistic_names
+    out = [f'<section class="oc-agreement"><h2>{html.escape(title)}</h2>']
+    out.append('<ul class="oc-summary">' + "".join(f"<li>{html.escape(x)}</li>" for x in _summary_lines(result)) + "</ul>")
+    out.append("<h3>Across the code frame</h3>")
+    out.append(_html_table("oc-agreement-frame", ["statistic", "value [interval]", "reading"], _frame_rows(result), range(1, 2)))
+    out.append("<h3>Per code (present / absent)</h3>")
+    code_headers = ["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats] + [f"reading of {STATISTIC_LABELS[kappa]}"]
+    out.append(_html_table("oc-agreement-codes", code_headers, _code_rows(result, stats), range(2, 3 + len(stats))))
+    for title_pair, headers, rows in _pair_blocks(result):
+        out.append(f"<h3>Coder pair {html.escape(title_pair)}</h3>")
+        out.append(_html_table("oc-agreement-pair", headers, rows, range(2, 7)))
+    if result.disputed_units:
+        out.append("<h3>Verbatims with most disputed codes</h3>")
+        out.append(_html_table("oc-agreement-disputed", ["verbatim", "disputed codes", *result.coders], _disputed_rows(result), range(1, 2)))
+    if result.confused_pairs:
+        out.append("<h3>Codes most often swapped between coders</h3>")
+        out.append(_html_table("oc-agreement-confused", ["one coder", "another coder", "times"], _confused_rows(result), range(2, 3)))
+    out.append("</section>")
+    return "\n".join(out)
