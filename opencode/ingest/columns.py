@@ -9,7 +9,8 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.ingest.readers import NULL_MARKERS, RawTable
+from opencode.ingest.readers import RawTable
+from opencode.ingest.text_cells import NULL_MARKERS, as_text, clean_text
 
 #: A numeric column with at most this many distinct values (or with value labels) is taken as single choice.
 MAX_SINGLE_CODES = 12
@@ -17,10 +18,6 @@ MAX_SINGLE_CODES = 12
 MAX_TEXT_CATEGORIES = 30
 _MULTI_CELL = re.compile(r"^\s*\d+(\s*[,;|]\s*\d+)*\s*$")
 _MULTI_SPLIT = re.compile(r"\s*[,;|]\s*")
-# Characters that break a terminal or a table: C0/C1 controls (not tab or newline) and bidi overrides.
-_BREAKS_DISPLAY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
-
-
 @dataclass
 class ColumnPlan:
     """One variable to create: its kind, role, labels, missing codes and converted values."""
@@ -34,19 +31,11 @@ class ColumnPlan:
     values: object = None  # np.ndarray (float) or list (text, dates, lists of codes)
 
 
-def clean_text(series: pd.Series) -> pd.Series:
-    """Text as given, minus characters that break display; null markers become empty."""
-    text = series.astype(object).where(series.notna(), "").astype(str)
-    text = text.where(~text.isin(["\\N", "NULL", "nan", "NaN", "None"]), "")
-    text = text.str.replace("\r\n", "\n", regex=False)
-    return text.str.replace(_BREAKS_DISPLAY, "", regex=True)
-
-
 def _as_numbers(series: pd.Series) -> pd.Series | None:
     """The column as floats if every non-empty cell is a number, else None."""
     if pd.api.types.is_numeric_dtype(series):
         return series.astype(float)
-    text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+    text = as_text(series).str.strip()
     blank = text.isin(NULL_MARKERS)
     numbers = pd.to_numeric(text.where(~blank, None), errors="coerce")
     if (numbers.isna() & ~blank).any():
@@ -76,7 +65,7 @@ def infer_kind(table: RawTable, name: str) -> str:
         distinct = numbers.dropna().unique()
         whole = bool(np.all(np.mod(distinct, 1) == 0)) if len(distinct) else True
         return "single" if whole and len(distinct) <= MAX_SINGLE_CODES else "numeric"
-    text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+    text = as_text(series).str.strip()
     if _is_multiple(text):
         return "multiple"
     if _is_date(text):
@@ -103,11 +92,11 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
         numbers = _as_numbers(series)
         if numbers is None:
             if kind == "numeric":
-                text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+                text = as_text(series).str.strip()
                 bad = pd.to_numeric(text.where(~text.isin(NULL_MARKERS), None), errors="coerce").isna() \
                     & ~text.isin(NULL_MARKERS)
                 raise _bad_cell(table, name, bad, "a number")
-            text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+            text = as_text(series).str.strip()
             blank = text.isin(NULL_MARKERS)
             categories = sorted(text[~blank].unique())
             codes = {category: float(i + 1) for i, category in enumerate(categories)}
@@ -116,7 +105,7 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
         else:
             plan.values = numbers.to_numpy(dtype=float)
     elif kind == "multiple":
-        text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+        text = as_text(series).str.strip()
         blank = text.isin(NULL_MARKERS)
         bad = ~blank & ~text.str.match(_MULTI_CELL)
         if bad.any():
@@ -124,7 +113,7 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
         plan.values = [[] if empty else [float(c) for c in _MULTI_SPLIT.split(cell)]
                        for cell, empty in zip(text, blank)]
     elif kind == "date":
-        text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+        text = as_text(series).str.strip()
         blank = text.isin(NULL_MARKERS)
         parsed = pd.to_datetime(text.where(~blank, None), errors="coerce", format="ISO8601")
         bad = parsed.isna() & ~blank

@@ -11,8 +11,6 @@ import pandas as pd
 
 from opencode.resources import lexicon_dir, read_lexicon
 
-#: Non-answers are short; longer texts are never checked against the list.
-MAX_NONANSWER_CHARS = 60
 _DROP = re.compile(r"[^\w\s]|_", re.UNICODE)
 _SPACES = re.compile(r"\s+")
 
@@ -36,9 +34,11 @@ def nonanswer_phrases(languages: tuple[str, ...] | None = None) -> frozenset[str
 def flag_nonanswers(texts: pd.Series, extra: tuple[str, ...] = ()) -> np.ndarray:
     """True where a verbatim is a non-answer: blank, punctuation only, or a listed phrase. Texts stay as given."""
     phrases = nonanswer_phrases() | {normalise(e) for e in extra}
+    longest = max((len(p) for p in phrases), default=0)
     flags = np.zeros(len(texts), dtype=bool)
     lengths = texts.str.len().to_numpy()
-    short = np.flatnonzero(lengths <= MAX_NONANSWER_CHARS)
+    # Non-answers are short: a text much longer than the longest listed phrase is never one.
+    short = np.flatnonzero(lengths <= 2 * longest + 8)
     for position, text in zip(short, texts.iloc[short]):
         folded = normalise(text)
         flags[position] = (not folded) or folded in phrases

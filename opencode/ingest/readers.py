@@ -10,6 +10,7 @@ from pathlib import Path
 import pandas as pd
 
 from opencode.errors import OpenCodeError
+from opencode.ingest.text_cells import NULL_MARKERS, strip_display_breakers
 from opencode.ingest.sniff import decode_text, detect_format, sniff_delimiter
 
 #: Cells that mean "no value" in text exports ("\N" from database dumps, NULL, and the like).
@@ -27,6 +28,7 @@ class RawTable:
     value_labels: dict[str, dict[float, str]] = field(default_factory=dict)
     missing_codes: dict[str, list[float]] = field(default_factory=dict)
     encoding: str | None = None
+    display_safe: bool = False  # characters that break display already stripped from every cell
 
     def row_name(self, index: int) -> str:
         """How to name data row `index` (0-based) to a user."""
@@ -36,14 +38,18 @@ class RawTable:
 
 
 def read_survey_file(path: str | Path, *, sheet: str | int | None = None, encoding: str | None = None,
-                     delimiter: str | None = None) -> RawTable:
-    """Read CSV/TSV, XLSX, SPSS .sav, Stata .dta or Parquet; bad files raise a clear OpenCodeError."""
+                     delimiter: str | None = None, text_columns: tuple[str, ...] = ()) -> RawTable:
+    """Read CSV/TSV, XLSX, SPSS .sav, Stata .dta or Parquet; bad files raise a clear OpenCodeError.
+
+    In delimited text, `text_columns` are read as strings exactly as given; other columns get their types
+    inferred, with the usual null markers read as empty. Without `text_columns` every column is read as text.
+    """
     path = Path(path)
     kind = detect_format(path)
     reader = {"csv": _read_text, "tsv": _read_text, "xlsx": _read_xlsx, "sav": _read_spss, "dta": _read_stata,
               "parquet": _read_parquet}[kind]
     if kind in ("csv", "tsv"):
-        table = reader(path, kind, encoding, delimiter)
+        table = reader(path, kind, encoding, delimiter, text_columns)
     elif kind == "xlsx":
         table = reader(path, sheet)
     else:
@@ -61,19 +67,22 @@ def read_survey_file(path: str | Path, *, sheet: str | int | None = None, encodi
 _RAGGED = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 
 
-def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | None) -> RawTable:
+def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | None,
+               text_columns: tuple[str, ...]) -> RawTable:
     raw = path.read_bytes()
     if not raw.strip():
         raise OpenCodeError(f"{path}: the file is empty")
     text, used = decode_text(path, raw, encoding)
     if text.startswith("\ufeff"):
         text = text[1:]
-    if "\x00" in text:
-        text = text.replace("\x00", "")
+    text = strip_display_breakers(text.replace("\r\n", "\n"))
     sep = delimiter or sniff_delimiter(path, text, kind)
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=sep, dtype=str, keep_default_na=False, na_filter=False,
-                            engine="c", skip_blank_lines=True)
+        header = pd.read_csv(io.StringIO(text), sep=sep, nrows=0, engine="c").columns
+        typed = [c for c in header if str(c).strip() not in text_columns] if text_columns else []
+        frame = pd.read_csv(io.StringIO(text), sep=sep, engine="c", skip_blank_lines=True,
+                            dtype={c: str for c in header if c not in typed}, keep_default_na=False,
+                            na_values={c: sorted(NULL_MARKERS) for c in typed})
     except pd.errors.ParserError as error:
         match = _RAGGED.search(str(error))
         if match:
@@ -84,7 +93,7 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
     except pd.errors.EmptyDataError as error:
         raise OpenCodeError(f"{path}: the file is empty") from error
     frame.columns = [str(c).strip() for c in frame.columns]
-    return RawTable(path, frame, kind, encoding=used)
+    return RawTable(path, frame, kind, encoding=used, display_safe=True)
 
 
 def _read_xlsx(path: Path, sheet: str | int | None) -> RawTable:

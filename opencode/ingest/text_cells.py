@@ -1,0 +1,34 @@
+"""Text cells as survey files give them: null markers, and characters that break display."""
+
+from __future__ import annotations
+
+import re
+
+import pandas as pd
+
+#: Cells that mean "no value" in text exports ("\\N" from database dumps, NULL, and the like).
+NULL_MARKERS = frozenset({"", "\\N", "NULL", "null", "NaN", "nan", "#NULL!", "."})
+# Characters that break a terminal or a table: C0/C1 controls (not tab or newline) and bidi overrides.
+_BREAKS_DISPLAY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+def strip_display_breakers(text: str) -> str:
+    """Remove characters that break a terminal or a table from a whole text at once."""
+    return _BREAKS_DISPLAY.sub("", text)
+
+
+def as_text(series: pd.Series) -> pd.Series:
+    """A column as strings, empty where there is no value."""
+    if pd.api.types.is_string_dtype(series) and not series.hasnans:
+        return series
+    return series.astype(object).where(series.notna(), "").astype(str)
+
+
+def clean_text(series: pd.Series, display_safe: bool = False) -> pd.Series:
+    """Text as given, minus characters that break display (unless already stripped); null markers become empty."""
+    text = as_text(series)
+    text = text.where(~text.isin(["\\N", "NULL", "nan", "NaN", "None"]), "")
+    if display_safe:
+        return text
+    text = text.str.replace("\r\n", "\n", regex=False)
+    return text.str.replace(_BREAKS_DISPLAY, "", regex=True)
