@@ -98,6 +98,8 @@ class QuestionSpec:
     dontknows: tuple[str, ...]
     hedges: tuple[str, ...]
     code_counts: tuple[float, float, float]
+    fillers: tuple[str, ...]
+    leaning: dict[int, str]
     numbers: tuple[int, ...] = field(init=False)
 
     def __post_init__(self) -> None:
@@ -606,9 +608,9 @@ NONANSWERS_IMPROVE = ("", "", "", "n/a", "N/A", "no comment", "-", ".", "?", "NA
 DONTKNOWS = ("dont know", "don't know", "not sure", "dunno", "no idea", "DK", "can't say", "Don't know really")
 
 HEDGES_WHY = ("I think", "probably", "to be honest", "tbh", "imo", "in my opinion", "I suppose", "mainly", "basically")
-HEDGES_IMPROVE = ("maybe", "ideally", "probably", "I guess", "just", "honestly")
+HEDGES_IMPROVE = ("maybe", "ideally", "probably", "I guess", "just")
 CONNECTORS = (". ", ". ", ", and ", " and ", "; ", " - ", ". Also ", ", plus ", ". And ", "... ", ", also ")
-FILLERS = (
+FILLERS_WHY = (
     "I have lived in {nbhd} for {years} years and used the library since I was little.",
     "My late husband used to take me every Tuesday without fail.",
     "Don't get me wrong, I can see why the council wants to try something.",
@@ -622,6 +624,23 @@ FILLERS = (
     "I'm not against change as such, it just has to be thought through.",
     "Things have changed a lot since they did the refurbishment.",
 )
+VARIANTS = (
+    ("don't", "do not"), ("it's", "it is"), ("wouldn't", "would not"), ("can't", "cannot"), ("I'd", "I would"),
+    ("there'd", "there would"), ("I'm", "I am"), (" and ", " & "), ("because", "cos"), ("isn't", "is not"),
+    ("people", "folk"), ("a lot", "loads"), ("please", "pls"), ("nobody", "no one"), ("the library", "the lib"),
+    ("won't", "will not"), ("really", "honestly"),
+)
+FILLERS_IMPROVE = (
+    "I go to the {nbhd} branch about once a week.",
+    "It's a lovely building but it feels a bit tired now.",
+    "The staff do their best with what they've got.",
+    "I used to take {kids} every Saturday morning.",
+    "Other towns nearby seem to have much better libraries.",
+    "That's probably more than one thing, sorry!",
+    "I've been a member for {years} years so I've seen it go downhill a bit.",
+    "Honestly it's one of the few free places left to go.",
+)
+LEANING_WHY = {c: "oppose" for c in (1, 2, 3, 4, 5, 6)} | {c: "support" for c in (7, 8, 9, 10, 11)}
 EMOJI = ("👍", "😡", "📚", "🙂", "😬", "🤷", "👎", "❤️", "😂", "🙏")
 SHOUT_TAILS = ("!!!", "!!", "...", "??", "!!!!", "?!")
 MISSPELL = {
@@ -637,10 +656,11 @@ CONTACTS = (
 )
 
 SPEC_WHY = QuestionSpec("why", FRAME_WHY, PHRASES_WHY, SHORT_WHY, FOREIGN_WHY, OPENERS_WHY,
-                        ((1, 3), (7, 9), (2, 6)), NONANSWERS_WHY, DONTKNOWS, HEDGES_WHY, (0.55, 0.33, 0.12))
+                        ((1, 3), (7, 9), (2, 6)), NONANSWERS_WHY, DONTKNOWS, HEDGES_WHY, (0.55, 0.33, 0.12),
+                        FILLERS_WHY, LEANING_WHY)
 SPEC_IMPROVE = QuestionSpec("improve", FRAME_IMPROVE, PHRASES_IMPROVE, SHORT_IMPROVE, FOREIGN_IMPROVE,
                             OPENERS_IMPROVE, ((4, 8), (10, 11), (1, 2)), NONANSWERS_IMPROVE, DONTKNOWS,
-                            HEDGES_IMPROVE, (0.72, 0.23, 0.05))
+                            HEDGES_IMPROVE, (0.72, 0.23, 0.05), FILLERS_IMPROVE, {})
 
 # ---------------------------------------------------------------------------------------------------------
 # Respondents and closed-ended items
@@ -658,7 +678,7 @@ AGE_SAMPLE = np.array([[0.14, 0.15, 0.16, 0.20, 0.21, 0.14],   # sample composit
 AGE_POPULATION = np.array([0.14, 0.17, 0.17, 0.21, 0.19, 0.12])
 CHILDREN_BY_AGE = np.array([0.06, 0.30, 0.62, 0.45, 0.08, 0.02])
 CHILDREN_POPULATION = np.array([0.29, 0.71])
-SUPPORT_CUTS = np.array([-2.4, -1.35, -0.55, 0.9])
+SUPPORT_CUTS = np.array([-2.15, -1.15, -0.4, 1.0])
 
 
 def _categorical(rng: np.random.Generator, probs: np.ndarray) -> np.ndarray:
@@ -700,7 +720,7 @@ def simulate_respondents(rng: np.random.Generator, n: int) -> pd.DataFrame:
     visits = rng.poisson(rate * rng.gamma(2.0, 0.5, n))
     visits = np.where(rng.random(n) < 0.15, 0, np.minimum(visits, 30))
 
-    latent = (0.35 + 1.0 * student + 0.55 * kids + 0.8 * shift - 0.27 * age - 1.25 * worry
+    latent = (0.35 + 0.8 * student + 0.55 * kids + 0.8 * shift - 0.21 * age - 1.25 * worry
               + NBHD_SUPPORT[nbhd] + 0.12 * np.log1p(visits) + rng.logistic(0.0, 0.85, n))
     support = 1 + np.searchsorted(SUPPORT_CUTS, latent)
     refused = rng.random(n) < 0.018 + 0.006 * age
@@ -855,6 +875,9 @@ class Writer:
         text = clauses[0]
         for part in clauses[1:]:
             text += self.pick(CONNECTORS) + part
+        leaning = spec.leaning.get(codes[0], stance)
+        if leaning != stance:
+            stance = "neutral"
         openers = spec.openers.get(stance, spec.openers.get("any", ("",)))
         opener = self.pick(openers)
         if opener:
@@ -866,8 +889,9 @@ class Writer:
         return text
 
     def ramble(self, spec: QuestionSpec, codes: list[int]) -> str:
-        """A long answer (roughly 70-150 words): scene-setting sentences around two phrasings per code."""
-        sentences = [self.fill(f) for f in self.rng.permutation(np.array(FILLERS, dtype=object))[:4]]
+        """A long answer (roughly 60-160 words): scene-setting sentences around two phrasings per code."""
+        count = int(self.rng.integers(3, 7))
+        sentences = [self.fill(f) for f in self.rng.permutation(np.array(spec.fillers, dtype=object))[:count]]
         for code in codes:
             picks = self.rng.choice(len(spec.phrases[code]), size=min(2, len(spec.phrases[code])), replace=False)
             body = [self.fill(spec.phrases[code][int(j)]) for j in picks]
@@ -877,10 +901,10 @@ class Writer:
 
     def typo(self, text: str) -> str:
         """Misspell a known word or swap, drop or double a letter in one or two words."""
-        known = [(w, wrong) for w, wrong in MISSPELL.items() if re.search(rf"\b{w}\b", text)]
+        known = [(w, wrong) for w, wrong in MISSPELL.items() if _has_phrase(text, w)]
         if known and self.chance(0.5):
             word, wrong = self.pick(known)
-            return re.sub(rf"\b{word}\b", wrong, text, count=1)
+            return _phrase_re(word).sub(wrong, text, count=1)
         for _ in range(1 + int(self.chance(0.3))):
             spans = [m.span() for m in WORD_RE.finditer(text)]
             if not spans:
@@ -898,8 +922,18 @@ class Writer:
             text = text[:a] + word + text[b:]
         return text
 
+    def vary(self, text: str) -> str:
+        """Swap one everyday wording for an equivalent (contractions, '&', 'cos'), so answers repeat less."""
+        pairs = [(a, b) for a, b in VARIANTS if _has_phrase(text, a)] + [(b, a) for a, b in VARIANTS if _has_phrase(text, b)]
+        if not pairs:
+            return text
+        old, new = self.pick(pairs)
+        return _phrase_re(old).sub(new, text, count=1)
+
     def mess(self, text: str) -> str:
         """Typos, case, repeated punctuation, emoji and the odd stray newline or contact detail."""
+        if self.chance(0.45):
+            text = self.vary(text)
         if "library" in text and self.chance(0.08):
             text = text.replace("library", "libary", 1)
         if self.chance(0.2):
@@ -923,6 +957,16 @@ class Writer:
             text = f"{text.rstrip()} {contact}"
         return text
 
+
+
+def _phrase_re(phrase: str) -> re.Pattern:
+    """A pattern for a phrase standing on its own (not inside a longer word)."""
+    return re.compile(rf"(?<![\w']){re.escape(phrase)}(?![\w'])")
+
+
+def _has_phrase(text: str, phrase: str) -> bool:
+    """Whether the phrase occurs as whole words."""
+    return _phrase_re(phrase).search(text) is not None
 
 
 def _sentence_case(text: str) -> str:
@@ -1013,7 +1057,7 @@ def _code_as_bryn(rng: np.random.Generator, spec: QuestionSpec, true: list[int],
     for i, c in enumerate(true):
         if i > 0 and rng.random() < 0.08:
             continue
-        out.append(swap[c] if c in swap and rng.random() < 0.22 else c)
+        out.append(swap[c] if c in swap and rng.random() < 0.15 else c)
     if rng.random() < 0.04:
         out.append(int(rng.choice([c for c in spec.numbers if c < 90])))
     return out

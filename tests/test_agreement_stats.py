@@ -110,6 +110,7 @@ def test_cohen_matches_sklearn_on_random_tables(seed, q, n):
     assert cohen_kappa_table(table) == pytest.approx(ref, abs=1e-10)
 
 
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")  # statsmodels divides 0/0 on degenerate tables
 @settings(max_examples=40, deadline=None)
 @given(seed=st.integers(0, 2**32 - 1), q=st.integers(2, 5), raters=st.integers(2, 8), n=st.integers(3, 40))
 def test_fleiss_matches_statsmodels_on_random_tables(seed, q, raters, n):
@@ -121,6 +122,7 @@ def test_fleiss_matches_statsmodels_on_random_tables(seed, q, raters, n):
     assert fleiss_kappa(table) == pytest.approx(ref, abs=1e-10)
 
 
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")  # krippendorff divides 0/0 on degenerate data
 @settings(max_examples=40, deadline=None)
 @given(seed=st.integers(0, 2**32 - 1), q=st.integers(2, 5), coders=st.integers(2, 5), n=st.integers(3, 40))
 def test_krippendorff_matches_package_with_missing(seed, q, coders, n):

@@ -158,7 +158,7 @@ def measure_agreement(
     confidence: float = 0.95,
     random_state: int | None = 0,
     top: int = 10,
-    max_sets_for_interval: int = 3000,
+    max_sets_for_interval: int = 5000,
 ) -> AgreementResult:
     """Per-code and frame-wide agreement with seeded bootstrap percentile intervals (resampling units).
 
@@ -180,22 +180,22 @@ def measure_agreement(
     point_totals = features.totals()
     point = features.statistics(point_totals)
     kappa_name = "cohen_kappa" if "cohen_kappa" in names else "fleiss_kappa"
-    sets = {kind: SetAlphaParts.from_matrix(matrix, kind) for kind in DISTANCES}
-    values = sets["masi"].value_counts
-    n_sets = values.shape[1]
+    sets = SetAlphaParts.from_matrix(matrix)
+    n_sets = sets.n_sets
 
     samples: dict[str, np.ndarray] | None = None
     set_samples: dict[str, np.ndarray] = {}
     if n_resamples > 0:
-        dense_sets = np.column_stack([sets[k].unit_disagreement for k in DISTANCES]).astype(np.float32)
-        columns = [features.columns, dense_sets] + ([values] if n_sets <= max_sets_for_interval else [])
+        dense_sets = np.column_stack([sets.unit_disagreement[k] for k in DISTANCES]).astype(np.float32)
+        with_sets = n_sets <= max_sets_for_interval
+        columns = [features.columns, dense_sets] + ([sets.value_counts] if with_sets else [])
         totals = bootstrap_totals(columns, n_resamples, random_state)
         samples = features.statistics(totals[0])
-        if n_sets <= max_sets_for_interval:
+        if with_sets:
             counts = totals[2]
+            expected = sets.expected_sums(counts)
             for d, kind in enumerate(DISTANCES):
-                expected = ((counts @ sets[kind].distance_matrix()) * counts).sum(axis=1)
-                set_samples[kind] = alpha_from_totals(totals[1][:, d], counts.sum(axis=1), expected)
+                set_samples[kind] = alpha_from_totals(totals[1][:, d], counts.sum(axis=1), expected[kind])
 
     reasons = _undefined_reasons(matrix, features.parts(point_totals))
     labels = dict(code_labels or {})
@@ -213,8 +213,9 @@ def measure_agreement(
         per_code.append(CodeAgreement(code, str(labels.get(code, code)), n_pairable, int(k_sum[c]), stats))
 
     frame = {}
+    point_alphas = sets.alphas()
     for kind in DISTANCES:
-        value = sets[kind].alpha()
+        value = point_alphas[kind]
         note = ""
         low = high = np.nan
         if kind in set_samples:

@@ -54,29 +54,35 @@ def jaccard_distance(a, b) -> float:
     return _set_distance_pair(a, b, "jaccard")
 
 
+def distance_lookup(max_size: int, kind: str) -> np.ndarray:
+    """Table of distances indexed [intersection, |A|, |B|] for sets of at most `max_size` codes."""
+    grid = np.indices((max_size + 1,) * 3)
+    return set_distance(grid[0], grid[1], grid[2], kind)
+
+
 @dataclass(frozen=True, eq=False)
 class SetAlphaParts:
-    """Per-unit pieces of set-valued alpha: observed disagreement per unit and which distinct set each coder gave."""
+    """Per-unit pieces of set-valued alpha: observed disagreement per unit, and which distinct set each coder gave."""
 
-    unit_disagreement: np.ndarray  # (units,) sum over coder pairs of 2 * distance / (m - 1)
+    unit_disagreement: dict[str, np.ndarray]  # kind -> (units,) sum over coder pairs of 2 * distance / (m - 1)
     value_counts: sp.csr_matrix  # (units, distinct sets) how many of the unit's coders gave each set
     values: np.ndarray  # (distinct sets, codes) bool
-    kind: str
 
     @classmethod
-    def from_matrix(cls, matrix: CodingMatrix, kind: str = "masi") -> "SetAlphaParts":
+    def from_matrix(cls, matrix: CodingMatrix, kinds: tuple[str, ...] = DISTANCES) -> "SetAlphaParts":
         """Collect the pieces from the units coded by two or more coders."""
         pairable = matrix.pairable
         coded = matrix.coded & pairable[:, None]
         m = matrix.coders_per_unit.astype(float)
         present = matrix.present
         sizes = present.sum(axis=2)
-        disagreement = np.zeros(len(matrix.units))
+        disagreement = {kind: np.zeros(len(matrix.units)) for kind in kinds}
         for i, j in combinations(range(len(matrix.coders)), 2):
             both = coded[:, i] & coded[:, j]
             inter = (present[:, i, :] & present[:, j, :]).sum(axis=1)
-            d = set_distance(inter, sizes[:, i], sizes[:, j], kind)
-            disagreement += np.where(both, 2.0 * d / np.where(both, m - 1.0, 1.0), 0.0)
+            for kind in kinds:
+                d = set_distance(inter, sizes[:, i], sizes[:, j], kind)
+                disagreement[kind] += np.where(both, 2.0 * d / np.where(both, m - 1.0, 1.0), 0.0)
         unit_of, coder_of = np.nonzero(coded)
         packed = np.packbits(present[unit_of, coder_of, :], axis=1)
         _, first, inverse = np.unique(packed, axis=0, return_index=True, return_inverse=True)
@@ -84,31 +90,42 @@ class SetAlphaParts:
         counts = sp.csr_matrix(
             (np.ones(unit_of.size), (unit_of, inverse.ravel())), shape=(len(matrix.units), values.shape[0])
         )
-        return cls(disagreement, counts, values, kind)
+        return cls(disagreement, counts, values)
 
-    def _distance_rows(self, rows: slice) -> np.ndarray:
-        """Distances from the distinct sets in `rows` to every distinct set."""
+    @property
+    def n_sets(self) -> int:
+        """How many distinct code sets the coders gave."""
+        return self.values.shape[0]
+
+    def expected_sums(self, n_c: np.ndarray) -> dict[str, np.ndarray]:
+        """sum_{c,k} n_c n_k distance(c, k) per kind, for set counts n_c (sets,) or (resamples, sets).
+
+        Works in row blocks of the sets x sets distances (looked up from intersection and sizes) to bound memory.
+        """
+        dtype = np.float64 if np.ndim(n_c) == 1 else np.float32  # exact point estimates, fast resamples
+        n = np.atleast_2d(np.asarray(n_c, dtype=dtype))
         v = self.values.astype(np.float32)
-        inter = v[rows] @ v.T
-        sizes = v.sum(axis=1)
-        return set_distance(inter, sizes[rows, None], sizes[None, :], self.kind)
-
-    def distance_matrix(self) -> np.ndarray:
-        """Distances between every pair of distinct sets (sets x sets)."""
-        return self._distance_rows(slice(None))
-
-    def expected_sum(self, n_c: np.ndarray) -> float:
-        """sum_{c,k} n_c n_k distance(c, k), computed in row blocks to bound memory."""
-        total = 0.0
-        for start in range(0, n_c.size, _ROW_BLOCK):
+        sizes = self.values.sum(axis=1).astype(np.int32)
+        side = int(sizes.max()) + 1
+        tables = {kind: distance_lookup(side - 1, kind).astype(dtype).ravel() for kind in self.unit_disagreement}
+        totals = {kind: np.zeros(n.shape[0]) for kind in tables}
+        for start in range(0, self.n_sets, _ROW_BLOCK):
             rows = slice(start, start + _ROW_BLOCK)
-            total += float(n_c[rows] @ (self._distance_rows(rows) @ n_c))
-        return total
+            inter = np.rint(v[rows] @ v.T).astype(np.int32)
+            index = inter * (side * side) + (sizes[rows, None] * side + sizes[None, :])
+            for kind, table in tables.items():
+                block = table[index]
+                totals[kind] += ((n @ block.T) * n[:, rows]).sum(axis=1, dtype=np.float64)
+        return {kind: t if np.ndim(n_c) == 2 else t[0] for kind, t in totals.items()}
 
-    def alpha(self) -> float:
-        """Point estimate: 1 - (n - 1) * sum of unit disagreements / sum_{c,k} n_c n_k distance(c, k)."""
+    def alphas(self) -> dict[str, float]:
+        """Point estimates per kind: 1 - (n - 1) * sum of unit disagreements / sum_{c,k} n_c n_k distance(c, k)."""
         n_c = np.asarray(self.value_counts.sum(axis=0), dtype=float).ravel()
-        return float(alpha_from_totals(self.unit_disagreement.sum(), n_c.sum(), self.expected_sum(n_c)))
+        expected = self.expected_sums(n_c)
+        return {
+            kind: float(alpha_from_totals(self.unit_disagreement[kind].sum(), n_c.sum(), expected[kind]))
+            for kind in self.unit_disagreement
+        }
 
 
 def alpha_from_totals(observed_sum, n_values, expected_sum) -> np.ndarray:
@@ -122,4 +139,4 @@ def alpha_from_totals(observed_sum, n_values, expected_sum) -> np.ndarray:
 
 def set_alpha(matrix: CodingMatrix, kind: str = "masi") -> float:
     """Krippendorff's alpha over each coder's whole code set per verbatim, with MASI or Jaccard distance."""
-    return SetAlphaParts.from_matrix(matrix, kind).alpha()
+    return SetAlphaParts.from_matrix(matrix, (kind,)).alphas()[kind]

@@ -130,7 +130,7 @@ class FrequencyTable:
 
     @property
     def small_base(self) -> bool:
-        """Whether the answered base is under the minimum (percentages to be read with caution)."""
+        """Whether the effective answered base is under the minimum (percentages to be read with caution)."""
         return self.base.effective < self.min_base
 
     @property

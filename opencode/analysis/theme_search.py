@@ -5,8 +5,9 @@ coherence of its themes' top terms on the study's own verbatims (see coherence.p
 (Greene, O'Callaghan & Cunningham 2014): the mean agreement between the reference and models fitted on
 random 80% resamples of the verbatims (see theme_stability.py). The recommended k has the best mean of its
 NPMI rank and its stability rank (ties: the more stable, then the smaller k). UMass is shown for reference
-only: Lau, Newman & Baldwin (2014) found NPMI closer to human judgements. The search reuses one tf-idf
-matrix, one set of resamples for every k, and looser stopping (max_iter, tol) than a final fit.
+only: Lau, Newman & Baldwin (2014) found NPMI closer to human judgements. For speed the search reuses one
+tf-idf matrix and one set of resamples for every k, fits on at most `max_docs` sampled verbatims, and stops
+earlier (max_iter, tol) than a final fit.
 """
 
 from __future__ import annotations
@@ -87,10 +88,15 @@ def _fit_k(template: ThemeFinder, k: int, model_input, resamples: list[np.ndarra
 
 
 def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: str = "nmf", n_top: int = 10,
-             n_resamples: int = 3, sample_fraction: float = 0.8, max_iter: int = 100, tol: float = 1e-3,
+             n_resamples: int = 3, sample_fraction: float = 0.8, max_docs: int | None = 20_000,
+             max_iter: int = 50, tol: float = 1e-3,
              random_state: int | None = 0, progress: Callable[[int, int, int], None] | None = None,
              **finder_params) -> KSearch:
-    """Score each k by NPMI, UMass and stability; recommend one. progress(done, total, k) after each k."""
+    """Score each k by NPMI, UMass and stability; recommend one. progress(done, total, k) after each k.
+
+    With more than `max_docs` verbatims with terms, the fits use a seeded random sample of that many (the
+    choice of k needs the shape of the corpus, not every verbatim); coherence is still counted on them all.
+    """
     if finder_params.get("seed_terms"):
         raise OpenCodeError("the k search runs without seed terms; seed the final run instead")
     if not 0.1 <= sample_fraction < 1.0:
@@ -104,8 +110,11 @@ def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: 
     template = ThemeFinder(method=method, n_themes=ks[0], random_state=random_state, **finder_params)
     template._check_params()
     model_input, _ = template.model_input(kept_counts)
-    n_kept = model_input.shape[0]
     rng = np.random.default_rng(random_state)
+    if max_docs is not None and model_input.shape[0] > max(max_docs, ks[-1]):
+        model_input = model_input[np.sort(rng.choice(model_input.shape[0], size=max(max_docs, ks[-1]),
+                                                     replace=False))]
+    n_kept = model_input.shape[0]
     resamples = [np.sort(rng.choice(n_kept, size=max(ks[-1], int(sample_fraction * n_kept)), replace=False))
                  for _ in range(n_resamples)]
     rows = []

@@ -220,13 +220,24 @@ def _net_closure(frame: Sequence[FrameCode], frame_codes: np.ndarray) -> np.ndar
     return closure
 
 
+_SIZED = (set, frozenset, list, tuple)
+
+
 def question_codes(ds: CodedDataset, q: CodedQuestion) -> QuestionCodes:
     """Vectorised indicators for one question: a respondent is in a net once if any member code is theirs."""
     frame_codes = np.array([c.code for c in q.frame], dtype=np.int64)
-    row_codes = [sorted(set(codes)) for codes in _row_codes(ds, q)]
+    row_codes = [c if isinstance(c, _SIZED) else list(c) for c in _row_codes(ds, q)]
     lengths = np.fromiter(map(len, row_codes), dtype=np.int64, count=len(row_codes))
-    assigned = np.fromiter(itertools.chain.from_iterable(row_codes), dtype=np.int64, count=int(lengths.sum()))
+    try:
+        assigned = np.fromiter(itertools.chain.from_iterable(row_codes), dtype=np.int64, count=int(lengths.sum()))
+    except (TypeError, ValueError, OverflowError):
+        raise OpenCodeError(f"export: question {q.name!r}: codes must be whole numbers") from None
     rows = np.repeat(np.arange(len(row_codes)), lengths)
+    by_row = np.lexsort((assigned, rows))
+    rows, assigned = rows[by_row], assigned[by_row]
+    distinct = np.ones(len(rows), dtype=bool)
+    distinct[1:] = (rows[1:] != rows[:-1]) | (assigned[1:] != assigned[:-1])
+    rows, assigned = rows[distinct], assigned[distinct]
     order = np.argsort(frame_codes)
     pos = np.searchsorted(frame_codes[order], assigned)
     pos = np.minimum(pos, len(frame_codes) - 1)
@@ -241,7 +252,7 @@ def question_codes(ds: CodedDataset, q: CodedQuestion) -> QuestionCodes:
     direct = np.zeros((len(row_codes), len(frame_codes)), dtype=bool)
     direct[rows, columns] = True
     closure = _net_closure(q.frame, frame_codes)
-    indicators = (direct.astype(np.int32) @ closure.astype(np.int32)) > 0
+    indicators = (direct.astype(np.float32) @ closure.astype(np.float32)) > 0  # float: BLAS speed
     return QuestionCodes(q, frame_codes, indicators.astype(np.int8), rows, assigned)
 
 

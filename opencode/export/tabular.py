@@ -72,7 +72,7 @@ def _number_text(x) -> str:
 def write_csv_table(df: pd.DataFrame, path: str | os.PathLike) -> None:
     """Write one table as guarded CSV through a temporary file and an atomic rename."""
     with atomic_open(path, "w", newline="") as handle:
-        guarded_frame(df).to_csv(handle, index=False, quoting=csv.QUOTE_MINIMAL, lineterminator="\n")
+        guarded_frame(df).to_csv(handle, index=False, quoting=csv.QUOTE_MINIMAL, lineterminator="\r\n")
 
 
 def write_csv(

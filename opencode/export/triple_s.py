@@ -274,12 +274,12 @@ def write_triple_s(
     fields = _collect_fields(dataset, multiple, data_format, verbatims)
     _assign_positions(fields, data_format)
     columns = [cells for f in fields for cells in f.cells]
+    xml_text = _metadata_xml(dataset, [f.var for f in fields], data_format, origin, timestamp or dt.datetime.now())
     with atomic_open(data_path, "w", newline="") as handle:
         if data_format == "fixed":
             handle.writelines("".join(row) + "\r\n" for row in zip(*columns))
         else:
             csv.writer(handle, lineterminator="\r\n").writerows(zip(*columns))
-    xml_text = _metadata_xml(dataset, [f.var for f in fields], data_format, origin, timestamp or dt.datetime.now())
     with atomic_open(meta, "w") as handle:
         handle.write(xml_text)
     return [meta, data_path]

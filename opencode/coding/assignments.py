@@ -1,0 +1,197 @@
+"""Assign codes to verbatims, per coder, one committed transaction per action (a crash loses nothing).
+
+A hand code is never overwritten by a rule or machine suggestion; suggestions become hand codes only when
+a person accepts them. Every change is audited with reversible ops, so each coder can undo and redo.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from opencode.coding.history import Change
+from opencode.errors import OpenCodeError
+from opencode.study import assignments_store as astore
+from opencode.study import frames_store as fstore
+from opencode.study import survey_data
+from opencode.study.store import Study, now
+
+SOURCES = ("hand", "rule", "machine")
+SUGGESTED = ("rule", "machine")
+FINAL = "final"
+
+
+@dataclass(frozen=True)
+class AssignedCode:
+    """One code a coder holds on a verbatim."""
+
+    number: int
+    source: str
+    confidence: float | None
+
+
+def _check_coder(coder: str) -> str:
+    if not coder or not str(coder).strip():
+        raise OpenCodeError("a coder name is needed (e.g. your initials)")
+    return str(coder).strip()
+
+
+def _resolve(study: Study, verbatim_id: int, number: int, assignable: bool = True) -> int:
+    """The code id behind a code number for a verbatim; a clear error for anything that cannot be assigned."""
+    found = fstore.code_for_verbatim(study, verbatim_id, int(number))
+    if found is None:
+        if astore.verbatim_question(study, verbatim_id) is None:
+            raise OpenCodeError(f"verbatim {verbatim_id}: no such verbatim in {study.path.name}")
+        raise OpenCodeError(f"verbatim {verbatim_id}: its question has no code frame yet")
+    _, code_id, kind, active, label = found
+    if code_id is None:
+        raise OpenCodeError(f"verbatim {verbatim_id}: the frame has no code {number}")
+    if assignable and kind == "net":
+        raise OpenCodeError(f"code {number} ({label}) is a net; nets are counted from their codes")
+    if assignable and not active:
+        raise OpenCodeError(f"code {number} ({label}) is retired; restore it to use it again")
+    return int(code_id)
+
+
+def assign(study: Study, verbatim_id: int, code_number: int, coder: str, source: str = "hand",
+           confidence: float | None = None) -> bool:
+    """Give a verbatim a code; True if anything changed. A hand code turns a suggestion into a hand code."""
+    coder = _check_coder(coder)
+    if source not in SOURCES:
+        raise OpenCodeError(f"source {source!r} is not one of {', '.join(SOURCES)}")
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number)
+        existing = astore.get_assignment(study, verbatim_id, code_id, coder)
+        if existing is not None and (existing["source"] == "hand" or source != "hand"):
+            return False
+        change = Change(study)
+        change.put_assignment({"verbatim_id": verbatim_id, "code_id": code_id, "coder": coder, "source": source,
+                               "confidence": None if source == "hand" else confidence, "created_at": now()})
+        change.commit(coder, "assign" if existing is None else "accept", "verbatim", verbatim_id,
+                      number=int(code_number))
+    return True
+
+
+def unassign(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool:
+    """Take a code off a verbatim (any source); True if it was there."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number, assignable=False)
+        change = Change(study)
+        if not change.remove_assignment(verbatim_id, code_id, coder):
+            return False
+        change.commit(coder, "unassign", "verbatim", verbatim_id, number=int(code_number))
+    return True
+
+
+def toggle(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool:
+    """The desk's key press: add a missing code, accept a suggested one, remove a hand code. True if now held."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number, assignable=False)
+        existing = astore.get_assignment(study, verbatim_id, code_id, coder)
+        if existing is not None and existing["source"] == "hand":
+            unassign(study, verbatim_id, code_number, coder)
+            return False
+        assign(study, verbatim_id, code_number, coder)
+    return True
+
+
+def accept(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool:
+    """Turn a rule or machine suggestion the coder holds into the coder's hand code; False if none was there."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number, assignable=False)
+        existing = astore.get_assignment(study, verbatim_id, code_id, coder)
+        if existing is None or existing["source"] == "hand":
+            return False
+        return assign(study, verbatim_id, code_number, coder)
+
+
+def reject(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool:
+    """Remove a rule or machine suggestion (hand codes are removed with unassign); False if none was there."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number, assignable=False)
+        existing = astore.get_assignment(study, verbatim_id, code_id, coder)
+        if existing is None:
+            return False
+        if existing["source"] == "hand":
+            raise OpenCodeError(f"verbatim {verbatim_id}: code {code_number} is a hand code of {coder}, not a "
+                                "suggestion; remove it with unassign")
+        change = Change(study)
+        change.remove_assignment(verbatim_id, code_id, coder)
+        change.commit(coder, "reject", "verbatim", verbatim_id, number=int(code_number))
+    return True
+
+
+def codes_of(study: Study, verbatim_id: int, coder: str, sources: tuple[str, ...] | None = None) -> list[AssignedCode]:
+    """The codes a coder holds on one verbatim (optionally only some sources), by number."""
+    rows = astore.codes_of_verbatim(study, verbatim_id, coder)
+    return [AssignedCode(int(n), s, c) for n, s, c in rows if sources is None or s in sources]
+
+
+def set_codes(study: Study, verbatim_id: int, numbers: list[int], coder: str) -> bool:
+    """Make the coder's hand codes on a verbatim exactly `numbers` in one undoable step; True if changed."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        wanted = {int(n): _resolve(study, verbatim_id, n) for n in numbers}
+        held = {a.number: a for a in codes_of(study, verbatim_id, coder)}
+        change = Change(study)
+        for number, code in held.items():
+            if number not in wanted and code.source == "hand":
+                change.remove_assignment(verbatim_id, _resolve(study, verbatim_id, number, False), coder)
+        for number, code_id in wanted.items():
+            if number not in held or held[number].source != "hand":
+                change.put_assignment({"verbatim_id": verbatim_id, "code_id": code_id, "coder": coder,
+                                       "source": "hand", "confidence": None, "created_at": now()})
+        return change.commit(coder, "assign", "verbatim", verbatim_id, numbers=sorted(wanted)) is not None
+
+
+def mark_done(study: Study, verbatim_id: int, coder: str, done: bool = True) -> bool:
+    """Mark a verbatim finished for a coder (even with no code), or clear the mark; True if changed."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        if astore.verbatim_question(study, verbatim_id) is None:
+            raise OpenCodeError(f"verbatim {verbatim_id}: no such verbatim in {study.path.name}")
+        change = Change(study)
+        change.set_mark(verbatim_id, coder, now() if done else None)
+        return change.commit(coder, "mark" if done else "unmark", "verbatim", verbatim_id) is not None
+
+
+def is_done(study: Study, verbatim_id: int, coder: str) -> bool:
+    """Whether the coder marked the verbatim done."""
+    return astore.get_mark(study, verbatim_id, coder) is not None
+
+
+def set_note(study: Study, verbatim_id: int, coder: str, text: str | None) -> bool:
+    """Set a coder's note on a verbatim (empty or None clears it); True if changed."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        if astore.verbatim_question(study, verbatim_id) is None:
+            raise OpenCodeError(f"verbatim {verbatim_id}: no such verbatim in {study.path.name}")
+        change = Change(study)
+        change.set_note(verbatim_id, coder, text or None, now())
+        return change.commit(coder, "note", "verbatim", verbatim_id) is not None
+
+
+def note_of(study: Study, verbatim_id: int, coder: str) -> str | None:
+    """A coder's note on a verbatim, or None."""
+    return astore.get_note(study, verbatim_id, coder)
+
+
+def code_counts(study: Study, question: str, coder: str, sources: tuple[str, ...] = ("hand",)) -> dict[int, int]:
+    """Code number -> number of the question's verbatims the coder gave it (hand codes unless told)."""
+    return astore.code_counts(study, survey_data.get_question(study, question).id, coder, sources)
+
+
+def uncoded_ids(study: Study, question: str, coder: str, after: int | None = None, limit: int | None = None,
+                include_nonanswers: bool = True) -> list[int]:
+    """Ids of verbatims the coder has not coded (no hand code, not marked done), ascending from `after`."""
+    question_id = survey_data.get_question(study, question).id
+    return astore.uncoded_ids(study, question_id, coder, after, limit, include_nonanswers)
+
+
+def assignments(study: Study, question: str, coders: list[str] | None = None,
+                sources: tuple[str, ...] | None = None):
+    """A question's assignments as a DataFrame: verbatim_id, number, coder, source, confidence, created_at."""
+    return astore.assignments_table(study, survey_data.get_question(study, question).id, coders, sources)

@@ -1,0 +1,176 @@
+"""Phrases: merge user phrases into one term (longest match first) and suggest new ones.
+
+Suggestions rank adjacent word pairs by Dunning's (1993) log-likelihood ratio G2, with pointwise
+mutual information as a second view and a minimum count.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+from scipy.special import xlogy
+
+if TYPE_CHECKING:
+    from opencode.text.analyzer import Analyzer, Progress
+
+_GONE = 6  # analyzer.K_GONE (kept here to avoid an import cycle)
+_TERM = 3  # analyzer.K_TERM
+
+
+class PhraseMatcher:
+    """Finds user phrases in arrays of term key ids; longer phrases win, then the leftmost."""
+
+    def __init__(self, table: dict[tuple[int, ...], int]) -> None:
+        self.table = table
+        self.lengths = sorted({len(ids) for ids in table}, reverse=True)
+        first = {ids[0] for ids in table}
+        self._first = np.array(sorted(first), dtype=np.int64)
+
+    def find(self, key: np.ndarray) -> list[tuple[int, int, int]]:
+        """Every (start, length, phrase key id) occurrence, overlapping ones included."""
+        if not self.table:
+            return []
+        n = len(key)
+        cand = np.flatnonzero(np.isin(key, self._first))
+        found: list[tuple[np.ndarray, int, int]] = []
+        for ids, pid in self.table.items():
+            length = len(ids)
+            starts = cand[(key[cand] == ids[0]) & (cand <= n - length)]
+            for j in range(1, length):
+                starts = starts[key[starts + j] == ids[j]]
+            if len(starts):
+                found.append((starts, length, pid))
+        return [(int(s), length, pid) for starts, length, pid in found for s in starts]
+
+    def resolve(self, matches: list[tuple[int, int, int]]) -> list[tuple[int, int, int]]:
+        """Non-overlapping matches: longest first, then leftmost."""
+        matches = sorted(matches, key=lambda m: (-m[1], m[0]))
+        by_start = sorted(matches)
+        overlapping = any(b[0] < a[0] + a[1] for a, b in zip(by_start, by_start[1:]))
+        if not overlapping:
+            return matches
+        taken: set[int] = set()
+        kept = []
+        for start, length, pid in matches:
+            span = range(start, start + length)
+            if taken.isdisjoint(span):
+                taken.update(span)
+                kept.append((start, length, pid))
+        return kept
+
+    def apply(self, kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int, int]:
+        """Merge matched phrases in place (first position becomes the phrase term, the rest are gone)."""
+        matches = self.resolve(self.find(key))
+        hits: dict[int, int] = {}
+        names = analyzer.surface_names_
+        for start, length, pid in matches:
+            form = " ".join(names[s] for s in surf[start:start + length])
+            surf[start] = analyzer._surface_id(form)
+            key[start] = pid
+            kind[start] = _TERM
+            kind[start + 1:start + length] = _GONE
+            hits[pid] = hits.get(pid, 0) + 1
+        return hits
+
+
+def dunning_g2(o11: np.ndarray, o12: np.ndarray, o21: np.ndarray, o22: np.ndarray) -> np.ndarray:
+    """Dunning's log-likelihood ratio G2 = 2 sum O ln(O/E) for 2x2 tables given cell by cell."""
+    o = np.stack([np.asarray(x, dtype=float) for x in (o11, o12, o21, o22)])
+    n = o.sum(axis=0)
+    rows = np.stack([o[0] + o[1], o[0] + o[1], o[2] + o[3], o[2] + o[3]])
+    cols = np.stack([o[0] + o[2], o[1] + o[3], o[0] + o[2], o[1] + o[3]])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        expected = rows * cols / n
+        terms = xlogy(o, o) - xlogy(o, expected)
+    return 2.0 * terms.sum(axis=0)
+
+
+def pmi(o11: np.ndarray, first: np.ndarray, second: np.ndarray, n: float) -> np.ndarray:
+    """Pointwise mutual information log2(P(ab) / (P(a) P(b))) from counts."""
+    return np.log2(np.asarray(o11, float) * n / (np.asarray(first, float) * np.asarray(second, float)))
+
+
+@dataclass
+class PhraseSuggestion:
+    """A candidate phrase: the pair of words, how often it occurs, G2 and PMI."""
+
+    phrase: str
+    terms: tuple[str, str]
+    count: int
+    g2: float
+    pmi: float
+
+
+def suggest_phrases(
+    texts: Sequence[str],
+    analyzer: Analyzer,
+    *,
+    exclude: Sequence[bool] | np.ndarray | None = None,
+    min_count: int = 5,
+    top: int = 50,
+    progress: Progress = None,
+) -> list[PhraseSuggestion]:
+    """Adjacent content-word pairs ranked by G2 (pairs under min_count left out)."""
+    from opencode.text.analyzer import batches
+    from opencode.text.matrix import check_corpus
+
+    texts = [t for t, gone in zip(texts, check_corpus(texts, exclude)) if not gone]
+    pair_keys: list[np.ndarray] = []
+    uni_keys: list[np.ndarray] = []
+    uni_surf: list[np.ndarray] = []
+    for _, batch in batches(texts, progress):
+        kind, key, surf, _ = analyzer.stream_chunk(batch)
+        content = kind == _TERM
+        both = content[:-1] & content[1:]
+        pair_keys.append(np.stack([key[:-1][both], key[1:][both]], axis=1))
+        uni_keys.append(key[content])
+        uni_surf.append(surf[content])
+    pairs = np.concatenate(pair_keys) if pair_keys else np.zeros((0, 2), np.int64)
+    if len(pairs) == 0:
+        return []
+    uniq, counts = np.unique(pairs, axis=0, return_counts=True)
+    n = float(len(pairs))
+    first = np.bincount(pairs[:, 0], minlength=len(analyzer.key_names_))
+    second = np.bincount(pairs[:, 1], minlength=len(analyzer.key_names_))
+    keep = counts >= min_count
+    uniq, counts = uniq[keep], counts[keep]
+    a, b = first[uniq[:, 0]], second[uniq[:, 1]]
+    g2 = dunning_g2(counts, a - counts, b - counts, n - a - b + counts)
+    scores = pmi(counts, a, b, n)
+    labels = _labels(np.concatenate(uni_keys), np.concatenate(uni_surf), analyzer)
+    order = np.lexsort((-scores, -g2))[:top]
+    names = analyzer.key_names_
+    return [
+        PhraseSuggestion(
+            phrase=f"{labels.get(int(uniq[i, 0]), names[uniq[i, 0]])} {labels.get(int(uniq[i, 1]), names[uniq[i, 1]])}",
+            terms=(names[uniq[i, 0]], names[uniq[i, 1]]),
+            count=int(counts[i]),
+            g2=float(g2[i]),
+            pmi=float(scores[i]),
+        )
+        for i in order
+    ]
+
+
+def _labels(keys: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int, str]:
+    """Most frequent surface form of each term key id."""
+    pairs, counts = np.unique(np.stack([keys, surf], axis=1), axis=0, return_counts=True)
+    order = np.lexsort((-counts, pairs[:, 0]))
+    pairs = pairs[order]
+    first = np.ones(len(pairs), bool)
+    first[1:] = pairs[1:, 0] != pairs[:-1, 0]
+    return {int(k): analyzer.surface_names_[s] for k, s in pairs[first]}
+
+
+def format_phrase_suggestions(rows: Sequence[PhraseSuggestion]) -> str:
+    """An aligned text table of phrase suggestions."""
+    from opencode.text.tables import format_table
+
+    return format_table(
+        ["phrase", "count", "G2", "PMI"],
+        [[r.phrase, r.count, f"{r.g2:.1f}", f"{r.pmi:.2f}"] for r in rows],
+        align="lrrr",
+    )

@@ -1,0 +1,157 @@
+"""Split normalised text into raw tokens and classify each distinct token once.
+
+The corpus is processed in chunks: documents are joined with a separator character, normalised
+(NFKC, case folding) and tokenized in one pass, so the per-document Python work stays small.
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from collections.abc import Sequence
+
+import numpy as np
+
+DOC_SEP = "\x01"
+
+URL_PLACEHOLDER = "_url_"
+EMAIL_PLACEHOLDER = "_email_"
+NUMBER_PLACEHOLDER = "_num_"
+PLACEHOLDERS = frozenset({URL_PLACEHOLDER, EMAIL_PLACEHOLDER, NUMBER_PLACEHOLDER})
+
+# Kinds of raw token, decided once per distinct token.
+SEP, BOUND, DROP, WORD, NUM, EMOJI, PLACEHOLDER = range(7)
+
+_EMOJI_CHARS = "\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF"
+_URL = r"(?:https?://|www\.)[^\s<>\"'\x01]+"
+_EMAIL = r"[\w.+\-]+@[\w\-]+(?:\.[\w\-]+)+"
+_CORE = (
+    r"\x01|\d+(?:[.,:/]\d+)+|[\w'’\-]+|[.!?;:,]+|[" + _EMOJI_CHARS + r"][" + _EMOJI_CHARS + "\uFE0F\u200D]*"
+)
+TOKEN_RE = re.compile(_CORE)
+TOKEN_WITH_LINKS_RE = re.compile(_URL + "|" + _EMAIL + "|" + _CORE)
+URL_RE = re.compile(_URL)
+EMAIL_RE = re.compile(_EMAIL)
+_NUMBER_RE = re.compile(r"\d+(?:[.,:/]\d+)*(?:st|nd|rd|th|am|pm|s|k)?")
+_TRAILING_URL_PUNCT = ".,!?;:)]}"
+
+# Negation words (common practice, no published source; the set follows the negation cues of
+# Das & Chen 2001 and Pang, Lee & Vaithyanathan 2002 plus contractions typed without apostrophes).
+NEGATIONS = frozenset(
+    {"not", "no", "never", "nor", "cannot", "neither", "without", "nothing", "none", "nobody", "nowhere"}
+    | {
+        w + "nt"
+        for w in ("do", "does", "did", "is", "are", "was", "were", "have", "has", "had", "could", "would",
+                  "should", "ca", "wo", "must", "need", "might", "ai")
+    }
+    - {"wont", "cant"}
+)
+
+
+def is_negation(token: str) -> bool:
+    """True for a negation cue: a listed word or any contraction ending in n't."""
+    return token in NEGATIONS or token.endswith("n't")
+
+
+def negation_prefix(token: str) -> str:
+    """The prefix a joined negation takes: contractions and 'cannot' become 'not', others stay."""
+    if token.endswith("n't") or token.endswith("nt") or token == "cannot":
+        return "not"
+    return token
+
+
+def normalise(text: str) -> str:
+    """NFKC-normalise (only when non-ASCII) and case-fold a text."""
+    if not text.isascii():
+        text = unicodedata.normalize("NFKC", text)
+    return text.casefold()
+
+
+def join_chunk(texts: Sequence[str]) -> str:
+    """Join documents with the separator, removing any separator characters inside them."""
+    joined = DOC_SEP.join(texts)
+    if joined.count(DOC_SEP) != max(len(texts) - 1, 0):
+        joined = DOC_SEP.join(t.replace(DOC_SEP, " ") for t in texts)
+    return joined
+
+
+def _spans(text: str, pattern: re.Pattern[str], marker: str) -> list[tuple[int, int]]:
+    """Start/end of every match of a link pattern (URL or email), trailing punctuation trimmed."""
+    if marker not in text:
+        return []
+    spans = []
+    for m in pattern.finditer(text):
+        end = m.end()
+        while end > m.start() and text[end - 1] in _TRAILING_URL_PUNCT:
+            end -= 1
+        spans.append((m.start(), end))
+    return spans
+
+
+def replace_links(text: str, urls: str, emails: str) -> str:
+    """Replace URLs / emails by their placeholder token (or a space when dropped)."""
+    pieces: list[tuple[int, int, str]] = []
+    for option, pattern, marker, placeholder in (
+        (urls, URL_RE, "://", URL_PLACEHOLDER),
+        (urls, URL_RE, "www.", URL_PLACEHOLDER),
+        (emails, EMAIL_RE, "@", EMAIL_PLACEHOLDER),
+    ):
+        if option == "keep":
+            continue
+        replacement = f" {placeholder} " if option == "placeholder" else " "
+        pieces.extend((s, e, replacement) for s, e in _spans(text, pattern, marker))
+    if not pieces:
+        return text
+    pieces.sort()
+    out, pos = [], 0
+    for start, end, replacement in pieces:
+        if start < pos:
+            continue
+        out.append(text[pos:start])
+        out.append(replacement)
+        pos = end
+    out.append(text[pos:])
+    return "".join(out)
+
+
+def tokenize_chunk(texts: Sequence[str], urls: str, emails: str, vocab: dict[str, int]) -> np.ndarray:
+    """Raw token ids (into `vocab`, grown in place) for a chunk of documents, separators included."""
+    text = replace_links(normalise(join_chunk(texts)), urls, emails)
+    pattern = TOKEN_WITH_LINKS_RE if "keep" in (urls, emails) else TOKEN_RE
+    tokens = pattern.findall(text)
+    setdefault = vocab.setdefault
+    return np.fromiter((setdefault(t, len(vocab)) for t in tokens), dtype=np.int64, count=len(tokens))
+
+
+def classify(token: str) -> tuple[int, str]:
+    """The kind of a raw token and its cleaned form (apostrophes unified, edge punctuation stripped)."""
+    if token == DOC_SEP:
+        return SEP, token
+    first = token[0]
+    if first in ".!?;:,":
+        return BOUND, token
+    if "://" in token or token.startswith("www."):
+        return PLACEHOLDER, token
+    if "@" in token:
+        return PLACEHOLDER, token
+    if "\u2600" <= first <= "\u2BFF" or first >= "\U0001F000":
+        return EMOJI, _first_emoji(token)
+    form = token.replace("’", "'").strip("'-")
+    if not form:
+        return DROP, form
+    if form in PLACEHOLDERS:
+        return PLACEHOLDER, form
+    if _NUMBER_RE.fullmatch(form):
+        return NUM, form
+    return WORD, form
+
+
+def _first_emoji(token: str) -> str:
+    """A run of emoji reduced to its first pictograph (with its modifiers), so repeats count once."""
+    out = [token[0]]
+    for ch in token[1:]:
+        if ch in "\uFE0F\u200D" or "\U0001F3FB" <= ch <= "\U0001F3FF" or out[-1] == "\u200D":
+            out.append(ch)
+        else:
+            break
+    return "".join(out).rstrip("\u200D")
