@@ -22,6 +22,17 @@ from opencode.export.spss_stata import write_sav
 TARGET_SECONDS = 10.0
 N_CODES = 50
 N_NETS = 5
+REPEATS = 3
+
+
+def best_of(repeats: int, action) -> float:
+    """Fastest of several runs, in seconds (the machine may be busy with other work)."""
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        action()
+        times.append(time.perf_counter() - start)
+    return min(times)
 
 
 def synthetic_dataset(n: int, seed: int = 0) -> CodedDataset:
@@ -51,19 +62,16 @@ def main() -> None:
     plain = pd.concat([plain, pd.DataFrame(rng.integers(0, 2, size=(n, n_indicators)).astype(np.int8),
                                            columns=[f"why_c{i}" for i in range(n_indicators)])], axis=1)
     with tempfile.TemporaryDirectory() as folder:
-        start = time.perf_counter()
-        pyreadstat.write_sav(plain, str(Path(folder) / "plain.sav"))
-        reference = time.perf_counter() - start
-        start = time.perf_counter()
-        write_sav(ds, Path(folder) / "coded.sav")
-        measured = time.perf_counter() - start
+        pyreadstat.write_sav(plain.head(10), str(Path(folder) / "warm-up.sav"))  # first-call imports off the clock
+        reference = best_of(REPEATS, lambda: pyreadstat.write_sav(plain, str(Path(folder) / "plain.sav")))
+        measured = best_of(REPEATS, lambda: write_sav(ds, Path(folder) / "coded.sav"))
         written, _ = pyreadstat.read_sav(str(Path(folder) / "coded.sav"), metadataonly=True)
         assert len(written.columns) == plain.shape[1], "column count differs from the reference"
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     verdict = "PASS" if measured <= TARGET_SECONDS else "FAIL"
     print(f"respondents: {n:,}  codes: {N_CODES} + {N_NETS} nets  columns: {plain.shape[1]}")
-    print(f"opencode write_sav (labels, value labels, missing, frame CSV): {measured:.2f} s")
-    print(f"reference bare pyreadstat.write_sav (no labels):               {reference:.2f} s")
+    print(f"opencode write_sav (labels, value labels, missing, frame CSV): {measured:.2f} s (best of {REPEATS})")
+    print(f"reference bare pyreadstat.write_sav (no labels):               {reference:.2f} s (best of {REPEATS})")
     print(f"ratio: {measured / reference:.2f}x   target: <= {TARGET_SECONDS:.0f} s   peak RSS: {peak_mb:.0f} MB   {verdict}")
 
 

@@ -120,7 +120,8 @@ class QuestionSpec:
 
 FRAME_WHY = (
     Code(90, "Concerns about the proposal", kind="net", description="Any reason for doubting or opposing the plan."),
-    Code(91, "Safety and order", kind="net", net=90, description="Worries about what happens in an unstaffed building."),
+    Code(91, "Safety and order", kind="net", net=90,
+         description="Worries about what happens in an unstaffed building."),
     Code(1, "Not safe without staff", "s", 91,
          "Personal safety in the building once staff leave.",
          "feeling unsafe; nobody to call for help; lone users at night; vulnerable people unsupervised",
@@ -146,7 +147,8 @@ FRAME_WHY = (
          "help finding books; help with computers; a friendly face",
          "jobs being cut (code 2)"),
     Code(92, "Benefits of the proposal", kind="net", description="Any reason for welcoming the plan."),
-    Code(93, "Access for working people", kind="net", net=92, description="Being able to get there outside the working day."),
+    Code(93, "Access for working people", kind="net", net=92,
+         description="Being able to get there outside the working day."),
     Code(7, "Convenient after work", "w", 93,
          "Can visit after a usual working day or commute.",
          "closed by the time I get home; pop in on the way back",
@@ -198,7 +200,8 @@ FRAME_IMPROVE = (
     Code(7, "Toilets and cleanliness", "t", 92,
          "Toilets available and the building kept clean.", "baby changing; clean toilets", ""),
     Code(8, "Comfort: seating, heating, light", "m", 92,
-         "Comfortable chairs, warmth, better lighting inside.", "sofas; too cold; dim lighting", "outside lighting for safety (code 13)"),
+         "Comfortable chairs, warmth, better lighting inside.", "sofas; too cold; dim lighting",
+         "outside lighting for safety (code 13)"),
     Code(93, "Stock and activities", kind="net", description="What you can borrow and what goes on there."),
     Code(9, "More and newer books", "b", 93,
          "A wider or newer range of books and other stock.", "new releases; ebooks; large print; other languages", ""),
@@ -211,7 +214,8 @@ FRAME_IMPROVE = (
     Code(12, "Parking and getting there", "p", None,
          "Parking, buses, bike racks, step-free access.", "car park; bus route; ramp", ""),
     Code(13, "Safety and security", "g", None,
-         "Cameras, security staff, lighting outside, safe entry.", "CCTV; guard; lit path", "staff numbers in general (code 3)"),
+         "Cameras, security staff, lighting outside, safe entry.", "CCTV; guard; lit path",
+         "staff numbers in general (code 3)"),
     Code(14, "Nothing, fine as it is", "z", None,
          "Respondent is happy and would change nothing.", "nothing really, it's great; keep it as it is", ""),
     Code(97, "Other change", "o", None, "A change not covered by another code.", "", "", "other"),
@@ -641,6 +645,7 @@ FILLERS_IMPROVE = (
     "Honestly it's one of the few free places left to go.",
 )
 LEANING_WHY = {c: "oppose" for c in (1, 2, 3, 4, 5, 6)} | {c: "support" for c in (7, 8, 9, 10, 11)}
+VARIANTS_BOTH_WAYS = VARIANTS + tuple((b, a) for a, b in VARIANTS)
 EMOJI = ("👍", "😡", "📚", "🙂", "😬", "🤷", "👎", "❤️", "😂", "🙏")
 SHOUT_TAILS = ("!!!", "!!", "...", "??", "!!!!", "?!")
 MISSPELL = {
@@ -924,7 +929,7 @@ class Writer:
 
     def vary(self, text: str) -> str:
         """Swap one everyday wording for an equivalent (contractions, '&', 'cos'), so answers repeat less."""
-        pairs = [(a, b) for a, b in VARIANTS if _has_phrase(text, a)] + [(b, a) for a, b in VARIANTS if _has_phrase(text, b)]
+        pairs = [(a, b) for a, b in VARIANTS_BOTH_WAYS if _has_phrase(text, a)]
         if not pairs:
             return text
         old, new = self.pick(pairs)

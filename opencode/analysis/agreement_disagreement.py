@@ -6,6 +6,7 @@ from dataclasses import dataclass
 from itertools import combinations
 
 import numpy as np
+import scipy.sparse as sp
 
 from opencode.analysis.agreement_matrix import CodingMatrix
 from opencode.analysis.agreement_stats import cohen_kappa_table
@@ -86,9 +87,9 @@ def confusion_counts(matrix: CodingMatrix) -> np.ndarray:
     for i, j in _pair_indices(matrix):
         both = (matrix.coded[:, i] & matrix.coded[:, j])[:, None]
         x, y = matrix.present[:, i, :], matrix.present[:, j, :]
-        only_x = (x & ~y & both).astype(np.float64)
-        only_y = (y & ~x & both).astype(np.float64)
-        swapped = np.rint(only_x.T @ only_y).astype(np.int64)
+        only_x = sp.csc_matrix(x & ~y & both, dtype=np.int64)
+        only_y = sp.csc_matrix(y & ~x & both, dtype=np.int64)
+        swapped = (only_x.T @ only_y).toarray()
         counts += swapped + swapped.T
     return counts
 

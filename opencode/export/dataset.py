@@ -233,10 +233,12 @@ def question_codes(ds: CodedDataset, q: CodedQuestion) -> QuestionCodes:
     except (TypeError, ValueError, OverflowError):
         raise OpenCodeError(f"export: question {q.name!r}: codes must be whole numbers") from None
     rows = np.repeat(np.arange(len(row_codes)), lengths)
-    by_row = np.lexsort((assigned, rows))
-    rows, assigned = rows[by_row], assigned[by_row]
-    distinct = np.ones(len(rows), dtype=bool)
-    distinct[1:] = (rows[1:] != rows[:-1]) | (assigned[1:] != assigned[:-1])
+    span = int(assigned.max()) - int(assigned.min()) + 1 if len(assigned) else 1
+    key = rows * span + (assigned - (assigned.min() if len(assigned) else 0))
+    by_row = np.argsort(key, kind="stable")
+    key, rows, assigned = key[by_row], rows[by_row], assigned[by_row]
+    distinct = np.ones(len(key), dtype=bool)
+    distinct[1:] = key[1:] != key[:-1]
     rows, assigned = rows[distinct], assigned[distinct]
     order = np.argsort(frame_codes)
     pos = np.searchsorted(frame_codes[order], assigned)
@@ -252,8 +254,10 @@ def question_codes(ds: CodedDataset, q: CodedQuestion) -> QuestionCodes:
     direct = np.zeros((len(row_codes), len(frame_codes)), dtype=bool)
     direct[rows, columns] = True
     closure = _net_closure(q.frame, frame_codes)
-    indicators = (direct.astype(np.float32) @ closure.astype(np.float32)) > 0  # float: BLAS speed
-    return QuestionCodes(q, frame_codes, indicators.astype(np.int8), rows, assigned)
+    indicators = direct.view(np.int8).copy()
+    for net in np.flatnonzero(closure.sum(axis=0) > 1):
+        indicators[:, net] = direct[:, closure[:, net]].any(axis=1)
+    return QuestionCodes(q, frame_codes, indicators, rows, assigned)
 
 
 def category_matrix(qc: QuestionCodes, n_rows: int) -> np.ndarray:

@@ -26,6 +26,13 @@ def check_writable_target(path: str | os.PathLike) -> Path:
     return target
 
 
+def normal_file_mode() -> int:
+    """The permissions a plain new file gets under the current umask (temporary files start at 0600)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 @contextlib.contextmanager
 def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[Path]:
     """Yield a temporary path beside `path`; on success rename it over `path`, on error remove it.
@@ -36,6 +43,7 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=suffix or target.suffix or ".tmp", dir=target.parent or ".")
     os.close(fd)
     tmp_path = Path(tmp)
+    os.chmod(tmp_path, normal_file_mode())  # mkstemp makes 0600; a finished file gets normal permissions
     try:
         yield tmp_path
         os.replace(tmp_path, target)

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
+from opencode.export.safe_write import normal_file_mode
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
@@ -185,6 +186,7 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
     fd, temp_name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".study", dir=target.parent)
     os.close(fd)
     temp = Path(temp_name)
+    os.chmod(temp, normal_file_mode())
     try:
         study = Study.create(temp, overwrite=True)
         try:

@@ -24,14 +24,13 @@ def join_negations(kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer
     if len(neg_pos) == 0:
         return
     term_pos = np.flatnonzero(kind == _TERM)
-    stops = np.flatnonzero((kind == _SEP) | (kind == _BOUND))
+    stops = np.append(np.flatnonzero((kind == _SEP) | (kind == _BOUND)), len(kind))
     nxt = np.searchsorted(term_pos, neg_pos, side="right")
     has_term = nxt < len(term_pos)
     neg_pos, nxt = neg_pos[has_term], nxt[has_term]
     target = term_pos[nxt]
     nb = np.searchsorted(stops, neg_pos, side="right")
-    clause_end = np.where(nb < len(stops), stops[np.minimum(nb, len(stops) - 1)], len(kind))
-    ok = target < clause_end
+    ok = target < stops[nb]
     neg_pos, target = neg_pos[ok], target[ok]
     if len(neg_pos) == 0:
         return
