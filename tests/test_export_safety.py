@@ -85,7 +85,7 @@ def test_csv_failure_mid_write_leaves_no_partial(tmp_path, monkeypatch):
             raise RuntimeError("guard failed")
         return value
 
-    monkeypatch.setattr("opencode.export.tabular._guard_cell", broken)
+    monkeypatch.setattr("opencode.export.tabular.guard_cell", broken)
     with pytest.raises(RuntimeError):
         write_csv(small_dataset(), tmp_path / "out.csv", verbatims="raw")
     assert list(tmp_path.iterdir()) == []

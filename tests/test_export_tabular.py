@@ -56,7 +56,7 @@ def test_csv_injection_strings_are_inert(tmp_path):
 
 
 def test_xlsx_sheets_values_and_inert_text(tmp_path):
-    path = write_xlsx(_injection_dataset(), tmp_path / "inj.xlsx", verbatims="raw")
+    [path] = write_xlsx(_injection_dataset(), tmp_path / "inj.xlsx", verbatims="raw")
     book = openpyxl.load_workbook(path)
     assert book.sheetnames == ["data", "frame", "variables"]
     data = book["data"]
@@ -78,7 +78,7 @@ def test_xlsx_sheets_values_and_inert_text(tmp_path):
 
 
 def test_xlsx_numbers_and_missing_cells(tmp_path):
-    path = write_xlsx(small_dataset(), tmp_path / "w.xlsx", category_columns=True)
+    [path] = write_xlsx(small_dataset(), tmp_path / "w.xlsx", category_columns=True)
     sheet = openpyxl.load_workbook(path)["data"]
     header = [c.value for c in sheet[1]]
     row = dict(zip(header, [c.value for c in sheet[6]]))  # respondent 105: support missing

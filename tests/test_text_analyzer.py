@@ -78,3 +78,9 @@ def test_params_round_trip_through_json_and_lexicon():
     assert a.tokens(text) == b.tokens(text) == ["librari", "opening_hours", "not_good"]
     with pytest.raises(OpenCodeError, match="unknown parameter"):
         Analyzer.from_dict({"colour": 1})
+
+
+def test_overlapping_matches_of_one_phrase_taken_left_to_right():
+    a = Analyzer(phrases=["very very", "very very very good"], stemmer=None, stop_words=False)
+    assert a.tokens("very very very") == ["very_very", "very"]
+    assert a.tokens("very very very very good") == ["very", "very_very_very_good"]

@@ -36,9 +36,15 @@ def test_suggestions_find_planted_pair_and_skip_existing_phrases():
     texts = ["the opening hours are short", "longer opening hours please", "opening hours again",
              "books and hours", "more books", "parking space", "parking is hard", "opening times"] * 3
     rows = suggest_phrases(texts, Analyzer(), min_count=3)
-    assert rows[0].phrase == "opening hours" and rows[0].count == 9
+    found = {r.phrase: r for r in rows}
+    assert found["opening hours"].count == 9
     assert all(r.count >= 3 for r in rows)
+    assert [r.g2 for r in rows] == sorted((r.g2 for r in rows), reverse=True)
+    # The G2 of the planted pair equals scipy's on the hand-built 2x2 table of adjacent content pairs:
+    # opening-hours x9, longer-opening x3, hours-please x3, parking-space x3, opening-times x3 -> N = 21.
+    ref = chi2_contingency([[9, 3], [0, 9]], correction=False, lambda_="log-likelihood")[0]
+    assert found["opening hours"].g2 == pytest.approx(ref)
     table = format_phrase_suggestions(rows)
-    assert "opening hours" in table.splitlines()[2]
+    assert "opening hours" in table and table.splitlines()[0].split() == ["phrase", "count", "G2", "PMI"]
     known = suggest_phrases(texts, Analyzer(phrases=["opening hours"]), min_count=3)
     assert all(r.phrase != "opening hours" for r in known)

@@ -11,10 +11,14 @@ numbers (the csv reading of <position> and the <size> element are from memory).
 
 import csv
 import datetime as dt
+import tempfile
 import xml.etree.ElementTree as ET
+from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import ClosedVariable, CodedDataset, CodedQuestion, FrameCode, build_table
@@ -160,3 +164,21 @@ def test_bad_options_and_bad_files(tmp_path):
     data.unlink()
     with pytest.raises(OpenCodeError, match="cannot read Triple-S data"):
         read_triple_s(meta)
+
+
+@settings(max_examples=30, deadline=None)
+@given(
+    frame_codes=st.sets(st.integers(1, 40), min_size=1, max_size=8),
+    data=st.data(),
+    data_format=st.sampled_from(["fixed", "csv"]),
+    multiple=st.sampled_from(["bitstring", "spread"]),
+)
+def test_any_coding_survives_the_round_trip(frame_codes, data, data_format, multiple):
+    codes = sorted(frame_codes)
+    frame = [FrameCode(c, f"code {c}") for c in codes]
+    rows = data.draw(st.lists(st.sets(st.sampled_from(codes)), min_size=1, max_size=12))
+    ds = CodedDataset(list(range(1, len(rows) + 1)), [CodedQuestion("q", "Q", frame, rows)])
+    with tempfile.TemporaryDirectory() as folder:
+        meta, _ = write_triple_s(ds, Path(folder) / "p.sss", data_format=data_format, multiple=multiple, timestamp=WHEN)
+        back = read_triple_s(meta)
+    assert back.data["q"].tolist() == [frozenset(r) for r in rows]

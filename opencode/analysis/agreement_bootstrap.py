@@ -7,8 +7,15 @@ from collections.abc import Iterator, Sequence
 
 import numpy as np
 import scipy.sparse as sp
+from threadpoolctl import threadpool_limits
 
 CHUNK = 64  # resamples per block; fixed so that a seed gives the same draws whatever the data size
+
+
+def one_blas_thread():
+    """Context: run BLAS on one thread. These thin products are memory-bound, and threaded BLAS can slow
+    them a hundredfold when the cores are busy (measured in bench/bench_agreement.py)."""
+    return threadpool_limits(limits=1, user_api="blas")
 
 
 def resample_weights(n_units: int, n_resamples: int, random_state: int | None) -> Iterator[np.ndarray]:
@@ -28,12 +35,13 @@ def bootstrap_totals(columns: Sequence, n_resamples: int, random_state: int | No
     """
     n_units = columns[0].shape[0]
     out: list[list[np.ndarray]] = [[] for _ in columns]
-    for weights in resample_weights(n_units, n_resamples, random_state):
-        for store, matrix in zip(out, columns):
-            if sp.issparse(matrix):
-                store.append(np.asarray((matrix.T @ weights.T).T, dtype=np.float64))
-            else:
-                store.append((weights @ matrix).astype(np.float64))
+    with one_blas_thread():
+        for weights in resample_weights(n_units, n_resamples, random_state):
+            for store, matrix in zip(out, columns):
+                if sp.issparse(matrix):
+                    store.append(np.asarray((matrix.T @ weights.T).T, dtype=np.float64))
+                else:
+                    store.append((weights @ matrix).astype(np.float64))
     return [np.vstack(parts) for parts in out]
 
 

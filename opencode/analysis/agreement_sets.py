@@ -12,6 +12,7 @@ from itertools import combinations
 import numpy as np
 import scipy.sparse as sp
 
+from opencode.analysis.agreement_bootstrap import one_blas_thread
 from opencode.analysis.agreement_matrix import CodingMatrix
 from opencode.errors import OpenCodeError
 
@@ -109,13 +110,14 @@ class SetAlphaParts:
         side = int(sizes.max()) + 1
         tables = {kind: distance_lookup(side - 1, kind).astype(dtype).ravel() for kind in self.unit_disagreement}
         totals = {kind: np.zeros(n.shape[0]) for kind in tables}
-        for start in range(0, self.n_sets, _ROW_BLOCK):
-            rows = slice(start, start + _ROW_BLOCK)
-            inter = np.rint(v[rows] @ v.T).astype(np.int32)
-            index = inter * (side * side) + (sizes[rows, None] * side + sizes[None, :])
-            for kind, table in tables.items():
-                block = table[index]
-                totals[kind] += ((n @ block.T) * n[:, rows]).sum(axis=1, dtype=np.float64)
+        with one_blas_thread():
+            for start in range(0, self.n_sets, _ROW_BLOCK):
+                rows = slice(start, start + _ROW_BLOCK)
+                inter = np.rint(v[rows] @ v.T).astype(np.int32)
+                index = inter * (side * side) + (sizes[rows, None] * side + sizes[None, :])
+                for kind, table in tables.items():
+                    block = table[index]
+                    totals[kind] += ((n @ block.T) * n[:, rows]).sum(axis=1, dtype=np.float64)
         return {kind: t if np.ndim(n_c) == 2 else t[0] for kind, t in totals.items()}
 
     def alphas(self) -> dict[str, float]:

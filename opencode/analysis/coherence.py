@@ -30,8 +30,7 @@ def _document_counts(counts, top: np.ndarray) -> tuple[np.ndarray, np.ndarray, i
     """Document frequencies (themes x N) and co-document frequencies (themes x N x N) of the top terms."""
     top = np.asarray(top)
     columns, inverse = np.unique(top, return_inverse=True)
-    occurs = sp.csc_matrix(counts)[:, columns]
-    occurs = (occurs > 0).astype(np.float64)
+    occurs = (sp.csr_matrix(counts)[:, columns] > 0).astype(np.float64)
     joint = np.asarray((occurs.T @ occurs).todense())
     local = inverse.reshape(top.shape)
     doc_freq = np.diag(joint)[local]
@@ -39,27 +38,36 @@ def _document_counts(counts, top: np.ndarray) -> tuple[np.ndarray, np.ndarray, i
     return doc_freq, co_freq, counts.shape[0]
 
 
-def umass_coherence(counts, top: np.ndarray) -> np.ndarray:
-    """UMass coherence of each theme's ordered top terms (mean over term pairs), one value per theme."""
-    doc_freq, co_freq, _ = _document_counts(counts, top)
-    n = doc_freq.shape[1]
-    m_idx, l_idx = np.tril_indices(n, k=-1)
-    pair_co = co_freq[:, m_idx, l_idx]
+def _umass(doc_freq: np.ndarray, co_freq: np.ndarray) -> np.ndarray:
+    """UMass per theme from document and co-document frequencies."""
+    m_idx, l_idx = np.tril_indices(doc_freq.shape[1], k=-1)
     earlier = np.maximum(doc_freq[:, l_idx], 1.0)
-    return np.log((pair_co + 1.0) / earlier).mean(axis=1)
+    return np.log((co_freq[:, m_idx, l_idx] + 1.0) / earlier).mean(axis=1)
 
 
-def npmi_coherence(counts, top: np.ndarray) -> np.ndarray:
-    """NPMI coherence of each theme's top terms (mean over term pairs), one value per theme."""
-    doc_freq, co_freq, n_docs = _document_counts(counts, top)
-    n = doc_freq.shape[1]
-    i_idx, j_idx = np.triu_indices(n, k=1)
+def _npmi(doc_freq: np.ndarray, co_freq: np.ndarray, n_docs: int) -> np.ndarray:
+    """NPMI per theme from document and co-document frequencies."""
+    i_idx, j_idx = np.triu_indices(doc_freq.shape[1], k=1)
     p_joint = co_freq[:, i_idx, j_idx] / n_docs
     p_i = doc_freq[:, i_idx] / n_docs
     p_j = doc_freq[:, j_idx] / n_docs
     with np.errstate(divide="ignore", invalid="ignore"):
-        pmi = np.log(p_joint / (p_i * p_j))
-        npmi = pmi / -np.log(p_joint)
+        npmi = np.log(p_joint / (p_i * p_j)) / -np.log(p_joint)
     npmi = np.where(p_joint <= 0, -1.0, npmi)
-    npmi = np.where(p_joint >= 1, 1.0, npmi)
-    return npmi.mean(axis=1)
+    return np.where(p_joint >= 1, 1.0, npmi).mean(axis=1)
+
+
+def umass_coherence(counts, top: np.ndarray) -> np.ndarray:
+    """UMass coherence of each theme's ordered top terms (mean over term pairs), one value per theme."""
+    return _umass(*_document_counts(counts, top)[:2])
+
+
+def npmi_coherence(counts, top: np.ndarray) -> np.ndarray:
+    """NPMI coherence of each theme's top terms (mean over term pairs), one value per theme."""
+    return _npmi(*_document_counts(counts, top))
+
+
+def coherence(counts, top: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(NPMI, UMass) per theme, counting the documents once for both."""
+    doc_freq, co_freq, n_docs = _document_counts(counts, top)
+    return _npmi(doc_freq, co_freq, n_docs), _umass(doc_freq, co_freq)

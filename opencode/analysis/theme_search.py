@@ -23,7 +23,7 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.exceptions import ConvergenceWarning
 
-from opencode.analysis.coherence import npmi_coherence, top_term_indices, umass_coherence
+from opencode.analysis.coherence import coherence, top_term_indices
 from opencode.analysis.theme_stability import stability
 from opencode.analysis.themes import ThemeFinder, as_count_matrix, check_corpus
 from opencode.errors import OpenCodeError
@@ -123,8 +123,8 @@ def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)  # the search stops early on purpose
             reference, top, resampled_tops = _fit_k(template, k, model_input, resamples, n_top, max_iter, tol)
-        rows.append({"k": k, "npmi": float(npmi_coherence(kept_counts, top).mean()),
-                     "umass": float(umass_coherence(kept_counts, top).mean()),
+        npmi, umass = coherence(kept_counts, top)
+        rows.append({"k": k, "npmi": float(npmi.mean()), "umass": float(umass.mean()),
                      "stability": stability(top, resampled_tops),
                      "unexplained": float((reference.dominant_theme_ < 0).mean()),
                      "seconds": time.perf_counter() - started})

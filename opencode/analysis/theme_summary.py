@@ -16,7 +16,7 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency
 from sklearn.preprocessing import normalize
 
-from opencode.analysis.coherence import npmi_coherence, top_term_indices, umass_coherence
+from opencode.analysis.coherence import coherence, top_term_indices
 from opencode.analysis.multiple_testing import bh_adjust
 from opencode.analysis.theme_stability import depth_jaccard, match_themes
 from opencode.analysis.themes import ThemeFinder, as_count_matrix
@@ -285,8 +285,8 @@ def summarise(finder: ThemeFinder, counts, terms: Sequence[str], *, texts: Seque
     components = finder.components_
     term_weights = components / np.maximum(components.sum(axis=1, keepdims=True), np.finfo(float).tiny)
     top = top_term_indices(components, n_top)
-    kept_counts = matrix[finder.included_]
-    npmi, umass = npmi_coherence(kept_counts, top), umass_coherence(kept_counts, top)
+    kept_counts = matrix if finder.included_.all() else matrix[finder.included_]
+    npmi, umass = coherence(kept_counts, top)
     n_included = int(finder.included_.sum())
     n_dominant = np.bincount(finder.dominant_theme_[finder.dominant_theme_ >= 0], minlength=finder.n_themes)
     unit_rows = normalize(matrix)

@@ -71,11 +71,11 @@ def check_corpus(counts: sp.csr_matrix, k: int) -> np.ndarray:
     empty_note = f" ({n_empty} empty verbatim(s) left out)" if n_empty else ""
     if n_kept < k:
         raise OpenCodeError(f"only {n_kept} verbatim(s) with terms{empty_note}: fewer than k={k} themes")
-    used_terms = int(np.count_nonzero(np.asarray(counts[keep].sum(axis=0)).ravel()))
+    used_terms = np.unique(counts.indices).size
     if used_terms < k:
         raise OpenCodeError(f"vocabulary too small: {used_terms} term(s) in use, fewer than k={k} themes "
                             "(lower min_df or choose a smaller k)")
-    kept = counts[keep]
+    kept = counts if keep.all() else counts[keep]
     fingerprint = kept @ np.random.default_rng(0).random(kept.shape[1])
     n_distinct = np.unique(np.round(fingerprint, 10)).size
     if n_distinct == 1:
@@ -227,7 +227,7 @@ class ThemeFinder(BaseEstimator):
         if terms is not None and len(terms) != counts.shape[1]:
             raise OpenCodeError(f"term labels: {len(terms)} given for a matrix with {counts.shape[1]} columns")
         keep = check_corpus(counts, self.n_themes)
-        model_input, self.tfidf_ = self.model_input(counts[keep])
+        model_input, self.tfidf_ = self.model_input(counts if keep.all() else counts[keep])
         self.seed_columns_ = self._seed_columns(terms, model_input)
         return self._fit_input(model_input, keep)
 

@@ -122,7 +122,8 @@ def _validate(ds: CodedDataset) -> None:
         raise OpenCodeError("export: the dataset has no respondents")
     kinds = {type(i) for i in ids}
     if not (kinds <= {str} or all(isinstance(i, (int, np.integer)) and not isinstance(i, bool) for i in ids)):
-        raise OpenCodeError(f"export: respondent ids must be all text or all whole numbers, got {sorted(k.__name__ for k in kinds)}")
+        found = sorted(k.__name__ for k in kinds)
+        raise OpenCodeError(f"export: respondent ids must be all text or all whole numbers, got {found}")
     seen: set = set()
     for i in ids:
         if i in seen:
@@ -135,9 +136,13 @@ def _validate(ds: CodedDataset) -> None:
         names.add(q.name.lower())
         _validate_frame(q)
         if q.verbatims is not None and len(q.verbatims) != len(ids):
-            raise OpenCodeError(f"export: question {q.name!r} has {len(q.verbatims)} verbatims for {len(ids)} respondents")
+            raise OpenCodeError(
+                f"export: question {q.name!r} has {len(q.verbatims)} verbatims for {len(ids)} respondents"
+            )
         if not isinstance(q.codes, Mapping) and len(q.codes) != len(ids):
-            raise OpenCodeError(f"export: question {q.name!r} has codes for {len(q.codes)} respondents, expected {len(ids)}")
+            raise OpenCodeError(
+                f"export: question {q.name!r} has codes for {len(q.codes)} respondents, expected {len(ids)}"
+            )
         if isinstance(q.codes, Mapping):
             unknown = [r for r in q.codes if r not in seen]
             if unknown:
@@ -162,16 +167,17 @@ def _validate_frame(q: CodedQuestion) -> None:
             raise OpenCodeError(f"export: question {q.name!r}: code {c.code} appears twice in the code frame")
         by_code[c.code] = c
     for c in q.frame:
-        if c.net is None:
-            continue
-        parent = by_code.get(c.net)
-        if parent is None or not parent.is_net:
-            raise OpenCodeError(f"export: question {q.name!r}: code {c.code} names net {c.net}, which is not a net of the frame")
-        chain, node = {c.code}, parent
+        parent = by_code.get(c.net) if c.net is not None else None
+        if c.net is not None and (parent is None or not parent.is_net):
+            raise OpenCodeError(
+                f"export: question {q.name!r}: code {c.code} names net {c.net}, which is not a net of the frame"
+            )
+    for c in q.frame:
+        chain, node = {c.code}, c
         while node.net is not None:
-            if node.code in chain:
-                raise OpenCodeError(f"export: question {q.name!r}: net {node.code} contains itself")
-            chain.add(node.code)
+            if node.net in chain:
+                raise OpenCodeError(f"export: question {q.name!r}: net {node.net} contains itself")
+            chain.add(node.net)
             node = by_code[node.net]
 
 

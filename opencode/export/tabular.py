@@ -13,18 +13,12 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
+from opencode.export.cell_guard import guard_cell
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode, build_table, sibling_path
 from opencode.export.safe_write import atomic_open, atomic_path, check_writable_target
 
 XLSX_MAX_ROWS = 1_048_576
 XLSX_MAX_CELL_CHARS = 32_767
-
-
-def _guard_cell(value):
-    """The shared formula-injection guard (opencode.export.cell_guard), imported when first needed."""
-    from opencode.export.cell_guard import guard_cell
-
-    return guard_cell(value)
 
 
 def _whole_numbers_as_int(column: pd.Series) -> pd.Series:
@@ -44,10 +38,10 @@ def guarded_frame(df: pd.DataFrame) -> pd.DataFrame:
     for name in df.columns:
         column = df[name]
         if column.dtype.kind in "OSUT" or pd.api.types.is_string_dtype(column):
-            column = column.map(_guard_cell, na_action="ignore")
+            column = column.map(guard_cell, na_action="ignore")
         else:
             column = _whole_numbers_as_int(column)
-        out[_guard_cell(name)] = column
+        out[guard_cell(name)] = column
     return pd.DataFrame(out)
 
 
@@ -60,7 +54,9 @@ def variables_table(table: LabelledTable) -> pd.DataFrame:
         "variable": list(table.data.columns),
         "label": [table.column_labels.get(c, "") for c in table.data.columns],
         "value_labels": [fmt(table.value_labels.get(c, {}).items()) for c in table.data.columns],
-        "missing_codes": [", ".join(_number_text(m) for m in table.missing_codes.get(c, [])) for c in table.data.columns],
+        "missing_codes": [
+            ", ".join(_number_text(m) for m in table.missing_codes.get(c, [])) for c in table.data.columns
+        ],
     })
 
 
@@ -115,13 +111,18 @@ def write_xlsx(
     *,
     category_columns: bool = False,
     verbatims: VerbatimMode = "omit",
-) -> Path:
-    """Write an XLSX workbook with sheets `data`, `frame` (the code frames) and `variables` (labels)."""
+) -> list[Path]:
+    """Write an XLSX workbook with sheets `data`, `frame` (the code frames) and `variables` (labels).
+
+    Returns the one path, as a list like the other writers. Text longer than an XLSX cell holds is cut.
+    """
     from openpyxl import Workbook
 
     target = check_writable_target(path)
     if dataset.n_respondents + 1 > XLSX_MAX_ROWS:
-        raise OpenCodeError(f"{target}: {dataset.n_respondents} respondents do not fit in one XLSX sheet; export CSV instead")
+        raise OpenCodeError(
+            f"{target}: {dataset.n_respondents} respondents do not fit in one XLSX sheet; export CSV instead"
+        )
     table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
     workbook = Workbook(write_only=True)
     for title, df in (("data", table.data), ("frame", table.code_frame), ("variables", variables_table(table))):
@@ -130,4 +131,4 @@ def write_xlsx(
             sheet.append(row)
     with atomic_path(target, suffix=".xlsx") as tmp:
         workbook.save(tmp)
-    return target
+    return [target]

@@ -7,8 +7,8 @@ Written from the published standard (Triple-S XML 2.0, December 2006, triple-s.o
   multiple in spread layout `<spread subfields width/>`, then `<values>` with `<value code>label</value>`
   entries (single, multiple) or one `<range from to/>` (quantity). Character variables in CSV format give
   their maximum length in `<size>` (from memory).
-- fixed format: positions are 1-based character columns, contiguous, `finish` inclusive; numbers are
-  right-justified (codes zero-filled, quantities space-filled); a blank field is no answer.
+- fixed format (UTF-8 text, CRLF records): positions are 1-based character columns, contiguous, `finish`
+  inclusive; numbers are right-justified (codes zero-filled, quantities space-filled); blank = no answer.
 - csv format: positions are 1-based field numbers; a spread multiple takes one field per subfield.
 - a multiple is a bitstring by default: one character per code from 1 to the highest code, "1" = chosen;
   in spread layout each subfield holds one chosen code (unused subfields are zeros / empty fields).
@@ -30,8 +30,10 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
+from opencode.export.cell_guard import guard_row
 from opencode.export.dataset import (
     CodedDataset,
+    CodedQuestion,
     VerbatimMode,
     check_verbatim_mode,
     question_codes,
@@ -63,11 +65,6 @@ class SSSVariable:
     spread: tuple[int, int] | None = None
     size: int | None = None
 
-    @property
-    def width(self) -> int:
-        """Characters (fixed) or fields (csv) the variable takes."""
-        return self.finish - self.start + 1
-
 
 @dataclass
 class TripleS:
@@ -91,6 +88,7 @@ class _Field:
 
 
 def _digits(values: np.ndarray) -> int:
+    """Characters the widest whole number needs (sign included)."""
     return max(len(str(int(v))) for v in values) if len(values) else 1
 
 
@@ -100,6 +98,7 @@ def _fixed_cells(values: np.ndarray, width: int, fill: str) -> list[str]:
 
 
 def _serial_field(ds: CodedDataset, taken: set[str]) -> tuple[SSSVariable, list[str]]:
+    """The respondent id as the serial variable: quantity for whole numbers, character for text."""
     name = safe_name(ds.id_name, taken=taken)
     ids = ds.respondent_ids
     if isinstance(ids[0], str):
@@ -135,17 +134,19 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).replace("\t", " ").splitlines()).rstrip()
 
 
-def _multiple_fields(ds: CodedDataset, q, name: str, layout: str, data_format: str) -> tuple[SSSVariable, list[list[str]]]:
+def _multiple_fields(
+    ds: CodedDataset, q: CodedQuestion, name: str, layout: str, data_format: str
+) -> tuple[SSSVariable, list[list[str]]]:
     """A question as one multiple variable over its whole frame (codes and nets): bitstring or spread."""
     qc = question_codes(ds, q)
     labels = {int(c.code): c.label for c in q.frame}
     chosen = qc.indicators.astype(bool)
     if layout == "bitstring":
         highest = int(qc.frame_codes.max())
-        bits = np.zeros((ds.n_respondents, highest), dtype="U1")
-        bits[:] = "0"
-        bits[:, qc.frame_codes - 1] = np.where(chosen, "1", "0")
-        cells = ["".join(row) for row in bits]
+        bits = np.full((ds.n_respondents, highest), ord("0"), dtype=np.uint8)
+        bits[:, qc.frame_codes - 1] += chosen
+        text = bits.tobytes().decode("ascii")
+        cells = [text[i:i + highest] for i in range(0, len(text), highest)]
         return SSSVariable("", name, q.label or q.name, "multiple", 0, 0, values=labels), [cells]
     order = np.argsort(qc.frame_codes)
     sorted_codes = qc.frame_codes[order]
@@ -178,15 +179,9 @@ def _collect_fields(ds: CodedDataset, layout: str, data_format: str, verbatims: 
             texts = [_one_line(t) for t in verbatim_texts(q, verbatims)]
             name = safe_name(f"{stem}_text", taken=taken)
             label = f"{q.label or q.name}" + (" (masked)" if verbatims == "masked" else "")
-            fields.append(_Field(SSSVariable("", name, label, "character", 0, 0, size=max(1, max(map(len, texts)))), [texts]))
+            size = max(1, max(map(len, texts)))
+            fields.append(_Field(SSSVariable("", name, label, "character", 0, 0, size=size), [texts]))
     return fields
-
-
-def _guard_texts(texts: list[str]) -> list[str]:
-    """Text cells of a CSV data file pass the formula-injection guard (opencode.export.cell_guard)."""
-    from opencode.export.cell_guard import guard_cell
-
-    return [guard_cell(t) for t in texts]
 
 
 def _assign_positions(fields: list[_Field], data_format: str) -> None:
@@ -209,12 +204,14 @@ def _assign_positions(fields: list[_Field], data_format: str) -> None:
             f.cells = [[t.ljust(span) for t in f.cells[0]]]
             var.size = None
         elif var.type == "character":
-            f.cells = [_guard_texts(f.cells[0])]
+            f.cells = [guard_row(f.cells[0])]
         elif data_format == "csv":
             f.cells = [[c.strip() for c in column] for column in f.cells]
 
 
-def _metadata_xml(ds: CodedDataset, variables: list[SSSVariable], data_format: str, origin: str, when: dt.datetime) -> str:
+def _metadata_xml(
+    ds: CodedDataset, variables: list[SSSVariable], data_format: str, origin: str, when: dt.datetime
+) -> str:
     """The metadata document (Triple-S XML 2.0) as text."""
     root = ET.Element("sss", version=SSS_VERSION)
     ET.SubElement(root, "date").text = when.strftime("%Y-%m-%d")
@@ -304,7 +301,8 @@ def _parse_variable(element: ET.Element, source: Path) -> SSSVariable:
     return SSSVariable(
         ident=element.get("ident", ""), name=element.findtext("name"), label=element.findtext("label", ""),
         type=element.get("type"), start=start, finish=finish, use=element.get("use"), values=values,
-        range=value_range, spread=(int(spread.get("subfields")), int(spread.get("width"))) if spread is not None else None,
+        range=value_range,
+        spread=(int(spread.get("subfields")), int(spread.get("width"))) if spread is not None else None,
         size=int(size) if size else None,
     )
 

@@ -143,3 +143,12 @@ def theme_run_list(study: Study, question_id: int) -> list[tuple[int, str, str, 
     return study.db.execute(
         "SELECT id, created_at, method, k, summary FROM theme_runs WHERE question_id = ? ORDER BY id DESC",
         (question_id,)).fetchall()
+
+
+def verbatims_holding(study: Study, question_id: int, coder: str, code_ids: list[int]) -> int:
+    """How many of a question's verbatims hold any of these codes as the coder's hand codes (a net's count)."""
+    marks = ", ".join("?" for _ in code_ids)
+    return int(study.db.execute(
+        "SELECT COUNT(DISTINCT a.verbatim_id) FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
+        f"WHERE a.coder = ? AND a.source = 'hand' AND v.question_id = ? AND a.code_id IN ({marks})",
+        (coder, question_id, *code_ids)).fetchone()[0])

@@ -29,50 +29,67 @@ class PhraseMatcher:
         first = {ids[0] for ids in table}
         self._first = np.array(sorted(first), dtype=np.int64)
 
-    def find(self, key: np.ndarray) -> list[tuple[int, int, int]]:
-        """Every (start, length, phrase key id) occurrence, overlapping ones included."""
+    def find(self, key: np.ndarray) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+        """Occurrences by phrase length: sorted start positions and phrase key ids (overlaps included)."""
+        found: dict[int, list[tuple[np.ndarray, int]]] = {}
         if not self.table:
-            return []
+            return {}
         n = len(key)
         cand = np.flatnonzero(np.isin(key, self._first))
-        found: list[tuple[np.ndarray, int, int]] = []
+        first = key[cand]
         for ids, pid in self.table.items():
             length = len(ids)
-            starts = cand[(key[cand] == ids[0]) & (cand <= n - length)]
+            starts = cand[(first == ids[0]) & (cand <= n - length)]
             for j in range(1, length):
                 starts = starts[key[starts + j] == ids[j]]
             if len(starts):
-                found.append((starts, length, pid))
-        return [(int(s), length, pid) for starts, length, pid in found for s in starts]
+                found.setdefault(length, []).append((starts, pid))
+        out = {}
+        for length, parts in found.items():
+            starts = np.concatenate([s for s, _ in parts])
+            pids = np.concatenate([np.full(len(s), pid, dtype=np.int64) for s, pid in parts])
+            order = np.argsort(starts, kind="stable")
+            out[length] = (starts[order], pids[order])
+        return out
 
-    def resolve(self, matches: list[tuple[int, int, int]]) -> list[tuple[int, int, int]]:
-        """Non-overlapping matches: longest first, then leftmost."""
-        matches = sorted(matches, key=lambda m: (-m[1], m[0]))
-        by_start = sorted(matches)
-        overlapping = any(b[0] < a[0] + a[1] for a, b in zip(by_start, by_start[1:]))
-        if not overlapping:
-            return matches
-        taken: set[int] = set()
+    def resolve(self, found: dict[int, tuple[np.ndarray, np.ndarray]], n: int) -> list[tuple[int, np.ndarray, np.ndarray]]:
+        """Non-overlapping matches as (length, starts, phrase ids): longest first, then leftmost."""
+        taken = np.zeros(n + 1, dtype=np.int64)
         kept = []
-        for start, length, pid in matches:
-            span = range(start, start + length)
-            if taken.isdisjoint(span):
-                taken.update(span)
-                kept.append((start, length, pid))
+        for length in sorted(found, reverse=True):
+            starts, pids = found[length]
+            covered = np.concatenate([[0], np.cumsum(taken[:n])])
+            free = covered[starts + length] - covered[starts] == 0
+            starts, pids = starts[free], pids[free]
+            if len(starts) > 1 and (np.diff(starts) < length).any():
+                accept, last_end = [], -1
+                for i, s in enumerate(starts.tolist()):
+                    if s >= last_end:
+                        accept.append(i)
+                        last_end = s + length
+                starts, pids = starts[accept], pids[accept]
+            for j in range(length):
+                taken[starts + j] = 1
+            kept.append((length, starts, pids))
         return kept
 
     def apply(self, kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int, int]:
         """Merge matched phrases in place (first position becomes the phrase term, the rest are gone)."""
-        matches = self.resolve(self.find(key))
         hits: dict[int, int] = {}
         names = analyzer.surface_names_
-        for start, length, pid in matches:
-            form = " ".join(names[s] for s in surf[start:start + length])
-            surf[start] = analyzer._surface_id(form)
-            key[start] = pid
-            kind[start] = _TERM
-            kind[start + 1:start + length] = _GONE
-            hits[pid] = hits.get(pid, 0) + 1
+        for length, starts, pids in self.resolve(self.find(key), len(key)):
+            if len(starts) == 0:
+                continue
+            window = surf[starts[:, None] + np.arange(length)]
+            uniq, inverse = np.unique(window, axis=0, return_inverse=True)
+            ids = np.array([analyzer._surface_id(" ".join(names[s] for s in row)) for row in uniq], dtype=np.int64)
+            surf[starts] = ids[inverse.ravel()]
+            key[starts] = pids
+            kind[starts] = _TERM
+            for j in range(1, length):
+                kind[starts + j] = _GONE
+            for pid, count in zip(*np.unique(pids, return_counts=True)):
+                hits[int(pid)] = hits.get(int(pid), 0) + int(count)
         return hits
 
 

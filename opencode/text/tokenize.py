@@ -75,31 +75,45 @@ def join_chunk(texts: Sequence[str]) -> str:
     return joined
 
 
-def _spans(text: str, pattern: re.Pattern[str], marker: str) -> list[tuple[int, int]]:
-    """Start/end of every match of a link pattern (URL or email), trailing punctuation trimmed."""
-    if marker not in text:
+def _trim(text: str, start: int, end: int) -> tuple[int, int]:
+    """A link span without trailing sentence punctuation."""
+    while end > start and text[end - 1] in _TRAILING_URL_PUNCT:
+        end -= 1
+    return start, end
+
+
+def url_spans(text: str) -> list[tuple[int, int]]:
+    """Start/end of every URL (the regex runs only when a URL marker is present)."""
+    if "://" not in text and "www." not in text:
         return []
+    return [_trim(text, m.start(), m.end()) for m in URL_RE.finditer(text)]
+
+
+_EMAIL_LEFT = re.compile(r"[\w.+\-]+$")
+_EMAIL_RIGHT = re.compile(r"[\w\-]+(?:\.[\w\-]+)+")
+
+
+def email_spans(text: str) -> list[tuple[int, int]]:
+    """Start/end of every email address, found from its '@' (fast: no scan of the whole text)."""
     spans = []
-    for m in pattern.finditer(text):
-        end = m.end()
-        while end > m.start() and text[end - 1] in _TRAILING_URL_PUNCT:
-            end -= 1
-        spans.append((m.start(), end))
+    at = text.find("@")
+    while at != -1:
+        left = _EMAIL_LEFT.search(text, max(0, at - 64), at)
+        right = _EMAIL_RIGHT.match(text, at + 1)
+        if left and right:
+            spans.append(_trim(text, left.start(), right.end()))
+        at = text.find("@", at + 1)
     return spans
 
 
 def replace_links(text: str, urls: str, emails: str) -> str:
     """Replace URLs / emails by their placeholder token (or a space when dropped)."""
     pieces: list[tuple[int, int, str]] = []
-    for option, pattern, marker, placeholder in (
-        (urls, URL_RE, "://", URL_PLACEHOLDER),
-        (urls, URL_RE, "www.", URL_PLACEHOLDER),
-        (emails, EMAIL_RE, "@", EMAIL_PLACEHOLDER),
-    ):
+    for option, finder, placeholder in ((urls, url_spans, URL_PLACEHOLDER), (emails, email_spans, EMAIL_PLACEHOLDER)):
         if option == "keep":
             continue
         replacement = f" {placeholder} " if option == "placeholder" else " "
-        pieces.extend((s, e, replacement) for s, e in _spans(text, pattern, marker))
+        pieces.extend((s, e, replacement) for s, e in finder(text))
     if not pieces:
         return text
     pieces.sort()
@@ -119,8 +133,9 @@ def tokenize_chunk(texts: Sequence[str], urls: str, emails: str, vocab: dict[str
     text = replace_links(normalise(join_chunk(texts)), urls, emails)
     pattern = TOKEN_WITH_LINKS_RE if "keep" in (urls, emails) else TOKEN_RE
     tokens = pattern.findall(text)
-    setdefault = vocab.setdefault
-    return np.fromiter((setdefault(t, len(vocab)) for t in tokens), dtype=np.int64, count=len(tokens))
+    for token in set(tokens).difference(vocab):
+        vocab[token] = len(vocab)
+    return np.fromiter(map(vocab.__getitem__, tokens), dtype=np.int64, count=len(tokens))
 
 
 def classify(token: str) -> tuple[int, str]:

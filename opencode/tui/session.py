@@ -69,9 +69,7 @@ class DeskSession:
         self.counts = Counts()
         self.reload_frame()
         self.refresh_counts()
-        first = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1)
-        if first:
-            self.position = int(np.searchsorted(self.view, first[0]))
+        self.first_uncoded()
 
     def close(self) -> None:
         """Close the study file (everything was committed already)."""
@@ -120,13 +118,8 @@ class DeskSession:
         self.counts = Counts(codes, nets, dq.coded_count(self.study, self.question.id, self.coder))
 
     def _verbatims_holding(self, numbers: list[int]) -> int:
-        if not numbers:
-            return 0
-        ids = {c.id for c in self.codes if c.number in numbers}
-        held = set()
-        for code_id in ids:
-            held.update(dq.search_ids(self.study, self.question.id, code_id=code_id, coder=self.coder).tolist())
-        return len(held)
+        ids = [c.id for c in self.codes if c.number in numbers]
+        return dq.verbatims_holding(self.study, self.question.id, self.coder, ids) if ids else 0
 
     # -- where we are ----------------------------------------------------------------------------------------
     @property
@@ -209,21 +202,31 @@ class DeskSession:
 
     def go_to_id(self, verbatim_id: int) -> None:
         """Show a verbatim; leaves a filter that does not hold it."""
-        if verbatim_id not in set(self.view[max(0, np.searchsorted(self.view, verbatim_id) - 1):][:2].tolist()):
+        if not _holds(self.view, verbatim_id):
             self.clear_search()
         self.position = int(np.searchsorted(self.view, verbatim_id))
+
+    def first_uncoded(self) -> bool:
+        """Go to this coder's first uncoded verbatim (leaving any search); False if every one is coded."""
+        first = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1)
+        if first:
+            self.go_to_id(first[0])
+        return bool(first)
 
     def next_uncoded(self) -> bool:
         """Go to the next verbatim this coder has not coded (wrapping to the start); False if none is left."""
         current = self.current_id
+        if self.search is not None:
+            uncoded = np.array(coding.uncoded_ids(self.study, self.question.name, self.coder), dtype=np.int64)
+            left = self.view[np.isin(self.view, uncoded)]
+            if left.size == 0:
+                return False
+            later = left[left > (current if current is not None else -1)]
+            self.go_to_id(int(later[0] if later.size else left[0]))
+            return True
         after = coding.uncoded_ids(self.study, self.question.name, self.coder, after=current, limit=1)
         if not after:
             after = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1)
-        if self.search is not None and after:
-            candidates = self.view[self.view > (current or -1)]
-            uncoded = set(coding.uncoded_ids(self.study, self.question.name, self.coder))
-            found = [int(v) for v in candidates if int(v) in uncoded] or [int(v) for v in self.view if int(v) in uncoded]
-            after = found[:1]
         if not after:
             return False
         self.go_to_id(after[0])
@@ -358,12 +361,12 @@ class DeskSession:
         return coding.set_note(self.study, vid, self.coder, text.strip() or None)
 
     def add_code(self, label: str, hotkey: str | None = None, net: int | None = None,
-                 assign_here: bool = True) -> Code:
+                 assign_here: bool = True, kind: str = "code") -> Code:
         """Add a code to the frame without leaving the desk (and give it to the current verbatim)."""
         code = frames.add_code(self.study, self.question.name, label, hotkey=hotkey or None, net=net,
-                               actor=self.coder)
+                               kind=kind, actor=self.coder)
         self.reload_frame()
-        if assign_here and self.current_id is not None:
+        if assign_here and kind == "code" and self.current_id is not None:
             self.toggle(code.number)
         return code
 
@@ -392,6 +395,12 @@ class DeskSession:
             self.view = self.all_ids
             if current is not None:
                 self.position = int(np.searchsorted(self.view, current))
+
+
+def _holds(sorted_ids: np.ndarray, value: int) -> bool:
+    """Whether an ascending id array contains a value."""
+    i = int(np.searchsorted(sorted_ids, value))
+    return i < sorted_ids.size and int(sorted_ids[i]) == int(value)
 
 
 def _answer(variable: survey_data.Variable, value) -> str:

@@ -1,0 +1,285 @@
+"""The machine coder on a study: train from hand codes, report, suggest, semi-automatic apply, queues for people.
+
+Machine codes are suggestions until a person accepts them: `apply_machine` writes source=machine rows only
+on verbatims the coder has not touched (no hand code, not marked done), never over or beside a hand code.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from opencode.coding.features import default_analyzer, term_lists
+from opencode.coding.frames import load_frame
+from opencode.coding.history import Change
+from opencode.coding.machine import MachineCoder, coverage_curve, pick_threshold
+from opencode.errors import OpenCodeError
+from opencode.study import assignments_store as astore
+from opencode.study import models_store
+from opencode.study import survey_data
+from opencode.study.store import Study, now
+
+FINAL = "final"
+
+
+@dataclass
+class TrainedModel:
+    """A stored model with what it was trained on."""
+
+    id: int
+    question: str
+    question_id: int
+    created_at: str
+    model: MachineCoder
+    analyzer: Any
+    train_ids: np.ndarray
+    train_coders: list[str]
+    meta: dict[str, Any] = field(default_factory=dict)
+
+
+_CACHE: dict[tuple[str, int], TrainedModel] = {}
+_QUESTION_NAMES: dict[tuple[str, int], str] = {}
+
+
+def _coder_priority(study: Study, question_id: int, coder: str | None) -> list[str]:
+    if coder:
+        return [coder]
+    active = [name for name, _ in astore.coders_of_question(study, question_id)]
+    return [FINAL] + [name for name in active if name != FINAL]
+
+
+def training_data(study: Study, question: str, coder: str | None = None):
+    """(verbatim ids, texts, 0/1 labels, code numbers, coder per verbatim) from hand codes.
+
+    One coder when named; otherwise the `final` coder where it has coded a verbatim, else the most active
+    coder who did. A verbatim counts as coded once it holds a hand code or is marked done (so "done, no
+    code" teaches the model what is not each code).
+    """
+    question_id = survey_data.get_question(study, question).id
+    codes = [c.number for c in load_frame(study, question).codes if not c.is_net and c.active]
+    owner: dict[int, str] = {}
+    for name in _coder_priority(study, question_id, coder):
+        for verbatim_id in astore.coded_verbatim_ids(study, question_id, name).tolist():
+            owner.setdefault(verbatim_id, name)
+    if not owner:
+        raise OpenCodeError(f"question {question!r}: no hand-coded verbatims" + (f" by {coder}" if coder else "")
+                            + " to learn from")
+    ids = np.array(sorted(owner), dtype=np.int64)
+    table = astore.assignments_table(study, question_id, sorted(set(owner.values())), ("hand",))
+    table = table[[owner.get(v) == c for v, c in zip(table["verbatim_id"], table["coder"])]]
+    row_of = {v: i for i, v in enumerate(ids.tolist())}
+    col_of = {c: j for j, c in enumerate(codes)}
+    Y = np.zeros((len(ids), len(codes)), dtype=bool)
+    for v, number in zip(table["verbatim_id"].tolist(), table["number"].tolist()):
+        if number in col_of:
+            Y[row_of[v], col_of[number]] = True
+    texts_by_id = survey_data.verbatims(study, question).set_index("verbatim_id")["text"]
+    return ids, texts_by_id.loc[ids].tolist(), Y, codes, [owner[v] for v in ids.tolist()]
+
+
+def train(study: Study, question: str, coder: str | None = None, analyzer: Any = None,
+          **params: Any) -> TrainedModel:
+    """Train and store a model for a question; codes with too few examples are skipped (see model.skipped_)."""
+    analyzer = analyzer or default_analyzer(study, question)
+    ids, texts, Y, codes, owners = training_data(study, question, coder)
+    model = MachineCoder(**params).fit(term_lists(analyzer, texts), Y, codes)
+    meta, blob = model.to_state()
+    question_id = survey_data.get_question(study, question).id
+    meta.update({"question": question, "train_ids": ids.tolist(), "train_coders": owners, "n_train": len(ids),
+                 "n_codes": len(model.codes_), "trained_by": coder or "opencode",
+                 "analyzer": analyzer.to_dict() if hasattr(analyzer, "to_dict") else None})
+    model_id = models_store.save_model(study, question_id, meta, blob)
+    trained = TrainedModel(model_id, question, question_id, now(), model, analyzer, ids, owners, meta)
+    _CACHE[(str(study.path), question_id)] = trained
+    return trained
+
+
+def _analyzer_from(meta: dict[str, Any], study: Study, question: str) -> Any:
+    if meta.get("analyzer"):
+        from opencode.text.analyzer import Analyzer
+
+        return Analyzer.from_dict(meta["analyzer"])
+    return default_analyzer(study, question)
+
+
+def load_model(study: Study, question: str) -> TrainedModel:
+    """The question's newest model (cached: loaded once per study and model)."""
+    question_id = survey_data.get_question(study, question).id
+    return _load(study, question_id, question)
+
+
+def _load(study: Study, question_id: int, question: str | None) -> TrainedModel:
+    model_id = models_store.latest_model_id(study, question_id)
+    key = (str(study.path), question_id)
+    cached = _CACHE.get(key)
+    if cached is not None and cached.id == model_id:
+        return cached
+    if model_id is None:
+        raise OpenCodeError(f"question {question or question_id!r}: no machine coder trained yet "
+                            "(oecode autocode STUDY train --question Q)")
+    meta, blob, created = models_store.load_model_row(study, model_id)
+    model = MachineCoder.from_state(meta, blob)
+    question = question or meta.get("question")
+    trained = TrainedModel(model_id, question, question_id, created, model, _analyzer_from(meta, study, question),
+                           np.asarray(meta["train_ids"], dtype=np.int64), list(meta["train_coders"]), meta)
+    _CACHE[key] = trained
+    return trained
+
+
+def suggest_one(study: Study, verbatim_id: int) -> list[tuple[int, float]]:
+    """(code, probability) for one verbatim, most likely first, from its question's newest model."""
+    question_id = astore.verbatim_question(study, verbatim_id)
+    if question_id is None:
+        raise OpenCodeError(f"verbatim {verbatim_id}: no such verbatim in {study.path.name}")
+    trained = _load(study, question_id, None)
+    return trained.model.suggest_text(trained.analyzer, astore.verbatim_text(study, verbatim_id) or "")
+
+
+def suggest(study: Study, question: str, verbatim_ids: list[int] | None = None, coder: str | None = None
+            ) -> pd.DataFrame:
+    """Probabilities (rows: verbatim ids; columns: code numbers) for the given verbatims, or those `coder`
+    has not coded, or all of the question's verbatims."""
+    trained = load_model(study, question)
+    frame = survey_data.verbatims(study, question)
+    if verbatim_ids is None and coder is not None:
+        verbatim_ids = astore.uncoded_ids(study, trained.question_id, coder, None, None, True)
+    if verbatim_ids is not None:
+        frame = frame[frame["verbatim_id"].isin(verbatim_ids)]
+    proba = trained.model.predict_proba(trained.model.transform(trained.analyzer, frame["text"].tolist()))
+    return pd.DataFrame(proba, index=frame["verbatim_id"].to_numpy(), columns=trained.model.codes_.tolist())
+
+
+def code_report(study: Study, question: str) -> list[dict[str, Any]]:
+    """Cross-validated precision, recall, F1 and machine-versus-human kappa per trained code."""
+    trained = load_model(study, question)
+    labels = {c.number: c.label for c in load_frame(study, question).codes}
+    m = trained.model.metrics_
+    return [{"code": int(c), "label": labels.get(int(c), "?"), "examples": int(m["positives"][j]),
+             "precision": float(m["precision"][j]), "recall": float(m["recall"][j]), "f1": float(m["f1"][j]),
+             "kappa": float(m["kappa"][j])} for j, c in enumerate(trained.model.codes_)]
+
+
+def curve(study: Study, question: str, thresholds: list[float] | None = None) -> list[dict[str, float]]:
+    """Coverage versus accuracy per threshold, from the model's cross-validated probabilities."""
+    trained = load_model(study, question)
+    return coverage_curve(trained.model.y_, trained.model.oof_proba_,
+                          None if thresholds is None else np.asarray(thresholds))
+
+
+@dataclass
+class ApplyReport:
+    """What a semi-automatic apply wrote."""
+
+    threshold: float
+    candidates: int
+    verbatims: int
+    assignments: int
+    replaced: int
+
+
+def apply_machine(study: Study, question: str, threshold: float | None = None, target_accuracy: float | None = None,
+                  coder: str = FINAL, actor: str | None = None) -> ApplyReport:
+    """Write source=machine suggestions for verbatims the model is sure about (every code's probability
+    >= t or <= 1 - t), codes with probability >= t; only on verbatims `coder` has not coded. Earlier machine
+    suggestions on those verbatims are replaced. One undoable change."""
+    if threshold is None:
+        if target_accuracy is None:
+            raise OpenCodeError("apply: give a threshold or a target accuracy")
+        threshold = pick_threshold(curve(study, question), target_accuracy)
+        if threshold is None:
+            raise OpenCodeError(f"apply: no threshold reaches accuracy {target_accuracy:.2f} in cross-validation; "
+                                "code more verbatims or lower the target")
+    if not 0.5 <= threshold < 1.0:
+        raise OpenCodeError(f"apply: threshold {threshold} must be at least 0.5 and below 1")
+    trained = load_model(study, question)
+    proba = suggest(study, question, coder=coder)
+    codes = proba.columns.to_numpy()
+    values = proba.to_numpy()
+    sure = ((values >= threshold) | (values <= 1 - threshold)).all(axis=1)
+    ids = proba.index.to_numpy()
+    code_ids = {c.number: c.id for c in load_frame(study, question).codes}
+    report = ApplyReport(float(threshold), len(ids), 0, 0, 0)
+    with study.transaction():
+        change = Change(study)
+        old = astore.assignments_table(study, trained.question_id, [coder], ("machine",))
+        candidates = set(ids.tolist())
+        for v, number in zip(old["verbatim_id"].tolist(), old["number"].tolist()):
+            if v in candidates:
+                change.remove_assignment(v, code_ids[number], coder)
+                report.replaced += 1
+        stamp = now()
+        for row in np.flatnonzero(sure):
+            chosen = np.flatnonzero(values[row] >= threshold)
+            if not len(chosen):
+                continue
+            verbatim_id = int(ids[row])
+            report.verbatims += 1
+            for j in chosen:
+                code_id = code_ids[int(codes[j])]
+                if astore.get_assignment(study, verbatim_id, code_id, coder) is not None:
+                    continue  # a rule suggestion is there already
+                change.put_assignment({"verbatim_id": verbatim_id, "code_id": code_id, "coder": coder,
+                                       "source": "machine", "confidence": float(values[row, j]),
+                                       "created_at": stamp})
+                report.assignments += 1
+        change.commit(actor or coder, "apply-machine", "question", trained.question_id, question=question,
+                      threshold=threshold, model=trained.id)
+    return report
+
+
+def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_similarity: float = 0.8
+                   ) -> list[dict[str, Any]]:
+    """What to code next (active learning): the verbatims the model is least sure about (uncertainty sampling,
+    Lewis & Gale 1994), skipping near-duplicates of ones already picked (cosine similarity of term vectors)."""
+    trained = load_model(study, question)
+    frame = survey_data.verbatims(study, question, include_nonanswers=False)
+    open_ids = set(astore.uncoded_ids(study, trained.question_id, coder, None, None, False))
+    frame = frame[frame["verbatim_id"].isin(open_ids)]
+    if frame.empty:
+        return []
+    X = trained.model.transform(trained.analyzer, frame["text"].tolist())
+    proba = trained.model.predict_proba(X)
+    doubt = 1.0 - np.abs(2.0 * proba - 1.0)
+    score = doubt.max(axis=1)
+    order = np.argsort(-score, kind="stable")
+    picked: list[int] = []
+    for row in order[: max(20 * n, 200)]:
+        if picked and (X[picked] @ X[row].T).toarray().max() > max_similarity:
+            continue
+        picked.append(int(row))
+        if len(picked) == n:
+            break
+    ids = frame["verbatim_id"].to_numpy()
+    texts = frame["text"].to_numpy()
+    codes = trained.model.codes_
+    return [{"verbatim_id": int(ids[r]), "uncertainty": float(score[r]), "code": int(codes[doubt[r].argmax()]),
+             "probability": float(proba[r, doubt[r].argmax()]), "text": texts[r]} for r in picked]
+
+
+def second_look_queue(study: Study, question: str, coder: str | None = None, n: int = 20, strength: float = 0.9
+                      ) -> list[dict[str, Any]]:
+    """Hand codes the model strongly disagrees with in cross-validation (a code given with probability below
+    1 - strength, or missing with probability above strength): re-checking these finds more coding errors
+    than random re-checks (He & Schonlau 2021)."""
+    trained = load_model(study, question)
+    model = trained.model
+    y = model.y_.astype(bool)
+    p = model.oof_proba_
+    disagree = np.where(y, 1.0 - p, p)
+    flagged = np.argwhere(disagree >= strength)
+    owners = np.asarray(trained.train_coders, dtype=object)
+    if coder is not None:
+        flagged = flagged[owners[flagged[:, 0]] == coder]
+    order = np.argsort(-disagree[flagged[:, 0], flagged[:, 1]], kind="stable")[:n]
+    texts = survey_data.verbatims(study, question).set_index("verbatim_id")["text"]
+    out = []
+    for row, j in flagged[order]:
+        verbatim_id = int(trained.train_ids[row])
+        out.append({"verbatim_id": verbatim_id, "coder": owners[row], "code": int(model.codes_[j]),
+                    "given": bool(y[row, j]), "probability": float(p[row, j]),
+                    "why": "model doubts this code" if y[row, j] else "model expects this code",
+                    "text": texts.get(verbatim_id, "")})
+    return out

@@ -1,0 +1,107 @@
+"""`oecode autocode STUDY ACTION --question Q`: keyword-rule pre-coding and the machine coder.
+
+Machine and rule codes are suggestions until a person accepts them at the desk.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from opencode.coding import autocode, rules
+from opencode.coding.text_tables import text_table
+from opencode.commands.common import progress_line
+from opencode.study.store import Study
+
+ACTIONS = ("train", "report", "curve", "suggest", "apply", "queue", "rules")
+SUGGESTION_NOTE = "machine codes are suggestions: they count only once a person accepts them at the desk"
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    p = subparsers.add_parser("autocode", help="pre-code by keyword rules; train and use the machine coder")
+    p.add_argument("study")
+    p.add_argument("action", choices=ACTIONS)
+    p.add_argument("--question", required=True)
+    p.add_argument("--coder", help="train: learn from this coder only; apply/rules/suggest/queue: for this coder "
+                   "(default final)")
+    p.add_argument("--threshold", type=float, help="apply: code only verbatims the model is this sure about")
+    p.add_argument("--target-accuracy", type=float, help="apply: pick the threshold reaching this accuracy")
+    p.add_argument("--kind", choices=("learn", "second-look"), default="learn", help="queue: which queue")
+    p.add_argument("--limit", type=int, default=20, help="suggest/queue: how many to show")
+    p.add_argument("--min-examples", type=int, default=5, help="train: skip codes with fewer coded examples")
+    p.set_defaults(handler=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    with Study.open(args.study) as study:
+        globals()[f"_{args.action.replace('-', '_')}"](study, args)
+    return 0
+
+
+def _coder(args: argparse.Namespace) -> str:
+    return args.coder or autocode.FINAL
+
+
+def _train(study: Study, args: argparse.Namespace) -> None:
+    progress_line("analysing verbatims and cross-validating each code")
+    trained = autocode.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
+    print(f"model {trained.id}: {len(trained.model.codes_)} codes from {len(trained.train_ids)} hand-coded verbatims")
+    for code, n in trained.model.skipped_:
+        print(f"  skipped code {code}: {n} coded examples (needs {args.min_examples}, and as many without it)")
+    _report(study, args)
+
+
+def _report(study: Study, args: argparse.Namespace) -> None:
+    rows = autocode.code_report(study, args.question)
+    print("cross-validated, machine versus human:")
+    print(text_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
+                     [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
+                      for r in rows]))
+
+
+def _curve(study: Study, args: argparse.Namespace) -> None:
+    rows = autocode.curve(study, args.question)
+    print("semi-automatic coding: the model codes a verbatim only when sure of every code")
+    print(text_table(["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"],
+                     [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
+                      for r in rows]))
+    print("pick a threshold whose accuracy you accept; then: autocode apply --threshold T")
+
+
+def _suggest(study: Study, args: argparse.Namespace) -> None:
+    proba = autocode.suggest(study, args.question, coder=_coder(args))
+    rows = []
+    for verbatim_id, values in proba.head(args.limit).iterrows():
+        best = values.sort_values(ascending=False).head(3)
+        rows.append([int(verbatim_id), "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
+    print(f"{len(proba)} verbatims not yet coded by {_coder(args)}; first {len(rows)}:")
+    print(text_table(["verbatim", "likeliest codes (probability)"], rows))
+    print(SUGGESTION_NOTE)
+
+
+def _apply(study: Study, args: argparse.Namespace) -> None:
+    report = autocode.apply_machine(study, args.question, args.threshold, args.target_accuracy, coder=_coder(args))
+    print(f"threshold {report.threshold:.2f}: {report.assignments} machine codes on {report.verbatims} of "
+          f"{report.candidates} verbatims not yet coded by {_coder(args)} ({report.replaced} earlier machine "
+          "suggestions replaced)")
+    print(SUGGESTION_NOTE)
+
+
+def _queue(study: Study, args: argparse.Namespace) -> None:
+    if args.kind == "learn":
+        items = autocode.learning_queue(study, args.question, _coder(args), n=args.limit)
+        print("code these next (the model is least sure about them):")
+        print(text_table(["verbatim", "doubt", "code", "p", "text"],
+                         [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
+                          for i in items]))
+    else:
+        items = autocode.second_look_queue(study, args.question, args.coder, n=args.limit)
+        print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
+        print(text_table(["verbatim", "coder", "code", "p", "why", "text"],
+                         [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
+                          for i in items]))
+
+
+def _rules(study: Study, args: argparse.Namespace) -> None:
+    written = rules.apply_rules(study, args.question, coder=_coder(args))
+    print(text_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())]))
+    print(f"rule codes are suggestions for {_coder(args)}: they count only once a person accepts them at the desk")

@@ -1,0 +1,27 @@
+"""`oecode code STUDY --question Q --coder NAME`: open the terminal coding desk."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    code = subparsers.add_parser("code", help="code verbatims at the terminal desk (keys: F1 inside)")
+    code.add_argument("study", help="the study file (NAME.study)")
+    code.add_argument("--question", required=True, help="the open question to code")
+    code.add_argument("--coder", required=True, help="your coder name (e.g. initials); codes are kept per coder")
+    code.add_argument("--refresh", type=float, default=30.0, metavar="SECONDS",
+                      help="how often to show other coders' changes (0: only on Ctrl+R; default 30)")
+    code.add_argument("--screen", choices=("desk", "frame", "terms", "themes", "compare"), default="desk",
+                      help="the screen to open on (default: desk)")
+    code.set_defaults(handler=run_code)
+
+
+def run_code(args: argparse.Namespace) -> int:
+    from opencode.tui.app import DeskApp
+    from opencode.tui.session import DeskSession
+
+    session = DeskSession(args.study, args.question, args.coder)
+    app = DeskApp(session, refresh_seconds=max(args.refresh, 0.0), first_screen=args.screen)
+    app.run()
+    return int(app.return_code or 0)

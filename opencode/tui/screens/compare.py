@@ -1,0 +1,159 @@
+"""The compare screen: verbatims where two coders differ, side by side; take left, right or both into `final`.
+
+A shell for adjudication: the agreement figures live in opencode.analysis; this screen only settles codes.
+"""
+
+from __future__ import annotations
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.screen import Screen
+from textual.widgets import Footer, Static
+
+from opencode.coding import assignments as coding
+from opencode.coding import history
+from opencode.coding.assignments import FINAL
+from opencode.errors import OpenCodeError
+from opencode.study import assignments_store as astore
+from opencode.study import desk_queries as dq
+from opencode.tui.screens.modals import PromptModal
+from opencode.tui.widgets.panes import Pane
+
+
+class CompareScreen(Screen):
+    """Two coders' hand codes on the verbatims where they differ, and the `final` codes being settled."""
+
+    BINDINGS = [
+        Binding("right", "move(1)", "next", key_display="→"),
+        Binding("left", "move(-1)", "previous", key_display="←"),
+        Binding("l", "take('left')", "take left"),
+        Binding("r", "take('right')", "take right"),
+        Binding("u", "take('union')", "take both"),
+        Binding("c", "choose", "coders"),
+        Binding("ctrl+z", "undo", "undo final", show=False),
+        Binding("escape,f2", "app.show('desk')", "desk", key_display="esc"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static(id="compare-title", classes="screen-title")
+        with Pane(id="compare-verbatim-pane"):
+            yield Static(id="compare-verbatim")
+        with Horizontal(classes="split"):
+            with Vertical(classes="side"):
+                yield Static(id="left-name", classes="side-title")
+                yield Static(id="left-codes")
+            with Vertical(classes="side"):
+                yield Static(id="right-name", classes="side-title")
+                yield Static(id="right-codes")
+        yield Static(id="final-codes", classes="detail")
+        yield Static(id="status")
+        yield Footer()
+
+    @property
+    def session(self):
+        return self.app.session
+
+    def on_mount(self) -> None:
+        s = self.session
+        others = sorted([c for c, _ in coding_ranked(s) if c != FINAL][:2])
+        self.left = others[0] if others else s.coder
+        self.right = others[1] if len(others) > 1 else self.left
+        self.position = 0
+        self.load()
+
+    def load(self) -> None:
+        s = self.session
+        self.ids = dq.differing_verbatims(s.study, s.question.id, self.left, self.right)
+        self.position = min(self.position, max(self.ids.size - 1, 0))
+        self.redraw()
+
+    def current_id(self) -> int | None:
+        return int(self.ids[self.position]) if self.ids.size else None
+
+    def _codes_text(self, numbers: list[int], against: set[int]) -> Text:
+        text = Text()
+        for number in numbers:
+            code = self.session.code(number)
+            if text:
+                text.append("\n")
+            style = "" if number in against else "bold underline"
+            text.append(f"{number} {code.label if code else '?'}", style=style)
+        return text or Text("(no code)", style="italic")
+
+    def hand(self, coder: str) -> list[int]:
+        vid = self.current_id()
+        return [] if vid is None else [a.number for a in coding.codes_of(self.session.study, vid, coder, ("hand",))]
+
+    def redraw(self) -> None:
+        vid = self.current_id()
+        title = Text(f" compare {self.left} with {self.right}", style="bold")
+        title.append(f"  ·  {self.ids.size:,} verbatims differ" +
+                     (f"  ·  {self.position + 1:,} of {self.ids.size:,}" if self.ids.size else ""))
+        self.query_one("#compare-title", Static).update(title)
+        card = dq.verbatim_card(self.session.study, vid) if vid is not None else None
+        self.query_one("#compare-verbatim", Static).update(
+            Text(f"{card.respondent}: {card.text}") if card else
+            Text("These two coders agree everywhere they both coded (c chooses other coders).", style="italic"))
+        left, right = self.hand(self.left), self.hand(self.right)
+        self.query_one("#left-name", Static).update(f"{self.left} (l)")
+        self.query_one("#right-name", Static).update(f"{self.right} (r)")
+        self.query_one("#left-codes", Static).update(self._codes_text(left, set(right)))
+        self.query_one("#right-codes", Static).update(self._codes_text(right, set(left)))
+        final = self.hand(FINAL)
+        text = Text(f"{FINAL}: ", style="bold")
+        text.append(", ".join(f"{n} {self.session.code(n).label if self.session.code(n) else '?'}" for n in final)
+                    or "not settled yet")
+        self.query_one("#final-codes", Static).update(text)
+
+    def say(self, message: str, error: bool = False) -> None:
+        status = self.query_one("#status", Static)
+        status.set_class(error, "error")
+        status.update(message)
+
+    def action_move(self, step: int) -> None:
+        if self.ids.size:
+            self.position = min(max(self.position + step, 0), self.ids.size - 1)
+        self.redraw()
+
+    def action_take(self, side: str) -> None:
+        vid = self.current_id()
+        if vid is None:
+            return
+        left, right = self.hand(self.left), self.hand(self.right)
+        numbers = {"left": left, "right": right, "union": sorted(set(left) | set(right))}[side]
+
+        def done(_) -> None:
+            self.redraw()
+            self.say(f"{FINAL} now holds {', '.join(map(str, numbers)) or 'no code'}")
+        self.app.attempt(lambda: coding.set_codes(self.session.study, vid, numbers, FINAL), done, self.say)
+
+    def action_undo(self) -> None:
+        def undo():
+            if history.undo(self.session.study, FINAL) is None:
+                raise OpenCodeError(f"nothing of {FINAL} to undo")
+        self.app.attempt(undo, lambda _: (self.redraw(), self.say(f"undid {FINAL}'s last change")), self.say)
+
+    def action_choose(self) -> None:
+        names = ", ".join(c for c, _ in coding_ranked(self.session)) or "none yet"
+
+        def run(line: str | None) -> None:
+            if not line:
+                return
+            parts = line.split()
+            if len(parts) != 2:
+                self.say("give two coder names, e.g. ash bryn", error=True)
+                return
+            self.left, self.right = parts
+            self.position = 0
+            self.load()
+        self.app.push_screen(PromptModal("Compare which two coders?", f"coders here: {names}",
+                                         value=f"{self.left} {self.right}"), run)
+
+
+def coding_ranked(session) -> list[tuple[str, int]]:
+    """Coders of the question with their hand-code counts, most active first (then coders with marks only)."""
+    ranked = astore.coders_of_question(session.study, session.question.id)
+    seen = {c for c, _ in ranked}
+    return ranked + [(c, 0) for c in dq.question_coders(session.study, session.question.id) if c not in seen]

@@ -1,0 +1,218 @@
+"""The frame screen: edit the question's code frame (labels, descriptions, hotkeys, nets, merge, retire) with counts.
+
+Letters are free here (no hotkeys are live), so edits sit on plain letters; every edit is one undoable change
+filed under the coder's name.
+"""
+
+from __future__ import annotations
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+from opencode.coding import frames
+from opencode.coding.frames import Code
+from opencode.errors import OpenCodeError
+from opencode.study import assignments_store as astore
+from opencode.tui.screens.modals import AddCodeModal, ConfirmModal, PromptModal
+
+COLUMNS = ("key", "no.", "label", "kind", "net", "mine", "uses", "state", "description")
+
+
+class FrameScreen(Screen):
+    """The code frame as a table; edits go through opencode.coding.frames."""
+
+    BINDINGS = [
+        Binding("enter,e", "edit('label')", "label", key_display="e"),
+        Binding("d", "edit('description')", "description"),
+        Binding("k", "edit('hotkey')", "hotkey"),
+        Binding("n", "net", "net"),
+        Binding("m", "merge", "merge"),
+        Binding("r", "retire", "retire/restore"),
+        Binding("a", "add", "add"),
+        Binding("ctrl+z", "undo", "undo", show=False),
+        Binding("ctrl+y", "redo", "redo", show=False),
+        Binding("escape,f2", "app.show('desk')", "desk", key_display="esc"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static(id="frame-title", classes="screen-title")
+        yield DataTable(id="frame-table", cursor_type="row", zebra_stripes=True)
+        yield Static(id="frame-detail", classes="detail")
+        yield Static(id="status")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        table = self.query_one(DataTable)
+        table.add_columns(*COLUMNS)
+        self.reload()
+        table.focus()
+
+    @property
+    def session(self):
+        return self.app.session
+
+    def reload(self, keep: int | None = None) -> None:
+        """Read the frame and counts again and redraw the table, staying on code `keep` if given."""
+        s = self.session
+        s.reload_frame()
+        s.refresh_counts()
+        table = self.query_one(DataTable)
+        row = table.cursor_row
+        table.clear()
+        for code in s.codes:
+            uses = astore.count_of_code(s.study, code.id)
+            mine = s.counts.nets.get(code.number, 0) if code.is_net else s.counts.codes.get(code.number, 0)
+            net = s.code(code.net) if code.net is not None else None
+            table.add_row(code.hotkey or "", code.number, Text(code.label, style="bold" if code.is_net else ""),
+                          code.kind, f"{net.number} {net.label}"[:24] if net else "", mine, uses,
+                          "in use" if code.active else "retired", (code.description or "")[:60], key=str(code.number))
+        numbers = [c.number for c in s.codes]
+        if keep in numbers:
+            row = numbers.index(keep)
+        if numbers:
+            table.move_cursor(row=min(max(row, 0), len(numbers) - 1))
+        title = Text(f" code frame of {s.question.name}", style="bold")
+        title.append(f"  ·  {len([c for c in s.codes if not c.is_net])} codes, "
+                     f"{len([c for c in s.codes if c.is_net])} nets  ·  'mine' = your hand codes, 'uses' = everyone")
+        self.query_one("#frame-title", Static).update(title)
+        self.show_detail()
+
+    def current(self) -> Code | None:
+        """The code under the cursor."""
+        table = self.query_one(DataTable)
+        if not self.session.codes or table.row_count == 0:
+            return None
+        return self.session.codes[min(table.cursor_row, len(self.session.codes) - 1)]
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.show_detail()
+
+    def show_detail(self) -> None:
+        code = self.current()
+        text = Text()
+        if code is not None:
+            text.append(f"{code.number} {code.label}", style="bold")
+            for name, value in (("description", code.description), ("include", code.include),
+                                ("exclude", code.exclude), ("rule", code.rule)):
+                if value:
+                    text.append(f"\n{name}: ", style="dim")
+                    text.append(value)
+        else:
+            text.append("No codes yet: press a to add one.")
+        self.query_one("#frame-detail", Static).update(text)
+
+    def say(self, message: str, error: bool = False) -> None:
+        status = self.query_one("#status", Static)
+        status.set_class(error, "error")
+        status.update(message)
+
+    def change(self, fn, message: str, keep: int | None = None) -> None:
+        def done(result) -> None:
+            self.reload(keep=result.number if isinstance(result, Code) else keep)
+            self.say(message)
+        self.app.attempt(fn, done, self.say)
+
+    # -- edits -----------------------------------------------------------------------------------------------
+    def action_edit(self, field: str) -> None:
+        code = self.current()
+        if code is None:
+            return
+        s = self.session
+
+        def run(value: str | None) -> None:
+            if value is None:
+                return
+            self.change(lambda: frames.edit_code(s.study, s.question.name, code.number, actor=s.coder,
+                                                 **{field: value.strip()}),
+                        f"code {code.number}: {field} saved", code.number)
+        hint = "one character; empty removes it" if field == "hotkey" else ""
+        self.app.push_screen(PromptModal(f"{field.capitalize()} of {code.number} {code.label}", hint,
+                                         value=getattr(code, field) or ""), run)
+
+    def action_net(self) -> None:
+        code = self.current()
+        if code is None:
+            return
+        s = self.session
+        nets = ", ".join(f"{c.number} {c.label}" for c in s.codes if c.is_net and c.number != code.number)
+
+        def run(value: str | None) -> None:
+            if value is None:
+                return
+            text = value.strip()
+            if text and not text.isdigit():
+                self.say(f"net {text!r}: give the net's number", error=True)
+                return
+            self.change(lambda: frames.set_net(s.study, s.question.name, code.number, int(text) if text else None,
+                                               actor=s.coder), f"code {code.number}: net saved", code.number)
+        self.app.push_screen(PromptModal(f"Net of {code.number} {code.label}", f"a net number, empty for none; nets: "
+                                         f"{nets or 'none yet (a adds one: kind net)'}",
+                                         value=str(code.net or "")), run)
+
+    def action_merge(self) -> None:
+        code = self.current()
+        if code is None:
+            return
+        s = self.session
+
+        def confirmed(target: int, ok: bool | None) -> None:
+            if ok:
+                self.change(lambda: frames.merge_codes(s.study, s.question.name, code.number, target, actor=s.coder),
+                            f"merged {code.number} into {target}", target)
+
+        def run(value: str | None) -> None:
+            if value is None or not value.strip():
+                return
+            if not value.strip().isdigit():
+                self.say(f"merge: {value.strip()!r} is not a code number", error=True)
+                return
+            target = int(value)
+            other = s.code(target)
+            if other is None:
+                self.say(f"merge: the frame has no code {target}", error=True)
+                return
+            uses = astore.count_of_code(s.study, code.id)
+            self.app.push_screen(ConfirmModal(
+                "Merge codes", f"{code.number} {code.label} ({uses} assignments, every coder) goes into "
+                f"{target} {other.label}, and {code.number} leaves the frame. Ctrl+Z undoes it."),
+                lambda ok: confirmed(target, ok))
+        self.app.push_screen(PromptModal(f"Merge {code.number} {code.label} into code number"), run)
+
+    def action_retire(self) -> None:
+        code = self.current()
+        if code is None:
+            return
+        s = self.session
+        self.change(lambda: frames.retire_code(s.study, s.question.name, code.number, actor=s.coder,
+                                               active=not code.active),
+                    f"code {code.number} {'restored' if not code.active else 'retired (kept with its codes)'}",
+                    code.number)
+
+    def action_add(self) -> None:
+        s = self.session
+        used = {c.hotkey for c in s.codes if c.hotkey}
+        free = "".join(ch for ch in "abcdefghijklmnopqrstuvwxyz0123456789" if ch not in used)
+
+        def run(form: dict | None) -> None:
+            if form:
+                self.change(lambda: s.add_code(form["label"], form["hotkey"], form["net"], assign_here=False,
+                                               kind=form["kind"]), f"added {form['label']}")
+        self.app.push_screen(AddCodeModal(free, [(c.number, c.label) for c in s.codes if c.is_net],
+                                          title="New code or net", offer_net=True), run)
+
+    def action_undo(self) -> None:
+        self.change(self._undo, "undone")
+
+    def action_redo(self) -> None:
+        self.change(self._redo, "redone")
+
+    def _undo(self):
+        if self.session.undo() is None:
+            raise OpenCodeError("nothing to undo")
+
+    def _redo(self):
+        if self.session.redo() is None:
+            raise OpenCodeError("nothing to redo")
