@@ -77,7 +77,6 @@ def suggest_variants(
     by_label = {label: i for i, label in enumerate(labels)}
     rare_idx = [i for i in np.flatnonzero(df <= rare_max) if len(labels[i]) >= min_length and "_" not in tm.terms[i]]
     freq_idx = [i for i in np.flatnonzero(df >= min_ratio) if len(labels[i]) >= min_length]
-    suggestions = []
     best: dict[int, VariantSuggestion] = {}
     for word, other, dist in close_pairs((labels[i] for i in rare_idx), (labels[i] for i in freq_idx), max_distance):
         i, j = by_label[word], by_label[other]
