@@ -305,11 +305,16 @@ def test_locked_study_offers_retry_and_loses_nothing(study_path):
 def test_highlight_marks_rule_words(study_path):
     async def scenario():
         app = make_app(study_path)
-        async with app.run_test(size=(100, 30)):
+        async with app.run_test(size=(100, 30)) as pilot:
+            await app.workers.wait_for_complete()
+            await pilot.pause()
             desk = app.screen
             text = app.session.card().text
-            spans = desk._highlighter().spans(text)
+            spans = desk._spans(text)
             assert [text[a:b] for a, b in spans] == ["safe", "night"]
+            shown = desk.query_one("#verbatim").render()
+            marked = [shown.plain[span.start:span.end] for span in shown.spans if "underline" in str(span.style)]
+            assert marked == ["safe", "night"]
     run(scenario)
 
 
@@ -434,9 +439,9 @@ def test_context_shows_value_labels(tmp_path):
     import_survey(tmp_path / "l.study", csv, ImportOptions("rid", ["why"], labels_file=str(labels)))
     session = DeskSession(tmp_path / "l.study", "why", "ash")
     try:
-        assert session.context() == [("Support", "oppose")]
+        assert session.context() == [("support", "oppose")]
         session.move(1)
-        assert session.context() == [("Support", "support")]
+        assert session.context() == [("support", "support")]
         assert session.apply_search("support=Support") == 1
     finally:
         session.close()

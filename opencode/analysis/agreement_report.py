@@ -9,11 +9,11 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from opencode.analysis.agreement import STATISTIC_LABELS, AgreementResult, Estimate
+from opencode.export.cell_guard import guard_cell
 from opencode.export.safe_write import atomic_open
 
 UNDEFINED = "undefined"
 _PERCENT = {"percent"}
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
 def _number(name: str, value: float | None) -> str:
@@ -141,11 +141,6 @@ def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | N
     return "\n\n".join(parts) + "\n"
 
 
-def _safe_cell(text: str) -> str:
-    """Guard a text cell against formula injection (OWASP "CSV Injection"): prefix a single quote."""
-    return "'" + text if text.startswith(_FORMULA_START) else text
-
-
 def _csv_number(value) -> str:
     return "" if value is None else repr(float(value))
 
@@ -179,7 +174,7 @@ def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
     for q in result.confused_pairs:
         rows.append(["confused_pair", str(q.code_a), result.label(q.code_a), str(q.code_b), coders, "times",
                      str(q.count), "", "", result.label(q.code_b)])
-    return [[str(x) if i in _CSV_NUMERIC else _safe_cell(str(x)) for i, x in enumerate(row)] for row in rows]
+    return [[str(x) if i in _CSV_NUMERIC else guard_cell(str(x)) for i, x in enumerate(row)] for row in rows]
 
 
 def write_agreement_csv(result: AgreementResult, path: str | os.PathLike) -> Path:

@@ -25,7 +25,7 @@ from sklearn.exceptions import ConvergenceWarning
 
 from opencode.analysis.coherence import coherence, top_term_indices
 from opencode.analysis.theme_stability import stability
-from opencode.analysis.themes import ThemeFinder, as_count_matrix, check_corpus
+from opencode.analysis.themes import ThemeFinder, as_count_matrix, check_corpus, leading_svd, nndsvd_start
 from opencode.errors import OpenCodeError
 
 DEFAULT_K_RANGE = "4:20"
@@ -73,18 +73,29 @@ def parse_k_range(spec: str | Iterable[int]) -> list[int]:
     return ks
 
 
-def _fit_k(template: ThemeFinder, k: int, model_input, resamples: list[np.ndarray], n_top: int, max_iter: int,
-           tol: float) -> tuple[ThemeFinder, np.ndarray, list[np.ndarray]]:
-    """The reference fit for k on all rows, its top terms, and the top terms of each resample's fit."""
-    reference = clone(template).set_params(n_themes=k)
-    reference._fit_input(model_input, np.ones(model_input.shape[0], dtype=bool), max_iter=max_iter, tol=tol)
-    resampled_tops = []
-    for number, sample in enumerate(resamples, start=1):
+def _starts(template: ThemeFinder, matrices: list, k_max: int) -> list | None:
+    """One SVD per matrix, shared by every k (NMF with an NNDSVD start); None when the model starts itself."""
+    if template.method != "nmf" or template._nmf_init() not in ("nndsvd", "nndsvda"):
+        return None
+    return [(leading_svd(m, k_max, template.random_state), m.mean()) for m in matrices]
+
+
+def _fit_k(template: ThemeFinder, k: int, matrices: list, starts: list | None, n_top: int, max_iter: int,
+           tol: float) -> tuple[ThemeFinder, list[np.ndarray]]:
+    """Fit k themes on each matrix (the reference first, then the resamples); the fits and their top terms."""
+    fits, tops = [], []
+    variant = template._nmf_init() if starts is not None else None
+    for number, matrix in enumerate(matrices):
         seed = None if template.random_state is None else template.random_state + number
-        other = clone(template).set_params(n_themes=k, random_state=seed)
-        other._fit_input(model_input[sample], np.ones(sample.size, dtype=bool), max_iter=max_iter, tol=tol)
-        resampled_tops.append(top_term_indices(other.components_, n_top))
-    return reference, top_term_indices(reference.components_, n_top), resampled_tops
+        finder = clone(template).set_params(n_themes=k, random_state=seed)
+        start = None
+        if starts is not None:
+            (u, sv, vt), mean = starts[number]
+            start = nndsvd_start(u[:, :k], sv[:k], vt[:k], variant, mean)
+        finder._fit_input(matrix, np.ones(matrix.shape[0], dtype=bool), max_iter=max_iter, tol=tol, start=start)
+        fits.append(finder)
+        tops.append(top_term_indices(finder.components_, n_top))
+    return fits[0], tops
 
 
 def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: str = "nmf", n_top: int = 10,
@@ -117,12 +128,14 @@ def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: 
     n_kept = model_input.shape[0]
     resamples = [np.sort(rng.choice(n_kept, size=max(ks[-1], int(sample_fraction * n_kept)), replace=False))
                  for _ in range(n_resamples)]
+    matrices = [model_input] + [model_input[sample] for sample in resamples]
+    starts = _starts(template, matrices, ks[-1])
     rows = []
     for done, k in enumerate(ks, start=1):
         started = time.perf_counter()
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)  # the search stops early on purpose
-            reference, top, resampled_tops = _fit_k(template, k, model_input, resamples, n_top, max_iter, tol)
+            reference, (top, *resampled_tops) = _fit_k(template, k, matrices, starts, n_top, max_iter, tol)
         npmi, umass = coherence(kept_counts, top)
         rows.append({"k": k, "npmi": float(npmi.mean()), "umass": float(umass.mean()),
                      "stability": stability(top, resampled_tops),

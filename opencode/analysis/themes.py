@@ -17,8 +17,8 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 from sklearn.decomposition import NMF, LatentDirichletAllocation
-from sklearn.decomposition._nmf import _initialize_nmf
 from sklearn.feature_extraction.text import TfidfTransformer
+from sklearn.utils.extmath import randomized_svd
 
 from opencode.errors import OpenCodeError
 
@@ -102,6 +102,41 @@ def row_shares(weights: np.ndarray) -> np.ndarray:
     """Rows scaled to sum to one (rows of zeros stay zero)."""
     total = weights.sum(axis=1, keepdims=True)
     return np.divide(weights, total, out=np.zeros_like(weights), where=total > 0)
+
+
+def nndsvd_start(u: np.ndarray, s: np.ndarray, vt: np.ndarray, variant: str, mean: float,
+                 eps: float = 1e-6) -> tuple[np.ndarray, np.ndarray]:
+    """NNDSVD start (Boutsidis & Gallopoulos 2008) for NMF from the leading singular triplets u, s, vt.
+
+    Each triplet after the first keeps the larger of its positive and negative parts; "nndsvda" fills zeros
+    with the mean of the data, "nndsvd" keeps them. The first k triplets of one SVD give the start for every
+    k up to its rank, which spares the k search one SVD per k.
+    """
+    tiny = np.finfo(float).tiny
+    pos_u, neg_u = np.maximum(u, 0), np.maximum(-u, 0)
+    pos_v, neg_v = np.maximum(vt, 0), np.maximum(-vt, 0)
+    pos_u_norm, neg_u_norm = np.linalg.norm(pos_u, axis=0), np.linalg.norm(neg_u, axis=0)
+    pos_v_norm, neg_v_norm = np.linalg.norm(pos_v, axis=1), np.linalg.norm(neg_v, axis=1)
+    positive = pos_u_norm * pos_v_norm > neg_u_norm * neg_v_norm
+    sigma = np.where(positive, pos_u_norm * pos_v_norm, neg_u_norm * neg_v_norm)
+    scale = np.sqrt(s * sigma)
+    w = np.where(positive, pos_u / np.maximum(pos_u_norm, tiny), neg_u / np.maximum(neg_u_norm, tiny)) * scale
+    h = np.where(positive[:, None], pos_v / np.maximum(pos_v_norm, tiny)[:, None],
+                 neg_v / np.maximum(neg_v_norm, tiny)[:, None]) * scale[:, None]
+    # The leading singular triplet is non-negative up to sign and is used as it is.
+    w[:, 0] = np.sqrt(s[0]) * np.abs(u[:, 0])
+    h[0] = np.sqrt(s[0]) * np.abs(vt[0])
+    w[w < eps] = 0.0
+    h[h < eps] = 0.0
+    if variant == "nndsvda":
+        w[w == 0] = mean
+        h[h == 0] = mean
+    return w, h
+
+
+def leading_svd(matrix: sp.csr_matrix, rank: int, random_state: int | None) -> tuple[np.ndarray, ...]:
+    """Randomized truncated SVD (Halko, Martinsson & Tropp 2011), as scikit-learn's NNDSVD computes it."""
+    return randomized_svd(matrix, rank, random_state=random_state)
 
 
 class ThemeFinder(BaseEstimator):
@@ -208,9 +243,10 @@ class ThemeFinder(BaseEstimator):
         unseeded = np.ones(n_terms)
         unseeded[np.concatenate(seed_columns)] = 0.0
         rest = matrix @ sp.diags(unseeded)
-        w_rest, h_rest = _initialize_nmf(rest, k - n_seeded, init=self._nmf_init(), random_state=self.random_state)
+        variant = "nndsvd" if self._nmf_init() == "nndsvd" else "nndsvda"
+        w_rest, h_rest = nndsvd_start(*leading_svd(rest, k - n_seeded, self.random_state), variant, rest.mean())
         w0 = np.hstack([np.maximum(w_seed, background), w_rest])
-        h0 = np.vstack([h_seed, np.maximum(h_rest, background if self._nmf_init() != "nndsvd" else 0.0)])
+        h0 = np.vstack([h_seed, h_rest])
         return w0, h0
 
     def model_input(self, counts: sp.csr_matrix) -> tuple[sp.csr_matrix, TfidfTransformer | None]:
@@ -232,11 +268,16 @@ class ThemeFinder(BaseEstimator):
         return self._fit_input(model_input, keep)
 
     def _fit_input(self, model_input: sp.csr_matrix, keep: np.ndarray, max_iter: int | None = None,
-                   tol: float | None = None) -> "ThemeFinder":
-        """Fit the model on prepared input rows (the included verbatims) and derive the per-verbatim results."""
+                   tol: float | None = None, start: tuple[np.ndarray, np.ndarray] | None = None) -> "ThemeFinder":
+        """Fit the model on prepared input rows (the included verbatims) and derive the per-verbatim results.
+
+        start: an NMF (W, H) start computed elsewhere (the k search shares one SVD across k).
+        """
         seed_columns = getattr(self, "seed_columns_", [])
-        if seed_columns:
-            w0, h0 = self._seeded_init(model_input, seed_columns)
+        if seed_columns and start is None:
+            start = self._seeded_init(model_input, seed_columns)
+        if start is not None:
+            w0, h0 = (np.array(part, dtype=np.float64) for part in start)
             model = self._estimator(self.n_themes, init="custom", max_iter=max_iter, tol=tol)
             kept_weights = model.fit_transform(model_input, W=w0, H=h0)
         else:

@@ -32,8 +32,8 @@ def two_by_two(X, y) -> dict[str, np.ndarray]:
     """Cells of each term's 2x2 table with a 0/1 outcome: a = term & y=1, b = term & y=0, c, d = without."""
     y = np.asarray(y).astype(bool)
     P = presence(X)
-    a = np.asarray(P[y].sum(axis=0)).ravel()
-    b = np.asarray(P[~y].sum(axis=0)).ravel()
+    a = np.asarray(P[y].sum(axis=0)).ravel().astype(np.int64)
+    b = np.asarray(P[~y].sum(axis=0)).ravel().astype(np.int64)
     return {"a": a, "b": b, "c": y.sum() - a, "d": (~y).sum() - b}
 
 

@@ -84,7 +84,7 @@ def codebook_markdown(study: Study, question: str, coder: str | None = None, exa
                             ("Rule: ", c.rule)):
             if text:
                 lines.append(f"{title}{text}  ")
-        lines += [f"> {t}" for t in e.examples]
+        lines += [f"- \u201c{t}\u201d" for t in e.examples]
         lines.append("")
     return "\n".join(lines)
 

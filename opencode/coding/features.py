@@ -15,10 +15,13 @@ from opencode.study.store import Study
 
 
 def default_analyzer(study: Study | None = None, question: str | None = None):
-    """The analyzer used for a question's rules and models (the default analyzer until studies keep lexicons)."""
+    """The analyzer used for a question's rules and models: the question's lexicon (plain default without one)."""
     from opencode.text.analyzer import Analyzer
+    from opencode.text.study_text import analyzer_for
 
-    return Analyzer()
+    if study is None or question is None:
+        return Analyzer()
+    return analyzer_for(study, question)
 
 
 def terms_of(analyzer: Any, text: str) -> list[str]:

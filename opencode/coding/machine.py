@@ -27,19 +27,40 @@ def _sigmoid(z: np.ndarray) -> np.ndarray:
     return 0.5 * (1.0 + np.tanh(0.5 * z))
 
 
-def _platt(decision: np.ndarray, y: np.ndarray) -> tuple[float, float]:
-    """Platt (1999) scaling: P(y=1 | f) = sigmoid(a f + b), fitted by logistic regression on Platt's smoothed
-    targets (N+ + 1) / (N+ + 2) and 1 / (N- + 2), which keeps small classes from giving 0 or 1 probabilities."""
-    positives = int(y.sum())
+def _platt(decision: np.ndarray, y: np.ndarray, iterations: int = 100) -> tuple[float, float]:
+    """Platt (1999) scaling: P(y=1 | f) = sigmoid(a f + b) on Platt's smoothed targets (N+ + 1) / (N+ + 2) and
+    1 / (N- + 2), which keep small classes from reaching 0 or 1; fitted by Newton's method with backtracking
+    as in Lin, Lin & Weng (2007), "A note on Platt's probabilistic outputs for support vector machines"."""
+    f = np.asarray(decision, dtype=float)
+    positives = float(np.sum(y))
     negatives = len(y) - positives
-    high = (positives + 1.0) / (positives + 2.0)
-    low = 1.0 / (negatives + 2.0)
-    target = np.where(y, high, low)
-    features = np.concatenate([decision, decision]).reshape(-1, 1)
-    labels = np.concatenate([np.ones(len(y)), np.zeros(len(y))])
-    weights = np.concatenate([target, 1.0 - target])
-    model = LogisticRegression(C=1e6, solver="lbfgs").fit(features, labels, sample_weight=weights)
-    return float(model.coef_[0, 0]), float(model.intercept_[0])
+    t = np.where(y, (positives + 1.0) / (positives + 2.0), 1.0 / (negatives + 2.0))
+    a, b = 0.0, float(np.log((positives + 1.0) / (negatives + 1.0)))  # Platt's starting point
+
+    def loss(a: float, b: float) -> float:
+        z = a * f + b
+        return float(np.sum(np.logaddexp(0.0, z) - t * z))
+
+    current = loss(a, b)
+    for _ in range(iterations):
+        p = _sigmoid(a * f + b)
+        w = p * (1.0 - p) + 1e-12
+        g = np.array([np.sum((p - t) * f), np.sum(p - t)])
+        h = np.array([[np.sum(w * f * f) + 1e-12, np.sum(w * f)], [np.sum(w * f), np.sum(w) + 1e-12]])
+        if np.abs(g).max() < 1e-6:
+            break
+        step = np.linalg.solve(h, g)
+        size = 1.0
+        while size > 1e-8:
+            na, nb = a - size * step[0], b - size * step[1]
+            new = loss(na, nb)
+            if new <= current - 1e-4 * size * float(g @ step):  # Armijo condition
+                break
+            size /= 2.0
+        if size <= 1e-8:
+            break
+        a, b, current = na, nb, new
+    return float(a), float(b)
 
 
 def code_metrics(y: np.ndarray, predicted: np.ndarray) -> dict[str, np.ndarray]:
@@ -155,6 +176,14 @@ class MachineCoder:
     @classmethod
     def from_state(cls, meta: dict[str, Any], blob: bytes) -> "MachineCoder":
         """Rebuild a fitted model from `to_state` output (arrays loaded with allow_pickle=False)."""
+        try:
+            return cls._from_state(meta, blob)
+        except (ValueError, KeyError, OSError) as error:
+            raise OpenCodeError(f"the stored machine coder is damaged or not one of ours ({error}); train it again"
+                                ) from error
+
+    @classmethod
+    def _from_state(cls, meta: dict[str, Any], blob: bytes) -> "MachineCoder":
         model = cls(**meta["params"])
         with np.load(io.BytesIO(blob), allow_pickle=False) as arrays:
             model.coef_ = arrays["coef"]

@@ -96,7 +96,8 @@ def code_counts(study: Study, question_id: int, coder: str, sources: tuple[str, 
 def uncoded_ids(study: Study, question_id: int, coder: str, after: int | None, limit: int | None,
                 include_nonanswers: bool) -> list[int]:
     """Verbatim ids (ascending) the coder has neither hand-coded nor marked done."""
-    query = ("SELECT v.id FROM verbatims v WHERE v.question_id = ? AND v.id > ? "
+    # "+v.question_id" keeps SQLite walking the rowid in order (fast with a LIMIT) instead of sorting the question
+    query = ("SELECT v.id FROM verbatims v WHERE +v.question_id = ? AND v.id > ? "
              "AND NOT EXISTS (SELECT 1 FROM coded_marks m WHERE m.verbatim_id = v.id AND m.coder = ?) "
              "AND NOT EXISTS (SELECT 1 FROM assignments a WHERE a.coder = ? AND a.verbatim_id = v.id "
              "AND a.source = 'hand')")

@@ -17,12 +17,11 @@ class RuleHighlighter:
     """Finds the character spans of rule words in a text (words pass through the same analyzer as rules)."""
 
     def __init__(self, rules: Iterable[str], analyzer: Any = None):
-        self.analyzer = analyzer or default_analyzer()
+        rules = [r for r in rules if r.strip()]
+        self.analyzer = analyzer or (default_analyzer() if rules else None)
         self.terms: set[str] = set()
         self.broken: list[str] = []
         for rule in rules:
-            if not rule.strip():
-                continue
             try:
                 self.terms |= parse_rule(rule, self.analyzer).terms
             except OpenCodeError:

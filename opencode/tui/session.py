@@ -20,7 +20,7 @@ from opencode.errors import OpenCodeError
 from opencode.study import desk_queries as dq
 from opencode.study import survey_data
 from opencode.study.store import Study
-from opencode.tui.search_spec import SearchSpec, parse_search
+from opencode.tui.search_spec import parse_search
 
 #: Closed-ended variables shown beside a verbatim (at most this many, in file order).
 MAX_CONTEXT = 8
@@ -61,7 +61,7 @@ class DeskSession:
         self.confidence_bar = DEFAULT_CONFIDENCE_BAR
         self.all_ids = dq.question_verbatim_ids(self.study, self.question.id)
         self.view = self.all_ids
-        self.search: SearchSpec | None = None
+        self.search: str | None = None  # what the view is limited to, in words (None: every verbatim)
         self.position = 0
         self._respondents = dq.respondent_row_ids(self.study)
         self._context = self._load_context()
@@ -166,14 +166,14 @@ class DeskSession:
         return [] if vid is None else dq.other_coders_codes(self.study, vid, self.coder)
 
     def context(self) -> list[tuple[str, str]]:
-        """(variable label, answer label) of the respondent's closed-ended answers."""
+        """(variable name, answer label) of the respondent's closed-ended answers."""
         card = self.card()
         if card is None:
             return []
         row = int(np.searchsorted(self._respondents, card.respondent_id))
         if row >= self._respondents.size or self._respondents[row] != card.respondent_id:
             return []
-        return [(variable.label or variable.name, _answer(variable, values[row])) for variable, values in self._context]
+        return [(variable.name, _answer(variable, values[row])) for variable, values in self._context]
 
     def _load_context(self) -> list[tuple[survey_data.Variable, object]]:
         shown = [v for v in survey_data.list_variables(self.study)
@@ -181,10 +181,12 @@ class DeskSession:
                  and v.origin == "import"][:MAX_CONTEXT]
         return [(v, survey_data.raw_values(self.study, v.name)) for v in shown]
 
-    def pace(self) -> float:
-        """Verbatims coded in this session per hour."""
-        hours = max(self.clock() - self.started, 1.0) / 3600.0
-        return len(self.session_coded) / hours
+    def pace(self) -> float | None:
+        """Verbatims coded in this session per hour (None in the first minute, when it means little)."""
+        seconds = self.clock() - self.started
+        if seconds < 60:
+            return None
+        return len(self.session_coded) / (seconds / 3600.0)
 
     # -- moving ----------------------------------------------------------------------------------------------
     def move(self, step: int) -> None:
@@ -268,10 +270,14 @@ class DeskSession:
                               nonanswer=spec.nonanswer)
         if found.size == 0:
             return 0
-        current = self.current_id
-        self.search, self.view = spec, found
-        self.position = int(np.searchsorted(found, current)) if current is not None else 0
+        self.show_ids(found, spec.describe())
         return int(found.size)
+
+    def show_ids(self, ids: np.ndarray, label: str) -> None:
+        """Limit the view to these verbatim ids (ascending), described by `label`; stays near the current one."""
+        current = self.current_id
+        self.search, self.view = label, np.asarray(ids, dtype=np.int64)
+        self.position = int(np.searchsorted(self.view, current)) if current is not None else 0
 
     def clear_search(self) -> None:
         """Back to every verbatim, staying on the one shown."""
@@ -369,6 +375,13 @@ class DeskSession:
         if assign_here and kind == "code" and self.current_id is not None:
             self.toggle(code.number)
         return code
+
+    def bulk_assign(self, verbatim_ids: list[int], number: int) -> int:
+        """Give one code as this coder's hand code to many verbatims, all in one transaction; how many got it."""
+        with self.study.transaction():
+            given = sum(coding.assign(self.study, int(vid), number, self.coder) for vid in verbatim_ids)
+        self.refresh_counts()
+        return int(given)
 
     def undo(self) -> str | None:
         """Undo this coder's newest change; the action undone, or None."""

@@ -64,8 +64,8 @@ class DeskScreen(Screen):
 
     # -- life cycle ------------------------------------------------------------------------------------------
     def on_mount(self) -> None:
-        self.highlighter = RuleHighlighter([])
-        self._rules_seen: tuple[str, ...] | None = None
+        self.highlighter: RuleHighlighter | None = None
+        self._rules_wanted: tuple[str, ...] | None = None
         seconds = getattr(self.app, "refresh_seconds", 0)
         if seconds:
             self.set_interval(seconds, self.periodic_refresh)
@@ -82,11 +82,23 @@ class DeskScreen(Screen):
         return self.app.session
 
     # -- drawing ---------------------------------------------------------------------------------------------
-    def _highlighter(self) -> RuleHighlighter:
+    def _spans(self, text: str) -> list[tuple[int, int]]:
+        """Rule words to mark; the analyzer loads in a thread so the first screen never waits for it."""
         rules = tuple(sorted(c.rule for c in self.session.codes if c.rule and c.active))
-        if rules != self._rules_seen:
-            self.highlighter, self._rules_seen = RuleHighlighter(rules), rules
-        return self.highlighter
+        if rules != self._rules_wanted:
+            self._rules_wanted = rules
+            self.run_worker(lambda: self._build_highlighter(rules), thread=True, group="highlight",
+                            exclusive=True)
+        return self.highlighter.spans(text) if self.highlighter is not None else []
+
+    def _build_highlighter(self, rules: tuple[str, ...]) -> None:
+        highlighter = RuleHighlighter(rules)
+        self.app.call_from_thread(self._highlighter_ready, highlighter, rules)
+
+    def _highlighter_ready(self, highlighter: RuleHighlighter, rules: tuple[str, ...]) -> None:
+        if rules == self._rules_wanted:
+            self.highlighter = highlighter
+            self.redraw()
 
     def redraw(self) -> None:
         """Draw everything from the study (a handful of indexed reads)."""
@@ -100,20 +112,21 @@ class DeskScreen(Screen):
         if s.question.label and s.question.label != s.question.name:
             top.append(f" {s.question.label}")
         top.append(f"  ·  {s.coder}  ·  {s.counts.coded:,}/{total:,} coded ({share})")
-        if getattr(self.app, "show_pace", True):
-            top.append(f"  ·  {s.pace():,.0f}/h")
+        pace = s.pace() if getattr(self.app, "show_pace", True) else None
+        if pace is not None:
+            top.append(f"  ·  {pace:,.0f}/h this session")
         self.query_one("#topbar", Static).update(top)
         head = Text()
         if card is not None:
             head.append(f"respondent {card.respondent}", style="bold")
             where = f"{s.position + 1:,} of {s.view.size:,}"
-            head.append(f"  ·  {where}" + (f" found ({s.search.describe()})" if s.search else ""))
+            head.append(f"  ·  {where}" + (f" found ({s.search})" if s.search else ""))
             if s.is_done():
                 head.append("  ·  done ✓", style="bold")
             if card.nonanswer:
                 head.append("  ·  non-answer", style="italic")
         self.query_one("#card-head", Static).update(head)
-        spans = self._highlighter().spans(card.text) if card is not None else []
+        spans = self._spans(card.text) if card is not None else []
         self.query_one("#verbatim", VerbatimView).show(card, spans)
         self.query_one("#verbatim-pane", Pane).scroll_home(animate=False)
         self.query_one("#context", ContextPane).show(s.context())

@@ -93,7 +93,7 @@ class NotePane(Static):
 
 
 class FrameList(Static):
-    """The code frame: hotkey, number, label and this coder's count; held codes marked, nets as headings."""
+    """The code frame: hotkey, number, this coder's count and label; held codes marked, nets in bold."""
 
     def show(self, codes: Sequence[Code], counts: dict[int, int], net_counts: dict[int, int],
              held: dict[int, AssignedCode]) -> None:
@@ -113,8 +113,9 @@ class FrameList(Static):
                 text.append("\n")
             indent = "  " * depth
             if code.is_net:
-                text.append(f"   {code.number:>3} {indent}{code.label}", style="bold")
-                text.append(f"  {net_counts.get(code.number, 0)}", style="dim")
+                text.append(f"   {code.number:>3} ")
+                text.append(f"{net_counts.get(code.number, 0):>5}", style="dim")
+                text.append(f" {indent}{code.label}", style="bold")
                 continue
             mark = held.get(code.number)
             symbol, style = " ", ""
@@ -123,9 +124,10 @@ class FrameList(Static):
             elif mark is not None:
                 symbol, style = "◌", "italic"
             text.append(f"{symbol}{code.hotkey or ' '}", style="bold")
-            text.append(f" {code.number:>3} {indent}")
+            text.append(f" {code.number:>3} ")
+            text.append(f"{counts.get(code.number, 0):>5}", style="dim")
+            text.append(f" {indent}")
             text.append(code.label, style=style)
-            text.append(f"  {counts.get(code.number, 0)}", style="dim")
         self.update(text)
 
 

@@ -1,0 +1,141 @@
+"""`oecode sample` (reliability samples for blind double coding) and `oecode agree` (agreement, adjudication)."""
+
+from __future__ import annotations
+
+import argparse
+import html
+
+from opencode.analysis.agreement_report import format_agreement_html, format_agreement_text, write_agreement_csv
+from opencode.coding import adjudication, reliability
+from opencode.errors import OpenCodeError
+from opencode.export.safe_write import atomic_open
+from opencode.study.store import Study
+
+SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
+ADJUDICATE = ("agreed", "take", "union", "set", "undo")
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    s = subparsers.add_parser("sample", help="reliability samples: draw verbatims for blind double coding, "
+                              "assign them to coders, follow progress")
+    s.add_argument("study")
+    s.add_argument("action", choices=SAMPLE_ACTIONS)
+    s.add_argument("--question", required=True, help="the open question")
+    s.add_argument("--name", help="the sample's name (draw, assign, status)")
+    size = s.add_mutually_exclusive_group()
+    size.add_argument("--n", type=int, help="draw: how many verbatims")
+    size.add_argument("--percent", type=float, help="draw: what percentage of the verbatims")
+    s.add_argument("--strata", help="draw: a closed-ended variable to stratify by (proportional allocation)")
+    s.add_argument("--seed", type=int, default=0, help="draw: the random seed (default 0; same seed, same sample)")
+    s.add_argument("--include-nonanswers", action="store_true", help="draw: also draw non-answers")
+    s.add_argument("--coders", help="assign: the coders, comma-separated (e.g. ash,bryn)")
+    s.add_argument("--actor", default="opencode", help="who does this (for the audit trail)")
+    s.set_defaults(handler=run_sample)
+
+    a = subparsers.add_parser("agree", help="agreement between coders (kappa, alpha, AC1) and adjudication into final")
+    a.add_argument("study")
+    a.add_argument("--question", required=True, help="the open question")
+    a.add_argument("--coders", required=True, help=f"coders compared, comma-separated; {reliability.MACHINE!r} "
+                   "stands for the machine coder's suggestions")
+    a.add_argument("--sample", help="only the verbatims of this reliability sample")
+    a.add_argument("--resamples", type=int, default=1000, help="bootstrap resamples for intervals (0: none)")
+    a.add_argument("--seed", type=int, default=0, help="bootstrap seed")
+    a.add_argument("--top", type=int, default=10, help="how many disputed verbatims and swapped codes to list")
+    a.add_argument("--csv", help="also write the results as a long CSV file")
+    a.add_argument("--html", help="also write the results as an HTML page")
+    a.add_argument("--differences", type=int, metavar="N", help="list N verbatims where the coders differ")
+    a.add_argument("--adjudicate", choices=ADJUDICATE, help="agreed: put verbatims all coders coded alike into "
+                   "final; take / union / set: settle one --verbatim; undo: reverse final's last change")
+    a.add_argument("--verbatim", type=int, help="adjudicate take / union / set: the verbatim id")
+    a.add_argument("--side", help="adjudicate take: whose codes final takes")
+    a.add_argument("--codes", help="adjudicate set: final's codes, comma-separated numbers (empty: no code)")
+    a.add_argument("--actor", default="opencode", help="who adjudicates (for the audit trail)")
+    a.set_defaults(handler=run_agree)
+
+
+def _need(args: argparse.Namespace, verb: str, *names: str) -> None:
+    for name in names:
+        if getattr(args, name) is None:
+            raise OpenCodeError(f"{verb}: --{name.replace('_', '-')} is needed")
+
+
+def run_sample(args: argparse.Namespace) -> int:
+    with Study.open(args.study) as study:
+        if args.action == "list":
+            found = reliability.list_samples(study, args.question)
+            print("\n\n".join(map(reliability.format_sample, found)) if found
+                  else f"question {args.question!r} has no reliability samples yet")
+            return 0
+        _need(args, f"sample {args.action}", "name")
+        if args.action == "draw":
+            if args.n is None and args.percent is None:
+                raise OpenCodeError("sample draw: give --n N or --percent P")
+            drawn = reliability.draw_sample(study, args.question, args.name, n=args.n, percent=args.percent,
+                                            strata=args.strata, random_state=args.seed,
+                                            include_nonanswers=args.include_nonanswers, actor=args.actor)
+            print(reliability.format_sample(drawn))
+        elif args.action == "assign":
+            _need(args, "sample assign", "coders")
+            assigned = reliability.assign_sample(study, args.question, args.name, args.coders, actor=args.actor)
+            print(f"sample {assigned.name}: {len(assigned.verbatim_ids):,} verbatims, coded blind by "
+                  f"{', '.join(assigned.coders)}")
+        else:
+            print(reliability.format_sample_status(reliability.sample_status(study, args.question, args.name)))
+    return 0
+
+
+def _adjudicate(study: Study, args: argparse.Namespace) -> None:
+    verb = f"agree --adjudicate {args.adjudicate}"
+    if args.adjudicate == "agreed":
+        count = adjudication.accept_agreed(study, args.question, args.coders, args.sample, actor=args.actor)
+        print(f"final: {count:,} verbatims that {', '.join(reliability.parse_coders(args.coders))} coded alike "
+              "were settled" + (" (undo with --adjudicate undo)" if count else ""))
+        return
+    if args.adjudicate == "undo":
+        action = adjudication.undo_last(study)
+        print(f"undid final's last change ({action})" if action else "final has nothing to undo")
+        return
+    _need(args, verb, "verbatim")
+    if args.adjudicate == "take":
+        _need(args, verb, "side")
+        held = adjudication.take(study, args.question, args.verbatim, args.side)
+    elif args.adjudicate == "union":
+        held = adjudication.take_union(study, args.question, args.verbatim, args.coders)
+    else:
+        _need(args, verb, "codes")
+        try:
+            numbers = [int(x) for x in args.codes.split(",") if x.strip()]
+        except ValueError as error:
+            raise OpenCodeError(f"{verb}: --codes {args.codes!r} is not a comma-separated list of code "
+                                "numbers") from error
+        held = adjudication.set_final(study, args.question, args.verbatim, numbers)
+    print(f"final now holds {', '.join(map(str, held)) or 'no code'} on verbatim {args.verbatim}")
+
+
+def _write_html(path: str, fragment: str, title: str) -> None:
+    with atomic_open(path, "w") as handle:
+        handle.write(f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>{html.escape(title)}'
+                     f"</title></head><body>\n{fragment}\n</body></html>\n")
+
+
+def run_agree(args: argparse.Namespace) -> int:
+    with Study.open(args.study) as study:
+        if args.adjudicate:
+            _adjudicate(study, args)
+            return 0
+        result = reliability.study_agreement(study, args.question, args.coders, args.sample,
+                                             n_resamples=args.resamples, random_state=args.seed, top=args.top)
+        where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
+        print(f"Agreement on {where}\n")
+        print(format_agreement_text(result), end="")
+        if args.csv:
+            print(f"\nwrote {write_agreement_csv(result, args.csv)}")
+        if args.html:
+            _write_html(args.html, format_agreement_html(result, f"Coder agreement: {where}"),
+                        f"Coder agreement: {where}")
+            print(f"wrote {args.html}")
+        if args.differences is not None:
+            found = adjudication.differences(study, args.question, args.coders, args.sample, args.differences)
+            print(f"\nVerbatims where the coders differ (first {args.differences})\n")
+            print(adjudication.format_differences(found, reliability.code_labels(study, args.question)))
+    return 0

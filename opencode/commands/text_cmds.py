@@ -1,0 +1,235 @@
+"""`oecode words | kwic | phrases | lexicon`: a question's terms, keyword in context, phrases and lexicon."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from opencode.commands.common import progress_bar
+from opencode.errors import OpenCodeError
+from opencode.study.store import Study
+from opencode.text import study_text as st
+from opencode.text.merges import format_variants, suggest_variants
+from opencode.text.phrases import format_phrase_suggestions
+from opencode.text.words import format_top_terms, top_terms
+
+SMALL_BASE = 30  # common practice (no published source): read percentages on fewer than 30 with care
+_SHOW_IDS = 20
+PHRASE_ACTIONS = ("suggest", "add", "accept", "remove")
+LEXICON_ACTIONS = ("show", "stop-add", "stop-remove", "merge", "unmerge", "stem", "language", "exception",
+                   "variants", "import", "export")
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    words = subparsers.add_parser("words", help="a question's top terms with counts, %% of verbatims and word forms")
+    _common(words)
+    words.add_argument("--top", type=int, default=30, help="how many terms (default 30)")
+    words.add_argument("--where", metavar="VAR=CODE", action="append", default=[],
+                       help="only respondents with this code or value label (repeat: all must hold)")
+    words.set_defaults(handler=run_words)
+
+    kw = subparsers.add_parser("kwic", help="every occurrence of a term in its verbatims, aligned")
+    kw.add_argument("study")
+    kw.add_argument("term", help="a term, or any word form of it")
+    kw.add_argument("--question", required=True, help="the open question")
+    kw.add_argument("--width", type=int, default=40, help="characters of context each side (default 40)")
+    kw.add_argument("--limit", type=int, default=50, help="at most this many lines (default 50)")
+    kw.add_argument("--show", nargs="+", action="extend", default=[], metavar="VAR",
+                    help="closed-ended variables to show beside each line (by value label)")
+    kw.set_defaults(handler=run_kwic)
+
+    ph = subparsers.add_parser("phrases", help="suggest, add, accept or remove multi-word phrases")
+    _common(ph)
+    ph.add_argument("action", choices=PHRASE_ACTIONS)
+    ph.add_argument("values", nargs="*", help="add/remove: phrases in quotes; accept: ranks from the last list")
+    ph.add_argument("--min-count", type=int, default=5, help="suggest: pairs seen at least this often (default 5)")
+    ph.add_argument("--top", type=int, default=30, help="suggest: how many suggestions (default 30)")
+    ph.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    ph.set_defaults(handler=run_phrases)
+
+    lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language; "
+                                "import or export it")
+    lex.add_argument("study")
+    lex.add_argument("action", choices=LEXICON_ACTIONS)
+    lex.add_argument("values", nargs="*", help="the words, merge ('a,b->target'), on/off, language or file")
+    where = lex.add_mutually_exclusive_group(required=True)
+    where.add_argument("--question", help="the open question whose lexicon to use")
+    where.add_argument("--study-default", action="store_true",
+                       help="the study's default lexicon (used by questions without their own)")
+    lex.add_argument("--remove", action="store_true", help="exception: drop the word's stem exception")
+    lex.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    lex.set_defaults(handler=run_lexicon)
+
+
+def _common(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("study")
+    parser.add_argument("--question", required=True, help="the open question")
+
+
+def _warn(message: str) -> None:
+    print(f"warning: {message}", file=sys.stderr)
+
+
+def _ids(ids: list) -> str:
+    return ", ".join(map(str, ids[:_SHOW_IDS])) + (f" ... ({len(ids)} in all)" if len(ids) > _SHOW_IDS else "")
+
+
+def _matrix(study: Study, question: str) -> tuple:
+    tm, frame = st.term_matrix(study, question, progress=progress_bar("analysing verbatims"))
+    for message in tm.warnings:
+        _warn(message)
+    return tm, frame
+
+
+# -- words ----------------------------------------------------------------------------------------------------------
+def run_words(args: argparse.Namespace) -> int:
+    if args.top < 1:
+        raise OpenCodeError(f"--top {args.top}: give a number of terms of 1 or more")
+    with Study.open(args.study) as study:
+        tm, frame = _matrix(study, args.question)
+        subset, groups = None, []
+        for spec in args.where:
+            mask, label = st.group_mask(study, frame, spec)
+            subset = mask if subset is None else subset & mask
+            groups.append(label)
+        group = " and ".join(groups)
+        rows = top_terms(tm, args.top, subset)
+        base = tm.counts.shape[0] if subset is None else int(subset[tm.rows_source].sum())
+        print(f"question {args.question}: {base:,} verbatims analysed" + (f" ({group})" if group else "")
+              + f"; {len(tm.excluded_doc_ids):,} non-answers left out")
+        if base < SMALL_BASE:
+            _warn(f"small base: only {base} verbatims; read the percentages with care")
+        print(format_top_terms(rows))
+    return 0
+
+
+# -- kwic -------------------------------------------------------------------------------------------------------------
+def run_kwic(args: argparse.Namespace) -> int:
+    if args.width < 1 or args.limit < 1:
+        raise OpenCodeError("--width and --limit must be 1 or more")
+    with Study.open(args.study) as study:
+        _matrix(study, args.question)  # builds (with a progress bar) or loads the cached matrix
+        lines, columns = st.question_kwic(study, args.question, args.term, width=args.width, limit=args.limit,
+                                          show=args.show)
+        print(f"{args.term!r} in question {args.question}: {len(lines)} occurrence(s)"
+              + (f" (first {args.limit})" if len(lines) >= args.limit else ""))
+        if lines:
+            print(st.format_question_kwic(lines, columns, args.width))
+    return 0
+
+
+# -- phrases ------------------------------------------------------------------------------------------------------------
+def run_phrases(args: argparse.Namespace) -> int:
+    with Study.open(args.study) as study:
+        q = args.question
+        if args.action == "suggest":
+            rows = st.suggest_question_phrases(study, q, min_count=args.min_count, top=args.top,
+                                               progress=progress_bar("finding phrases"))
+            if not rows:
+                print(f"no word pair occurs {args.min_count} times or more in question {q}")
+                return 0
+            table = format_phrase_suggestions(rows).splitlines()
+            print("  #  " + table[0] + "\n" + "---  " + table[1])
+            for rank, line in enumerate(table[2:], start=1):
+                print(f"{rank:>3}  {line}")
+            print(f"accept with: oecode phrases {args.study} accept RANK [RANK ...] --question {q}")
+            return 0
+        if args.action == "accept":
+            try:
+                ranks = [int(v) for v in args.values]
+            except ValueError as error:
+                raise OpenCodeError(f"phrases accept: ranks are whole numbers, got {' '.join(args.values)}") from error
+            change = st.accept_phrase_suggestions(study, q, ranks, actor=args.actor)
+        elif args.action == "add":
+            change = st.add_phrases(study, q, args.values, actor=args.actor)
+        else:
+            change = st.remove_phrases(study, q, args.values, actor=args.actor)
+        _report(change)
+        if args.action != "remove" and change.details.get("added"):
+            tm, _ = st.term_matrix(study, q, progress=progress_bar("analysing verbatims"))
+            for phrase in st.missing_phrases(tm, st.analyzer_for(study, q), change.details["added"]):
+                _warn(f"phrase {phrase!r} never occurs in the verbatims of question {q} (kept in the lexicon)")
+    return 0
+
+
+def _report(change: st.LexiconChange) -> None:
+    for note in change.notes:
+        print(f"note: {note}")
+    if not change.changed:
+        print("lexicon unchanged")
+        return
+    details = "; ".join(f"{k}: {_plain(v)}" for k, v in change.details.items() if v not in (None, [], {}))
+    print(f"lexicon {change.action}" + (f" ({details})" if details else "") + f"; version {change.lexicon.version_hash()}")
+
+
+def _plain(value: object) -> str:
+    if isinstance(value, dict):
+        return ", ".join(f"{k} -> {v}" for k, v in value.items())
+    if isinstance(value, list):
+        return ", ".join(map(str, value))
+    return str(value)
+
+
+# -- lexicon -----------------------------------------------------------------------------------------------------------
+def _one(args: argparse.Namespace, what: str) -> str:
+    if len(args.values) != 1:
+        raise OpenCodeError(f"lexicon {args.action}: give exactly one {what}")
+    return args.values[0]
+
+
+def run_lexicon(args: argparse.Namespace) -> int:
+    q = None if args.study_default else args.question
+    who = "the study default" if q is None else f"question {q}"
+    with Study.open(args.study) as study:
+        action = args.action
+        if action == "show":
+            print(f"lexicon of {who} ({st.lexicon_origin(study, q)}), version {st.get_lexicon(study, q).version_hash()}")
+            print(st.get_lexicon(study, q).to_text(), end="")
+            return 0
+        if action == "export":
+            path = st.export_lexicon(study, q, _one(args, "file"))
+            print(f"wrote the lexicon of {who} to {path}")
+            return 0
+        if action == "variants":
+            if q is None:
+                raise OpenCodeError("lexicon variants: needs --question (variants come from a question's verbatims)")
+            tm, _ = _matrix(study, q)
+            rows = suggest_variants(tm)
+            print(format_variants(rows) if rows else f"no likely spelling variants in question {q}")
+            if rows:
+                print(f"merge one with: oecode lexicon {args.study} merge \"RARE->TERM\" --question {q}")
+            return 0
+        before = st.get_lexicon(study, q)
+        change = _change(study, q, args)
+        _report(change)
+        if action == "stop-add" and change.changed and q is not None:
+            emptied = st.stop_word_effect(study, q, before, progress=progress_bar("checking verbatims"))
+            if emptied:
+                _warn(f"{len(emptied)} verbatim(s) now have no term left (respondent ids): {_ids(emptied)}")
+    return 0
+
+
+def _change(study: Study, q: str | None, args: argparse.Namespace) -> st.LexiconChange:
+    action, actor = args.action, args.actor
+    if action == "stop-add":
+        return st.add_stop_words(study, q, args.values, actor=actor)
+    if action == "stop-remove":
+        return st.remove_stop_words(study, q, args.values, actor=actor)
+    if action == "merge":
+        sources, target = st.parse_merge(_one(args, "merge such as \"libary,liberry->library\""))
+        return st.add_merge(study, q, sources, target, actor=actor)
+    if action == "unmerge":
+        return st.remove_merges(study, q, args.values, actor=actor)
+    if action == "stem":
+        choice = _one(args, "of on, off, snowball, porter").lower()
+        stemmers = {"on": "snowball", "snowball": "snowball", "porter": "porter", "off": None}
+        if choice not in stemmers:
+            raise OpenCodeError(f"lexicon stem {choice!r}: choose on, off, snowball or porter")
+        return st.set_stemmer(study, q, stemmers[choice], actor=actor)
+    if action == "language":
+        return st.set_language(study, q, _one(args, "language"), actor=actor)
+    if action == "exception":
+        word, _, stem = _one(args, "WORD or WORD=STEM").partition("=")
+        return st.set_stem_exception(study, q, word, stem or None, actor=actor, remove=args.remove)
+    return st.import_lexicon(study, q, _one(args, "file"), actor=actor)
+

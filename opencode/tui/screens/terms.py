@@ -1,0 +1,174 @@
+"""The terms screen: the question's terms, kwic lines for the one selected, drivers when an outcome is set,
+and bulk coding of the verbatims containing a term after a review step.
+
+The term matrix is built in a thread (the screen stays responsive). Drivers come from `drivers_source`, a
+pluggable function: it returns rows to show, or a sentence saying why there are none.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+from opencode.coding.features import default_analyzer
+from opencode.errors import OpenCodeError
+from opencode.study import survey_data
+from opencode.text.kwic import kwic
+from opencode.text.matrix import TermMatrix, build_matrix
+from opencode.text.words import top_terms
+from opencode.tui.screens.modals import ConfirmModal, PromptModal
+from opencode.tui.widgets.panes import Pane
+
+MAX_TERMS = 300
+KWIC_LINES = 40
+
+
+def no_drivers(study, question: str, tm: TermMatrix) -> tuple[list[tuple[str, str]], str]:
+    """The default drivers source: none, with the reason (the drivers library plugs in here)."""
+    outcomes = survey_data.list_variables(study, role="outcome")
+    if not outcomes:
+        return [], "drivers: set a closed-ended outcome first (oecode drivers / a variable with role outcome)"
+    return [], f"drivers against {outcomes[0].name}: the drivers ranking is not available in this build yet"
+
+
+#: (study, question, term matrix) -> ([(term, figure text)], note). Replace to show a drivers ranking.
+drivers_source: Callable = no_drivers
+
+
+class TermsScreen(Screen):
+    """Terms by how many verbatims use them; kwic and bulk coding for the selected term."""
+
+    BINDINGS = [
+        Binding("c", "code_all", "code all with term"),
+        Binding("f", "find_on_desk", "show on desk"),
+        Binding("escape,f2", "app.show('desk')", "desk", key_display="esc"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static(" terms: reading the verbatims…", id="terms-title", classes="screen-title")
+        with Horizontal(classes="split"):
+            yield DataTable(id="terms-table", cursor_type="row", zebra_stripes=True)
+            with Pane(classes="side"):
+                yield Static(id="kwic")
+        yield Static(id="drivers", classes="detail")
+        yield Static(id="status")
+        yield Footer()
+
+    @property
+    def session(self):
+        return self.app.session
+
+    def on_mount(self) -> None:
+        table = self.query_one(DataTable)
+        table.add_columns("term", "verbatims", "%", "words")
+        table.focus()
+        self.tm: TermMatrix | None = None
+        self.rows = []
+        self.run_worker(self._build, thread=True, group="terms", exclusive=True)
+
+    def _build(self) -> None:
+        s = self.session
+        frame = survey_data.verbatims(s.study, s.question.name)
+        texts = frame["text"].tolist()
+        try:
+            tm = build_matrix(texts, default_analyzer(s.study, s.question.name),
+                              doc_ids=frame["verbatim_id"].tolist(), exclude=frame["nonanswer"].to_numpy())
+            rows = top_terms(tm, n=MAX_TERMS)
+            drivers = drivers_source(s.study, s.question.name, tm)
+        except OpenCodeError as error:
+            self.app.call_from_thread(self.say, str(error), True)
+            return
+        self.app.call_from_thread(self._ready, tm, texts, rows, drivers)
+
+    def _ready(self, tm: TermMatrix, texts: list[str], rows, drivers) -> None:
+        self.tm, self.texts, self.rows = tm, texts, rows
+        table = self.query_one(DataTable)
+        for row in rows:
+            table.add_row(row.label, row.verbatims, f"{row.percent:.1f}",
+                          ", ".join(form for form, _ in row.surfaces[:3]))
+        self.query_one("#terms-title", Static).update(
+            Text(f" terms of {self.session.question.name}  ·  {len(rows)} shown  ·  "
+                 f"{tm.counts.shape[0]:,} verbatims with terms", style="bold"))
+        found, note = drivers
+        text = Text()
+        for term, figure in found[:10]:
+            text.append(f"{term} {figure}   ")
+        self.query_one("#drivers", Static).update(text if found else Text(note, style="italic"))
+        self.show_kwic()
+
+    def selected(self):
+        table = self.query_one(DataTable)
+        if not self.rows or table.row_count == 0:
+            return None
+        return self.rows[min(table.cursor_row, len(self.rows) - 1)]
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.show_kwic()
+
+    def show_kwic(self) -> None:
+        row = self.selected()
+        if row is None or self.tm is None:
+            return
+        text = Text()
+        for line in kwic(self.tm, self.texts, row.term, width=30, limit=KWIC_LINES):
+            if text:
+                text.append("\n")
+            text.append(line.left.rjust(30), style="dim")
+            text.append(f" {line.match} ", style="bold underline")
+            text.append(line.right, style="dim")
+        self.query_one("#kwic", Static).update(text)
+
+    def say(self, message: str, error: bool = False) -> None:
+        status = self.query_one("#status", Static)
+        status.set_class(error, "error")
+        status.update(message)
+
+    def term_ids(self, term: str) -> list[int]:
+        """Verbatim ids of the rows that contain a term."""
+        column = self.tm.counts[:, self.tm.column(term)]
+        rows = np.unique(column.nonzero()[0])
+        return [int(self.tm.doc_ids[r]) for r in rows]
+
+    def action_code_all(self) -> None:
+        row = self.selected()
+        if row is None:
+            return
+        s = self.session
+        ids = self.term_ids(row.term)
+
+        def review(number_text: str | None) -> None:
+            if not number_text or not number_text.strip():
+                return
+            if not number_text.strip().isdigit() or s.code(int(number_text)) is None:
+                self.say(f"the frame has no code {number_text.strip()!r}", error=True)
+                return
+            number = int(number_text)
+            code = s.code(number)
+            sample = "\n".join(f"· {t[:90]}" for t in (self.texts[self.tm.rows_source[i]] for i in
+                                                      np.unique(self.tm.counts[:, self.tm.column(row.term)]
+                                                                .nonzero()[0])[:8]))
+            body = (f"Give code {number} {code.label} (as your hand code, {s.coder}) to the {len(ids):,} verbatims "
+                    f"containing {row.label!r}. Codes you hold already stay. First few:\n{sample}")
+            self.app.push_screen(ConfirmModal("Review before coding in bulk", body),
+                                 lambda ok: ok and apply(number))
+
+        def apply(number: int) -> None:
+            self.app.attempt(lambda: s.bulk_assign(ids, number),
+                             lambda n: self.say(f"code {number} given to {n:,} more verbatims"), self.say)
+        self.app.push_screen(PromptModal(f"Code every verbatim with {row.label!r} ({len(ids):,})",
+                                         "the code number to give them"), review)
+
+    def action_find_on_desk(self) -> None:
+        row = self.selected()
+        if row is None:
+            return
+        ids = self.term_ids(row.term)
+        self.session.show_ids(np.array(ids, dtype=np.int64), f"term {row.label}")
+        self.app.action_show("desk")

@@ -1,0 +1,99 @@
+"""`oecode sample` and `oecode agree` on the double-coded demo study: tables printed, files written, clear errors."""
+
+from __future__ import annotations
+
+import csv
+import re
+
+import pytest
+
+from opencode.cli import main
+from opencode.study.store import Study
+from test_reliability_store import csv_sets, demo_base, demo_copy  # noqa: F401 (fixtures)
+
+NAN = re.compile(r"\bnan\b", re.IGNORECASE)
+
+
+def run(capsys, *argv: str) -> tuple[int, str, str]:
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_sample_draw_assign_status_list(demo_copy, capsys):
+    code, out, _ = run(capsys, "sample", demo_copy, "draw", "--question", "why", "--name", "rel1", "--percent", "10",
+                       "--strata", "age_band", "--seed", "4")
+    assert code == 0 and "sample rel1 of question why: 221 of 2,211 verbatims" in out and "stratum" in out
+    code, out, _ = run(capsys, "sample", demo_copy, "assign", "--question", "why", "--name", "rel1",
+                       "--coders", "ash,bryn")
+    assert code == 0 and "coded blind by ash, bryn" in out
+    code, out, _ = run(capsys, "sample", demo_copy, "status", "--question", "why", "--name", "rel1")
+    assert code == 0 and re.search(r"^ash\s+\d+\s+\d+", out, re.M) and "finished by every assigned coder" in out
+    code, out, _ = run(capsys, "sample", demo_copy, "list", "--question", "why")
+    assert code == 0 and "coders: ash, bryn" in out
+
+
+def test_agree_prints_tables_and_writes_csv_and_html(demo_copy, tmp_path, capsys):
+    target_csv, target_html = tmp_path / "agree.csv", tmp_path / "agree.html"
+    code, out, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--resamples", "50",
+                         "--csv", target_csv, "--html", target_html, "--differences", "2")
+    assert code == 0, err
+    for part in ("Across the code frame", "Per code (present / absent)", "Cohen's kappa", "Coder pair ash and bryn",
+                 "Not safe without staff", "300 by two or more coders", "Verbatims where the coders differ"):
+        assert part in out
+    assert not NAN.search(out)
+    assert out.count("(respondent ") == 2
+    with open(target_csv, newline="", encoding="utf-8") as handle:
+        rows = list(csv.reader(handle))
+    assert rows[0][:2] == ["section", "code"] and len(rows) > 50
+    page = target_html.read_text(encoding="utf-8")
+    assert page.startswith("<!DOCTYPE html>") and '<section class="oc-agreement">' in page
+
+
+def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys):
+    sets = csv_sets()
+    agreed = sum(sets["ash"][r] == sets["bryn"][r] for r in sets["ash"])
+    run(capsys, "sample", demo_copy, "draw", "--question", "why", "--name", "rel1", "--n", "400", "--seed", "1")
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--sample", "rel1",
+                       "--resamples", "0")
+    assert code == 0 and "reliability sample rel1" in out
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn",
+                       "--adjudicate", "agreed")
+    assert code == 0 and f"final: {agreed:,} verbatims" in out
+    with Study.open(demo_copy) as study:
+        settled = study.db.execute("SELECT COUNT(DISTINCT verbatim_id) FROM assignments WHERE coder = 'final'"
+                                   ).fetchone()[0]
+        marked = study.db.execute("SELECT COUNT(*) FROM coded_marks WHERE coder = 'final'").fetchone()[0]
+    assert settled + marked == agreed
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate", "undo")
+    assert code == 0 and "undid final's last change" in out
+
+
+def test_agree_settles_one_verbatim(demo_copy, capsys):
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--resamples", "0",
+                       "--differences", "1")
+    verbatim = re.search(r"^verbatim (\d+) ", out, re.M).group(1)
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate", "set",
+                       "--verbatim", verbatim, "--codes", "1,7")
+    assert code == 0 and f"final now holds 1, 7 on verbatim {verbatim}" in out
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate",
+                       "take", "--verbatim", verbatim, "--side", "ash")
+    assert code == 0 and "final now holds" in out
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["agree", "--question", "why", "--coders", "ash,cy"], "coder 'cy' has coded no verbatims of question 'why'"),
+    (["agree", "--question", "why", "--coders", "ash"], "name at least 2 coders"),
+    (["agree", "--question", "wh", "--coders", "ash,bryn"], "no open question named 'wh'"),
+    (["agree", "--question", "why", "--coders", "ash,bryn", "--sample", "rel7"], "no reliability sample named 'rel7'"),
+    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "take"], "--verbatim is needed"),
+    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "set", "--verbatim", "1", "--codes", "x"],
+     "not a comma-separated list of code numbers"),
+    (["sample", "draw", "--question", "why", "--name", "r"], "give --n N or --percent P"),
+    (["sample", "status", "--question", "why", "--name", "r"], "no reliability sample named 'r'"),
+    (["sample", "assign", "--question", "why"], "--name is needed"),
+])
+def test_bad_input_exits_1_with_one_clear_line(demo_copy, capsys, argv, message):
+    argv = [argv[0], demo_copy, *argv[1:]]
+    code, out, err = run(capsys, *argv)
+    assert code == 1 and message in err and "Traceback" not in err
