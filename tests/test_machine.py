@@ -14,6 +14,7 @@ from sklearn.feature_extraction.text import TfidfVectorizer
 from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import brier_score_loss, cohen_kappa_score, f1_score, precision_score, recall_score
 from sklearn.model_selection import KFold, cross_val_predict
+from threadpoolctl import threadpool_limits
 
 from opencode.coding import assignments as A
 from opencode.coding import autocode, frames
@@ -48,8 +49,9 @@ def test_at_least_as_good_as_plain_sklearn_baseline(reviews, review_terms, code)
     ours = model.oof_proba_[:, 0]
     # Reference: scikit-learn TfidfVectorizer + LogisticRegression, cross-validated on the same folds.
     folds = KFold(5, shuffle=True, random_state=0)
-    base = cross_val_predict(LogisticRegression(max_iter=1000), TfidfVectorizer().fit_transform(texts), y, cv=folds,
-                             method="predict_proba")[:, 1]
+    with threadpool_limits(1):  # one BLAS thread: lbfgs slows badly when threads are oversubscribed
+        base = cross_val_predict(LogisticRegression(max_iter=1000), TfidfVectorizer().fit_transform(texts), y,
+                                 cv=folds, method="predict_proba")[:, 1]
     assert f1_score(y, ours >= 0.5) >= f1_score(y, base >= 0.5) - F1_TOLERANCE
     assert brier_score_loss(y, ours) <= brier_score_loss(y, base) + BRIER_TOLERANCE
     assert model.metrics_["f1"][0] == pytest.approx(f1_score(y, ours >= 0.5))
@@ -170,15 +172,13 @@ def test_second_look_finds_planted_errors_better_than_chance(coded_study):
         rng = np.random.default_rng(3)
         planted = set(rng.choice(400, size=20, replace=False).tolist())
         for i in planted:  # a coder's slips: the wrong one of the two codes
-            held = A.codes_of(study, ids[i], "final")[0].number if A.codes_of(study, ids[i], "final") else 1
+            held = A.codes_of(study, ids[i], "final")[0].number
             A.set_codes(study, ids[i], [2 if held == 1 else 1], "final")
         autocode.train(study, "why")
         flagged = {item["verbatim_id"] for item in autocode.second_look_queue(study, "why", n=40)}
         hit_rate = len(flagged & {ids[i] for i in planted}) / max(len(flagged), 1)
+        print(f"second look: {len(flagged)} flagged, hit rate {hit_rate:.2f} vs random {len(planted) / 400:.2f}")
         assert hit_rate >= 3 * len(planted) / 400  # at least 3x the random re-check rate (He & Schonlau 2021: 2-3x)
-        for i in planted:
-            history_fix = A.codes_of(study, ids[i], "final")
-            assert history_fix
 
 
 def test_learning_queue_picks_uncoded_and_skips_near_duplicates(coded_study):

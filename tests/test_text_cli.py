@@ -49,10 +49,19 @@ def test_words_lists_top_terms_from_the_library(path, capsys):
 def test_words_within_a_group_and_small_base(path, capsys):
     code, out, err = run(capsys, "words", path, "--question", "why", "--where", "support=Strongly oppose")
     assert code == 0 and "(support = Strongly oppose)" in out.splitlines()[0]
-    code, out, err = run(capsys, "words", path, "--question", "why", "--where", "age_band=16-24",
+    code, out, err = run(capsys, "words", path, "--question", "why", "--where", "age_band=75+",
                          "--where", "support=9")
-    assert code == 0 and "support = Refused" in out
-    assert "small base" in err
+    with Study.open(path) as study:
+        tm, frame = st.term_matrix(study, "why")
+        old, _ = st.group_mask(study, frame, "age_band=75+")
+        refused, _ = st.group_mask(study, frame, "support=9")
+    both = old & refused
+    base = int(both[tm.rows_source].sum())
+    assert 0 < base < 30
+    assert code == 0 and out.splitlines()[0] == (
+        f"question why: {base} verbatims analysed (age_band = 75+ and support = Refused); "
+        f"{int((both & frame['nonanswer'].to_numpy()).sum())} non-answers left out")
+    assert f"small base: only {base} verbatims" in err
     code, out, err = run(capsys, "words", path, "--question", "why", "--where", "support=maybe")
     assert code == 1 and "variable 'support' has no code or label 'maybe'" in err
 

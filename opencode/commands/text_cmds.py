@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
+import numpy as np
+
 from opencode.commands.common import progress_bar
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
@@ -94,9 +96,11 @@ def run_words(args: argparse.Namespace) -> int:
             groups.append(label)
         group = " and ".join(groups)
         rows = top_terms(tm, args.top, subset)
-        base = tm.counts.shape[0] if subset is None else int(subset[tm.rows_source].sum())
+        chosen = np.ones(len(frame), dtype=bool) if subset is None else subset
+        base = int(chosen[tm.rows_source].sum())
+        left_out = int((chosen & frame["nonanswer"].to_numpy(dtype=bool)).sum())
         print(f"question {args.question}: {base:,} verbatims analysed" + (f" ({group})" if group else "")
-              + f"; {len(tm.excluded_doc_ids):,} non-answers left out")
+              + f"; {left_out:,} non-answers left out")
         if base < SMALL_BASE:
             _warn(f"small base: only {base} verbatims; read the percentages with care")
         print(format_top_terms(rows))

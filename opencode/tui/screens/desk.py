@@ -11,12 +11,12 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Footer
 
 from opencode.coding.frames import RESERVED_HOTKEYS
 from opencode.tui.highlight import RuleHighlighter
 from opencode.tui.screens.modals import AddCodeModal, PromptModal
-from opencode.tui.widgets.panes import (ContextPane, FrameList, NotePane, Pane, SuggestionPane, VerbatimView)
+from opencode.tui.widgets.panes import ContextPane, Drawn, FrameList, NotePane, Pane, SuggestionPane, VerbatimView
 
 SEARCH_HINT = ('words to find · #3 has code 3 · uncoded · blank / answered · support=5 or '
                'age_band="65 or over" (all combined)')
@@ -48,10 +48,10 @@ class DeskScreen(Screen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield Static(id="topbar")
+        yield Drawn(id="topbar")
         with Horizontal(id="desk-body"):
             with Vertical(id="desk-left"):
-                yield Static(id="card-head")
+                yield Drawn(id="card-head")
                 with Pane(id="verbatim-pane"):
                     yield VerbatimView(id="verbatim")
                 yield ContextPane(id="context")
@@ -59,7 +59,7 @@ class DeskScreen(Screen):
                 yield NotePane(id="note")
             with Pane(id="frame-pane"):
                 yield FrameList(id="frame-list")
-        yield Static(id="status")
+        yield Drawn(id="status")
         yield Footer()
 
     # -- life cycle ------------------------------------------------------------------------------------------
@@ -115,7 +115,7 @@ class DeskScreen(Screen):
         pace = s.pace() if getattr(self.app, "show_pace", True) else None
         if pace is not None:
             top.append(f"  ·  {pace:,.0f}/h this session")
-        self.query_one("#topbar", Static).update(top)
+        self.query_one("#topbar", Drawn).draw(top, same_size=True)
         head = Text()
         if card is not None:
             head.append(f"respondent {card.respondent}", style="bold")
@@ -125,10 +125,10 @@ class DeskScreen(Screen):
                 head.append("  ·  done ✓", style="bold")
             if card.nonanswer:
                 head.append("  ·  non-answer", style="italic")
-        self.query_one("#card-head", Static).update(head)
+        self.query_one("#card-head", Drawn).draw(head, same_size=True)
         spans = self._spans(card.text) if card is not None else []
-        self.query_one("#verbatim", VerbatimView).show(card, spans)
-        self.query_one("#verbatim-pane", Pane).scroll_home(animate=False)
+        if self.query_one("#verbatim", VerbatimView).show(card, spans):
+            self.query_one("#verbatim-pane", Pane).scroll_home(animate=False)
         self.query_one("#context", ContextPane).show(s.context())
         codes = {c.number: c for c in s.codes}
         self.query_one("#suggestions", SuggestionPane).show(s.suggestions(), codes)
@@ -137,9 +137,9 @@ class DeskScreen(Screen):
 
     def say(self, message: str, error: bool = False) -> None:
         """One line under the desk: what just happened, or what went wrong."""
-        status = self.query_one("#status", Static)
+        status = self.query_one("#status", Drawn)
         status.set_class(error, "error")
-        status.update(message)
+        status.draw(Text(message), same_size=True)
 
     # -- doing -----------------------------------------------------------------------------------------------
     def act(self, change, report=None) -> None:

@@ -21,22 +21,36 @@ class Pane(VerticalScroll, can_focus=False):
     """A scrolling area that never takes the keyboard (keys stay with the desk)."""
 
 
-class VerbatimView(Static):
+class Drawn(Static):
+    """A Static that redraws only when its content changed, and re-lays out only when its size may have."""
+
+    _last: Text | None = None
+
+    def draw(self, content: Text, same_size: bool = False) -> bool:
+        """Show `content`; False when it was already shown. same_size: the caller knows the size is unchanged."""
+        if self._last is not None and content == self._last:
+            return False
+        resize = not same_size and (self._last is None or content.plain != self._last.plain)
+        self._last = content
+        self.update(content, layout=resize)
+        return True
+
+
+class VerbatimView(Drawn):
     """The verbatim, large and wrapped, with rule words marked."""
 
-    def show(self, card: VerbatimCard | None, spans: Sequence[tuple[int, int]] = ()) -> None:
-        """Draw a verbatim (or a note that the view is empty)."""
+    def show(self, card: VerbatimCard | None, spans: Sequence[tuple[int, int]] = ()) -> bool:
+        """Draw a verbatim (or a note that the view is empty); True when the text changed."""
         if card is None:
-            self.update(Text("No verbatim here. Esc clears the search.", style="italic"))
-            return
+            return self.draw(Text("No verbatim here. Esc clears the search.", style="italic"))
         text = Text(card.text or "(empty)")
         for start, end in spans:
             text.stylize(RULE_WORD_STYLE, start, end)
         self.set_class(card.nonanswer, "nonanswer")
-        self.update(text)
+        return self.draw(text)
 
 
-class ContextPane(Static):
+class ContextPane(Drawn):
     """The respondent's closed-ended answers as labels."""
 
     def show(self, answers: Sequence[tuple[str, str]]) -> None:
@@ -47,11 +61,11 @@ class ContextPane(Static):
                 text.append("   ")
             text.append(f"{name}: ", style="dim")
             text.append(value)
-        self.update(text)
         self.display = bool(answers)
+        self.draw(text)
 
 
-class SuggestionPane(Static):
+class SuggestionPane(Drawn):
     """Rule and machine suggestions on the verbatim, most confident first."""
 
     def show(self, suggestions: Sequence[AssignedCode], codes: dict[int, Code]) -> None:
@@ -68,10 +82,10 @@ class SuggestionPane(Static):
             text.append("→ " if i == 0 else "  ", style="bold")
             text.append(f"{key}{s.number} {label}")
             text.append(f"  {s.source} {confidence}", style="dim")
-        self.update(text)
+        self.draw(text)
 
 
-class NotePane(Static):
+class NotePane(Drawn):
     """This coder's note on the verbatim, and other coders' codes after a refresh."""
 
     def show(self, note: str | None, others: Sequence[tuple[str, int, str]]) -> None:
@@ -89,17 +103,17 @@ class NotePane(Static):
             text.append("others: ", style="dim")
             text.append("; ".join(f"{c} {' '.join(n)}" for c, n in by_coder.items()), style="dim")
         self.display = bool(note or by_coder)
-        self.update(text)
+        self.draw(text)
 
 
-class FrameList(Static):
+class FrameList(Drawn):
     """The code frame: hotkey, number, this coder's count and label; held codes marked, nets in bold."""
 
     def show(self, codes: Sequence[Code], counts: dict[int, int], net_counts: dict[int, int],
              held: dict[int, AssignedCode]) -> None:
         """Draw the frame (retired codes left out)."""
         if not codes:
-            self.update(Text("No codes yet.\nCtrl+O adds one.", style="italic"))
+            self.draw(Text("No codes yet.\nCtrl+O adds one.", style="italic"))
             return
         by_number = {c.number: c for c in codes}
         text = Text(no_wrap=True, overflow="ellipsis")
@@ -128,7 +142,8 @@ class FrameList(Static):
             text.append(f"{counts.get(code.number, 0):>5}", style="dim")
             text.append(f" {indent}")
             text.append(code.label, style=style)
-        self.update(text)
+        last = self._last
+        self.draw(text, same_size=last is not None and last.plain.count("\n") == text.plain.count("\n"))
 
 
 def _frame_order(codes: Sequence[Code]) -> list[Code]:
