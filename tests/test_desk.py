@@ -345,7 +345,7 @@ def test_frame_screen_edits_label_hotkey_retire_and_merge(study_path):
         async with app.run_test(size=(100, 30)) as pilot:
             await pilot.press("f3")
             assert app.screen.name == "frame"
-            await pilot.press("down")  # code 1 (the net 90 comes after by number? no: rows are by number)
+            await pilot.press("down")  # rows go by number: 1, 2, 3, 90
             code = app.screen.current()
             assert code.number == 2
             await pilot.press("e", "ctrl+u")

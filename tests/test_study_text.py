@@ -246,6 +246,17 @@ def test_options_change_key_and_cache_stays_bounded(study):
     assert len(cached_keys(study, get_question(study, "why").id)) == KEEP_PER_QUESTION
 
 
+def test_fingerprint_sees_every_change():
+    base = st.verbatims_fingerprint(["ab", "c"], ["R1", "R2"], np.array([False, False]))
+    assert base == st.verbatims_fingerprint(["ab", "c"], ["R1", "R2"], np.array([False, False]))
+    for texts, ids, mask in ((["a", "bc"], ["R1", "R2"], [False, False]),   # same characters, other boundary
+                             (["c", "ab"], ["R1", "R2"], [False, False]),   # order
+                             (["ab", "c"], ["R2", "R1"], [False, False]),   # respondents
+                             (["ab", "c"], ["R1", "R2"], [False, True]),    # non-answer flag
+                             (["ab", "C"], ["R1", "R2"], [False, False])):  # case
+        assert st.verbatims_fingerprint(texts, ids, np.array(mask)) != base
+
+
 def test_subset_by_mask_and_ids(study):
     full, frame = st.term_matrix(study, "why")
     support = analysis_values(study, "support")

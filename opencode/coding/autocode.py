@@ -259,7 +259,7 @@ def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_sim
              "probability": float(proba[r, doubt[r].argmax()]), "text": texts[r]} for r in picked]
 
 
-def second_look_queue(study: Study, question: str, coder: str | None = None, n: int = 20, strength: float = 0.9
+def second_look_queue(study: Study, question: str, coder: str | None = None, n: int = 20, strength: float = 0.8
                       ) -> list[dict[str, Any]]:
     """Hand codes the model strongly disagrees with in cross-validation (a code given with probability below
     1 - strength, or missing with probability above strength): re-checking these finds more coding errors

@@ -7,6 +7,7 @@ English default. Every lexicon change is one transaction with one audit row (bef
 
 from __future__ import annotations
 
+import hashlib
 import os
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
@@ -321,6 +322,17 @@ def _subset_mask(frame: pd.DataFrame, subset: Any) -> np.ndarray:
     return frame["verbatim_id"].isin(wanted).to_numpy()
 
 
+def verbatims_fingerprint(texts: Sequence[str], ids: Sequence[str], exclude: np.ndarray) -> str:
+    """A hash of every verbatim's text, respondent id and non-answer flag, in order (a few C-level passes:
+    the lengths make the joined strings unambiguous)."""
+    digest = hashlib.sha256()
+    for strings in (texts, [str(i) for i in ids]):
+        digest.update(np.fromiter(map(len, strings), dtype=np.int64, count=len(strings)).tobytes())
+        digest.update("".join(strings).encode("utf-8", "surrogatepass"))
+    digest.update(np.packbits(np.asarray(exclude, dtype=bool)).tobytes())
+    return digest.hexdigest()
+
+
 def term_matrix(
     study: Study,
     question: str,
@@ -340,7 +352,8 @@ def term_matrix(
     Row i of tm.counts is frame.iloc[tm.rows_source[i]]; frame.matrix_row is -1 for rows left out.
     tm.doc_ids are respondent ids; `kwic(tm, frame.text.tolist(), term)` works on the pair.
 
-    The cache key covers the analyzer (the lexicon, or the `analyzer` given), every verbatim's text,
+    The cache key (text.matrix.cache_key over the analyzer and options, with verbatims_fingerprint standing
+    in for the texts) covers the analyzer (the lexicon, or the `analyzer` given), every verbatim's text,
     respondent and non-answer flag, and the options, so an edit to any of them rebuilds. A hit costs the
     verbatims query, one hash over their text, one SELECT and TermMatrix.from_bytes: no tokenizing.
     """
@@ -358,7 +371,7 @@ def term_matrix(
     analyzer = analyzer if analyzer is not None else analyzer_for(study, question)
     texts = frame["text"].tolist()
     ids = frame["respondent"].tolist()
-    key = cache_key(analyzer, texts, doc_ids=ids, exclude=exclude, min_df=min_df, max_df=max_df,
+    key = cache_key(analyzer, [verbatims_fingerprint(texts, ids, exclude)], min_df=min_df, max_df=max_df,
                     weighting=weighting)
     blob = load_matrix_blob(study, key)
     tm = None
