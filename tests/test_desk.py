@@ -445,3 +445,58 @@ def test_context_shows_value_labels(tmp_path):
         assert session.apply_search("support=Support") == 1
     finally:
         session.close()
+
+
+def test_terms_screen_codes_a_term_in_bulk_after_review(study_path):
+    async def scenario():
+        app = make_app(study_path)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await pilot.press("f4")
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            screen = app.screen
+            assert screen.selected().term == "staff"  # in two verbatims, the most of any term
+            assert "Staff jobs" in str(screen.query_one("#kwic").render())
+            await pilot.press("c", "2", "enter")
+            assert "Review" in str(app.screen.query_one(".dialog-title").render())
+            assert hand_codes(study_path, "A1") == []  # nothing before the review is confirmed
+            await pilot.press("enter")
+            assert hand_codes(study_path, "A1") == [2] and hand_codes(study_path, "A4") == [2]
+            await pilot.press("f")  # show the term's verbatims on the desk
+            assert app.screen.name == "desk" and app.session.view.size == 2
+    run(scenario)
+
+
+def test_themes_screen_promotes_a_theme_to_a_draft_code(study_path):
+    import json
+    summary = {"themes": [{"label": "", "top_terms": ["staff", "night", "safe", "help", "cut"], "n_dominant": 2}]}
+    with Study.open(study_path) as study, study.transaction():
+        study.db.execute("INSERT INTO theme_runs (question_id, created_at, method, k, params, summary, arrays) "
+                         "VALUES ((SELECT id FROM variables WHERE name = 'why'), '2030-01-02T03:04:05', 'nmf', 1, "
+                         "'{}', ?, x'')", (json.dumps(summary),))
+
+    async def scenario():
+        app = make_app(study_path)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await pilot.press("f5", "tab", "p")
+            assert isinstance(app.screen, PromptModal)
+            await pilot.press("enter")
+            with Study.open(study_path) as study:
+                code = frames.get_code(study, "why", 91)  # one past the highest number
+                assert code.label == "Staff / night / safe"
+                assert code.rule == "staff OR night OR safe OR help"
+                assert "theme run" in code.description
+    run(scenario)
+
+
+def test_no_color_terminal_still_codes(study_path, monkeypatch):
+    monkeypatch.setenv("NO_COLOR", "1")
+
+    async def scenario():
+        app = make_app(study_path)
+        assert app.no_color  # Textual drops colour itself; rule words stay bold and underlined
+        async with app.run_test(size=(80, 24)) as pilot:
+            await pilot.press("s", "enter")
+            assert hand_codes(study_path, "A1") == [1]
+            assert app.session.card().respondent == "A2"
+    run(scenario)

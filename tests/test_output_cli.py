@@ -194,3 +194,13 @@ def test_tables_bad_banner_weight_and_zero_base(study_path, tmp_path, capsys):
     assert code == 0 and "base 0 is under 30" in err
     net_row = next(line for line in out.splitlines() if line.startswith("90 "))
     assert set(net_row.split()[5:]) == {"-"}  # no percentage and no test on an empty base
+
+
+def test_export_with_suggestions_says_how_many(study_path, tmp_path, capsys):
+    out_path = tmp_path / "coded.csv"
+    code, _, err = run(capsys, "export", study_path, "--format", "csv", "--out", out_path, "--question", "why",
+                       "--with-suggestions")
+    said = f"includes {MACHINE_SUGGESTIONS + RULE_SUGGESTIONS} machine/rule suggestions not yet reviewed by a person"
+    assert code == 0 and said in err
+    frame = pd.read_csv(tmp_path / "coded-frame.csv")
+    assert frame["question_label"].str.contains(said, regex=False).all()

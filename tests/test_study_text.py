@@ -360,3 +360,11 @@ def test_kwic_with_closed_ended_labels(study):
     assert table.splitlines()[0].split()[:3] == ["respondent", "support", "neighbourhood"]
     with pytest.raises(OpenCodeError, match="term 'zzzyx' is not in the vocabulary"):
         st.question_kwic(study, "why", "zzzyx")
+
+
+def test_coding_features_use_the_question_lexicon(study):
+    from opencode.coding.features import default_analyzer
+
+    st.add_stop_words(study, "why", ["staff"])
+    assert "staff" not in default_analyzer(study, "why").tokens("no staff after six")
+    assert "staff" in default_analyzer().tokens("no staff after six")

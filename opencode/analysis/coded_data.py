@@ -69,6 +69,13 @@ class QuestionCoding:
         return out
 
     @property
+    def output_label(self) -> str:
+        """The question label for outputs; with suggestions included it says how many."""
+        if not self.include_suggestions:
+            return self.label
+        return f"{self.label} [includes {self.suggestions:,} machine/rule suggestions not yet reviewed by a person]"
+
+    @property
     def status(self) -> np.ndarray:
         """Per respondent: 1 coded, 2 non-answer, 3 not yet coded, 4 no verbatim (STATUS_LABELS)."""
         return np.select([self.answered, self.non_answer, self.uncoded], [1, 2, 3], default=4).astype(float)
@@ -107,15 +114,14 @@ def load_coding(study: Study, question: str, coder: str = FINAL, *, include_sugg
     special = np.array([c.special == "nonanswer" for c in codes], dtype=bool)
     substantive = np.asarray(indicators[:, ~special].sum(axis=1)).ravel() > 0
     nonanswer_coded = np.asarray(indicators[:, special].sum(axis=1)).ravel() > 0
-    non_answer = has_verbatim & ((flagged & ~substantive) | (nonanswer_coded & ~substantive))
+    non_answer = has_verbatim & ~substantive & (flagged | nonanswer_coded)
     answered = has_verbatim & coded & ~non_answer
-    text_column: list[str | None] = [None] * n
-    for row, text in zip(rows.tolist(), texts["text"].tolist()):
-        text_column[row] = text
+    text_column = np.full(n, None, dtype=object)
+    text_column[rows] = texts["text"].to_numpy(dtype=object)
     return QuestionCoding(
         question=question, label=variable.label or question, coder=coder, respondent_ids=keys, codes=codes,
         nets=nets, indicators=indicators, answered=answered, non_answer=non_answer,
-        uncoded=has_verbatim & ~coded & ~non_answer, has_verbatim=has_verbatim, verbatim_text=text_column,
+        uncoded=has_verbatim & ~coded & ~non_answer, has_verbatim=has_verbatim, verbatim_text=text_column.tolist(),
         suggestions=int(given["source"].isin(SUGGESTED).sum()) if include_suggestions else 0,
         include_suggestions=include_suggestions,
     )
@@ -144,11 +150,8 @@ def table_question(coding: QuestionCoding) -> tables.CodedQuestion:
     used = np.asarray(coding.indicators.sum(axis=0)).ravel() > 0
     keep = [i for i, c in enumerate(coding.codes) if c.special != "nonanswer" and (c.active or used[i])]
     kept = [coding.codes[i] for i in keep]
-    label = coding.label
-    if coding.include_suggestions:
-        label += f" [includes {coding.suggestions:,} machine/rule suggestions not yet reviewed by a person]"
     return tables.CodedQuestion(
-        name=coding.question, label=label, indicators=coding.indicators[:, keep],
+        name=coding.question, label=coding.output_label, indicators=coding.indicators[:, keep],
         codes=[tables.Code(c.number, c.label) for c in kept], answered=coding.answered, non_answer=coding.non_answer,
         nets=[tables.Net(n.number, n.label, members) for n, members in kept_nets(coding.nets, kept)],
         respondent_ids=coding.respondent_ids,
@@ -234,7 +237,7 @@ def export_question(coding: QuestionCoding, with_text: bool = False) -> export.C
     frame = [export.FrameCode(c.number, c.label, c.net, c.is_net)
              for c in sorted(coding.codes + coding.nets, key=lambda c: c.number)]
     return export.CodedQuestion(
-        name=coding.question, label=coding.label, frame=frame, codes=[r.tolist() for r in per_row],
+        name=coding.question, label=coding.output_label, frame=frame, codes=[r.tolist() for r in per_row],
         verbatims=coding.verbatim_text if with_text else None)
 
 

@@ -266,8 +266,8 @@ class DriverRanker(BaseEstimator):
             delayed(_fold_path)(spec, Cs, X, y, w, train, test, scoring) for train, test in folds)
         scores = np.vstack([s for _, s in results])
         usable = ~np.isnan(scores).any(axis=0)
-        usable[0] = True
-        mean = np.where(usable, np.nanmean(scores, axis=0), np.nan)
+        mean = np.full(len(Cs), np.nan)
+        mean[usable] = scores[:, usable].mean(axis=0)
         best = int(np.nanargmax(mean))
         self.Cs_ = Cs
         self.cv_scores_ = mean
@@ -473,8 +473,10 @@ def format_ranking(ranker: DriverRanker, n: int = 20, sort_by: str = "stability"
     cells = [[fmt.format(v) for v in table[col]] for col, _, fmt in _FORMAT_COLUMNS]
     heads = [head for _, head, _ in _FORMAT_COLUMNS]
     widths = [max([len(h)] + [len(c) for c in col]) for h, col in zip(heads, cells)]
-    row = lambda values: "  ".join(v.ljust(wd) if i < 2 else v.rjust(wd)  # noqa: E731
-                                   for i, (v, wd) in enumerate(zip(values, widths)))
+
+    def row(values) -> str:
+        return "  ".join(v.ljust(wd) if i < 2 else v.rjust(wd) for i, (v, wd) in enumerate(zip(values, widths)))
+
     lines.append(row(heads))
     lines += [row(values) for values in zip(*cells)]
     lines.append("coef/OR: penalized model; stab: share of half-sample fits selecting the term; "

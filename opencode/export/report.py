@@ -196,7 +196,7 @@ def _frame_table(coding: coded_data.QuestionCoding, per_code: int, mask: bool) -
     """The frame: number, label, kind, parent net, description and example verbatims."""
     quotes = example_verbatims(coding, per_code, mask) if per_code > 0 else {}
     rows = []
-    for code in sorted(coding.codes + coding.nets, key=lambda c: (c.number)):
+    for code in sorted(coding.codes + coding.nets, key=lambda c: c.number):
         state = "" if code.active else " (retired)"
         said = "".join(f"<div>\u201c{html.escape(q)}\u201d</div>" for q in quotes.get(code.number, []))
         rows.append(

@@ -89,15 +89,6 @@ def search_ids(study: Study, question_id: int, *, text: str | None = None, code_
     return np.fromiter((r[0] for r in rows), dtype=np.int64, count=len(rows))
 
 
-def coded_count(study: Study, question_id: int, coder: str) -> int:
-    """How many of a question's verbatims the coder has coded (a hand code or a done mark)."""
-    return int(study.db.execute(
-        "SELECT COUNT(*) FROM (SELECT a.verbatim_id FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
-        "WHERE a.coder = ? AND a.source = 'hand' AND v.question_id = ? "
-        "UNION SELECT m.verbatim_id FROM coded_marks m JOIN verbatims v ON v.id = m.verbatim_id "
-        "WHERE m.coder = ? AND v.question_id = ?)", (coder, question_id, coder, question_id)).fetchone()[0])
-
-
 def suggestion_below(study: Study, question_id: int, coder: str, threshold: float, after: int,
                      forward: bool = True) -> int | None:
     """The next (or previous) verbatim holding a rule/machine suggestion for the coder below a confidence."""

@@ -12,6 +12,7 @@ from textual.theme import Theme
 
 from opencode.errors import OpenCodeError
 from opencode.palette import OKABE_ITO
+from opencode.tui.highlight import IMPORTING
 from opencode.tui.screens.modals import HelpModal, LockedModal, PromptModal
 from opencode.tui.session import DeskSession, is_locked
 
@@ -61,7 +62,8 @@ class DeskApp(App):
     # -- screens ---------------------------------------------------------------------------------------------
     def make_screen(self, name: str) -> Screen:
         """A fresh screen by name (screens read the study when shown, so they never go stale)."""
-        module = importlib.import_module(f"opencode.tui.screens.{name}")
+        with IMPORTING:
+            module = importlib.import_module(f"opencode.tui.screens.{name}")
         return getattr(module, f"{name.capitalize()}Screen")(name=name)
 
     def action_show(self, name: str) -> None:
@@ -77,6 +79,7 @@ class DeskApp(App):
         if self.screen.name != "desk":
             self.switch_screen(self.make_screen(name))
         else:
+            self.screen.stale = True
             self.push_screen(self.make_screen(name))
 
     # -- changes that can meet a locked file -----------------------------------------------------------------

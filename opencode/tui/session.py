@@ -17,6 +17,7 @@ from opencode.coding import assignments as coding
 from opencode.coding import frames, history
 from opencode.coding.frames import Code, Frame
 from opencode.errors import OpenCodeError
+from opencode.study import assignments_store as astore
 from opencode.study import desk_queries as dq
 from opencode.study import survey_data
 from opencode.study.store import Study
@@ -115,7 +116,7 @@ class DeskSession:
             for net in (c for c in self.codes if c.is_net):
                 leaves = [c.number for c in self.frame.leaves_under(net.number)]
                 nets[net.number] = self._verbatims_holding(leaves)
-        self.counts = Counts(codes, nets, dq.coded_count(self.study, self.question.id, self.coder))
+        self.counts = Counts(codes, nets, int(astore.coded_verbatim_ids(self.study, self.question.id, self.coder).size))
 
     def _verbatims_holding(self, numbers: list[int]) -> int:
         ids = [c.id for c in self.codes if c.number in numbers]

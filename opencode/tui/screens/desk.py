@@ -14,7 +14,7 @@ from textual.screen import Screen
 from textual.widgets import Footer
 
 from opencode.coding.frames import RESERVED_HOTKEYS
-from opencode.tui.highlight import RuleHighlighter
+from opencode.tui.highlight import IMPORTING, RuleHighlighter
 from opencode.tui.screens.modals import AddCodeModal, PromptModal
 from opencode.tui.widgets.panes import ContextPane, Drawn, FrameList, NotePane, Pane, SuggestionPane, VerbatimView
 
@@ -71,8 +71,11 @@ class DeskScreen(Screen):
             self.set_interval(seconds, self.periodic_refresh)
         self.redraw()
 
+    stale = False  # set when another screen (not a dialog) was shown over the desk
+
     def on_screen_resume(self) -> None:
-        if getattr(self, "highlighter", None) is not None:
+        if self.stale:
+            self.stale = False
             self.app.session.reload_frame()
             self.app.session.refresh_counts()
             self.redraw()
@@ -92,7 +95,8 @@ class DeskScreen(Screen):
         return self.highlighter.spans(text) if self.highlighter is not None else []
 
     def _build_highlighter(self, rules: tuple[str, ...]) -> None:
-        highlighter = RuleHighlighter(rules)
+        with IMPORTING:
+            highlighter = RuleHighlighter(rules)
         self.app.call_from_thread(self._highlighter_ready, highlighter, rules)
 
     def _highlighter_ready(self, highlighter: RuleHighlighter, rules: tuple[str, ...]) -> None:
