@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
 from scipy.stats import chi2_contingency
-from sklearn.decomposition import NMF
+from sklearn.decomposition import NMF, LatentDirichletAllocation
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.feature_extraction.text import TfidfTransformer
 from statsmodels.stats.multitest import multipletests
@@ -105,6 +105,21 @@ def test_themes_equal_scikit_learn_nmf_on_the_same_matrix(study, fitted):
     assert_allclose(stored.doc_theme[stored.included], shares, rtol=1e-7, atol=1e-10)
     top = np.argsort(-reference.components_[0], kind="stable")[:5]
     assert stored.themes[0].top_terms[:5] == [sth._display_terms(tm)[j] for j in top]
+
+
+def test_lda_run_equals_scikit_learn_lda_and_reloads(study):
+    # Outside check: Blei, Ng & Jordan (2003) LDA as scikit-learn fits it (batch variational Bayes) on the
+    # raw counts of the verbatims with terms, same seed.
+    result = sth.fit_question_themes(study, "why", k=4, method="lda", random_state=5)
+    tm, _ = term_matrix(study, "why", min_df=sth.DEFAULT_MIN_DF)
+    keep = np.diff(tm.counts.indptr) > 0
+    reference = LatentDirichletAllocation(n_components=4, learning_method="batch", max_iter=10, random_state=5)
+    reference.fit(tm.counts[keep].astype(float))
+    loaded = sth.load_themes(study, result.run_id)
+    assert loaded.settings["method"] == "lda" and loaded.settings["loss"] is None
+    assert_allclose(loaded.run.components, reference.components_, rtol=1e-7)
+    with pytest.raises(OpenCodeError, match="LDA has no loss"):
+        sth.fit_question_themes(study, "why", k=4, method="lda", loss="kl", save=False)
 
 
 def test_prevalence_uses_value_labels_without_missing_codes(study, fitted):

@@ -21,8 +21,8 @@ import pandas as pd
 from opencode.analysis.theme_charts import plot_theme_terms
 from opencode.analysis.theme_format import format_k_search, format_themes
 from opencode.analysis.theme_search import DEFAULT_K_RANGE, KSearch, choose_k, parse_k_range
-from opencode.analysis.theme_summary import ThemeRun, compare_runs, find_themes, propose_code_label, \
-    unexplained_verbatims
+from opencode.analysis.theme_summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
+                                             unexplained_verbatims)
 from opencode.analysis.themes import LOSSES
 from opencode.coding import rules as coding_rules
 from opencode.coding.frames import Code, add_code, load_frame
@@ -229,6 +229,8 @@ def _check_method(method: str, loss: str) -> None:
         raise OpenCodeError(f"theme method {method!r}: choose nmf or lda")
     if loss not in LOSSES:
         raise OpenCodeError(f"NMF loss {loss!r}: choose frobenius or kl")
+    if method == "lda" and LOSSES[loss] != "frobenius":
+        raise OpenCodeError(f"loss {loss!r} is an NMF option: LDA has no loss to choose")
 
 
 def fit_question_themes(study: Study, question: str, *, k: int = 10, method: str = "nmf", loss: str = "frobenius",

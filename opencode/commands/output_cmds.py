@@ -3,21 +3,18 @@
 from __future__ import annotations
 
 import argparse
-import html
 import sys
 from pathlib import Path
 
 from opencode.analysis import coded_data
-from opencode.analysis.table_output import TABLE_CSS, format_table, to_html, write_csv, write_xlsx
-from opencode.analysis.tables import banner_table, code_frequencies
+from opencode.analysis.study_tables import TABLE_SUFFIXES, question_tables, write_tables
+from opencode.analysis.table_output import format_table
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
-from opencode.export import spss_stata, tabular, triple_s
-from opencode.export.safe_write import atomic_open, check_writable_target
+from opencode.export import triple_s
+from opencode.export.safe_write import check_writable_target
+from opencode.export.study_export import EXPORT_FORMATS, export_format, export_study
 from opencode.study.store import Study
-
-EXPORT_FORMATS = ("csv", "xlsx", "sav", "dta", "sss")
-TABLE_SUFFIXES = (".csv", ".xlsx", ".html")
 RAW_REMINDER = ("reminder: verbatims can identify respondents; your organisation's data-protection rules come "
                 "first: share this file only as they allow")
 MASKED_REMINDER = ("verbatims masked: e-mail addresses, phone numbers and web addresses replaced; names and other "
@@ -101,68 +98,29 @@ def run_tables(args: argparse.Namespace) -> int:
     if args.out:
         check_writable_target(args.out)
     with Study.open(args.study) as study:
-        coding = coded_data.load_coding(study, args.question, args.coder, include_suggestions=args.with_suggestions)
-        weight = None if args.unweighted else coded_data.survey_weight(study, args.weight)
-        banners = [coded_data.banner_variable(study, name) for name in dict.fromkeys(args.banner)]
-    question = coded_data.table_question(coding)
-    frequencies = code_frequencies(question, weight)
-    made = [frequencies]
-    warnings = list(coding.notes)
-    if frequencies.small_base:
-        warnings.append(f"{args.question}: base {frequencies.base.n:,} is under {frequencies.min_base}; "
-                        "percentages flagged (!)")
-    if banners:
-        table = banner_table(question, banners, weight, confidence=_level(args.confidence, "--confidence"),
-                             lower_confidence=_level(args.lower, "--lower"))
-        small = [c.label for c, flag in zip(table.columns, table.small_base & (table.base_n > 0)) if flag]
-        if small:
-            warnings.append(f"columns with bases under {table.min_base} flagged (!) and not tested: {', '.join(small)}")
-        made.append(table)
-    print(format_table(made[-1]))
-    _warn(warnings)
+        made = question_tables(study, args.question, args.banner, coder=args.coder,
+                               include_suggestions=args.with_suggestions, weight=args.weight,
+                               unweighted=args.unweighted, confidence=_level(args.confidence, "--confidence"),
+                               lower_confidence=_level(args.lower, "--lower"))
+    print(format_table(made.tables[-1]))
+    _warn(made.warnings)
     if args.out:
-        print(f"wrote {_write_tables(made, Path(args.out))}")
+        print(f"wrote {write_tables(made.tables, args.out)}")
     return 0
 
 
-def _write_tables(made: list, out: Path) -> Path:
-    """The printed table as CSV, every table as XLSX sheets or as one HTML page."""
-    suffix = out.suffix.lower()
-    if suffix == ".csv":
-        return write_csv(made[-1], out)
-    if suffix == ".xlsx":
-        return write_xlsx(made, out)
-    with atomic_open(out, "w") as handle:
-        handle.write(f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>'
-                     f"{html.escape(made[0].question_label)}</title><style>{TABLE_CSS}</style></head><body>\n"
-                     + "".join(to_html(t) for t in made) + "</body></html>\n")
-    return out
-
-
 def run_export(args: argparse.Namespace) -> int:
-    fmt = (args.fmt or Path(args.out).suffix.lstrip(".")).lower()
-    if fmt not in EXPORT_FORMATS:
-        raise OpenCodeError(f"unknown format {fmt or '(none)'!r}; choose one of {', '.join(EXPORT_FORMATS)} "
-                            "with --format")
-    target = check_writable_target(args.out)
+    export_format(args.fmt, args.out)
     closed = None if args.all_closed else (args.closed or [])
     with Study.open(args.study) as study:
-        dataset, codings = coded_data.coded_dataset(study, args.question, args.coder,
-                                                    include_suggestions=args.with_suggestions, closed=closed,
-                                                    with_text=args.verbatims != "omit")
-    options = {"verbatims": args.verbatims}
-    if fmt == "sss":
-        written = triple_s.write_triple_s(dataset, target, data_format=args.sss_data, multiple=args.sss_multiple,
-                                          **options)
-    else:
-        writer = {"csv": tabular.write_csv, "xlsx": tabular.write_xlsx, "sav": spss_stata.write_sav,
-                  "dta": spss_stata.write_dta}[fmt]
-        written = writer(dataset, target, category_columns=args.layout == "category", **options)
-    for path in written:
+        result = export_study(study, args.out, args.fmt, questions=args.question, coder=args.coder,
+                              include_suggestions=args.with_suggestions, closed=closed, layout=args.layout,
+                              verbatims=args.verbatims, sss_data=args.sss_data, sss_multiple=args.sss_multiple)
+    for path in result.written:
         print(f"wrote {path}")
-    print(f"{dataset.n_respondents:,} respondents; questions: {', '.join(c.question for c in codings)} "
+    print(f"{result.n_respondents:,} respondents; questions: {', '.join(result.questions)} "
           f"(coder {args.coder!r}); each question's <name>_status says coded / non-answer / not yet coded / no verbatim")
-    _warn([note for c in codings for note in c.notes])
+    _warn(result.notes)
     if args.verbatims == "raw":
         print(RAW_REMINDER, file=sys.stderr)
     elif args.verbatims == "masked":

@@ -1,0 +1,72 @@
+"""Code frequencies and banner tables of one study question (the library under `oecode tables`)."""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from opencode.analysis import coded_data
+from opencode.analysis.table_output import TABLE_CSS, to_html, write_csv, write_xlsx
+from opencode.analysis.tables import BannerTable, FrequencyTable, banner_table, code_frequencies
+from opencode.coding.assignments import FINAL
+from opencode.errors import OpenCodeError
+from opencode.export.safe_write import atomic_open
+from opencode.study.store import Study
+
+TABLE_SUFFIXES = (".csv", ".xlsx", ".html")
+
+
+@dataclass
+class QuestionTables:
+    """A question's frequency table, its banner table (if banners were asked for) and the warnings to show."""
+
+    frequencies: FrequencyTable
+    banner: BannerTable | None
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def tables(self) -> list:
+        """Every table made, frequencies first."""
+        return [self.frequencies] + ([self.banner] if self.banner is not None else [])
+
+
+def question_tables(study: Study, question: str, banners: list[str] = (), *, coder: str = FINAL,
+                    include_suggestions: bool = False, weight: str | None = None, unweighted: bool = False,
+                    confidence: float = 0.95, lower_confidence: float | None = None) -> QuestionTables:
+    """Frequencies and (with banners) the banner table, with tests, small-base flags and warnings."""
+    coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
+    survey_weight = None if unweighted else coded_data.survey_weight(study, weight)
+    banner_variables = [coded_data.banner_variable(study, name) for name in dict.fromkeys(banners)]
+    coded = coded_data.table_question(coding)
+    frequencies = code_frequencies(coded, survey_weight)
+    warnings = list(coding.notes)
+    if frequencies.small_base:
+        warnings.append(f"{question}: base {frequencies.base.n:,} is under {frequencies.min_base}; "
+                        "percentages flagged (!)")
+    table = None
+    if banner_variables:
+        table = banner_table(coded, banner_variables, survey_weight, confidence=confidence,
+                             lower_confidence=lower_confidence)
+        small = [c.label for c, flag in zip(table.columns, table.small_base & (table.base_n > 0)) if flag]
+        if small:
+            warnings.append(f"columns with bases under {table.min_base} flagged (!) and not tested: "
+                            f"{', '.join(small)}")
+    return QuestionTables(frequencies, table, warnings)
+
+
+def write_tables(made: list, out: str | Path) -> Path:
+    """The last table as CSV, every table as XLSX sheets, or every table on one HTML page."""
+    out = Path(out)
+    suffix = out.suffix.lower()
+    if suffix not in TABLE_SUFFIXES:
+        raise OpenCodeError(f"{out}: tables are written as {', '.join(TABLE_SUFFIXES)}")
+    if suffix == ".csv":
+        return write_csv(made[-1], out)
+    if suffix == ".xlsx":
+        return write_xlsx(made, out)
+    with atomic_open(out, "w") as handle:
+        handle.write(f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>'
+                     f"{html.escape(made[0].question_label)}</title><style>{TABLE_CSS}</style></head><body>\n"
+                     + "".join(to_html(t) for t in made) + "</body></html>\n")
+    return out

@@ -1,0 +1,53 @@
+"""Coded data of a study written in one of the export formats (the library under `oecode export`)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from opencode.analysis import coded_data
+from opencode.coding.assignments import FINAL
+from opencode.errors import OpenCodeError
+from opencode.export import spss_stata, tabular, triple_s
+from opencode.export.safe_write import check_writable_target
+from opencode.study.store import Study
+
+EXPORT_FORMATS = ("csv", "xlsx", "sav", "dta", "sss")
+
+
+@dataclass
+class ExportResult:
+    """What an export wrote, and the sentences its reader must see."""
+
+    written: list[Path]
+    n_respondents: int
+    questions: list[str]
+    notes: list[str] = field(default_factory=list)
+
+
+def export_format(fmt: str | None, out: str | Path) -> str:
+    """The export format named, or taken from the output file's suffix; unknown formats are refused."""
+    chosen = (fmt or Path(out).suffix.lstrip(".")).lower()
+    if chosen not in EXPORT_FORMATS:
+        raise OpenCodeError(f"unknown format {chosen or '(none)'!r}; choose one of {', '.join(EXPORT_FORMATS)}")
+    return chosen
+
+
+def export_study(study: Study, out: str | Path, fmt: str | None = None, *, questions: list[str] | None = None,
+                 coder: str = FINAL, include_suggestions: bool = False, closed: list[str] | None = (),
+                 layout: str = "dichotomy", verbatims: str = "omit", sss_data: str = "fixed",
+                 sss_multiple: str = "bitstring") -> ExportResult:
+    """Write the coded questions (and chosen closed-ended variables; None = all) to `out`, atomically."""
+    chosen = export_format(fmt, out)
+    target = check_writable_target(out)
+    dataset, codings = coded_data.coded_dataset(study, questions, coder, include_suggestions=include_suggestions,
+                                                closed=closed, with_text=verbatims != "omit")
+    if chosen == "sss":
+        written = triple_s.write_triple_s(dataset, target, data_format=sss_data, multiple=sss_multiple,
+                                          verbatims=verbatims)
+    else:
+        writer = {"csv": tabular.write_csv, "xlsx": tabular.write_xlsx, "sav": spss_stata.write_sav,
+                  "dta": spss_stata.write_dta}[chosen]
+        written = writer(dataset, target, category_columns=layout == "category", verbatims=verbatims)
+    return ExportResult(list(written), dataset.n_respondents, [c.question for c in codings],
+                        [note for c in codings for note in c.notes])
