@@ -1,28 +1,50 @@
-"""The whole job on the bundled demo survey, step by step, without interaction (what `oecode demo` runs)."""
+"""The whole job on the bundled demo survey, step by step, without interaction (what `oecode demo` runs).
+
+Import -> lexicon (phrases, a spelling merge) -> themes -> drivers of support -> starter code frames ->
+keyword-rule pre-coding -> the double-coded subset -> agreement -> adjudication into `final` -> the machine
+coder trained on `final` -> banner tables -> exports -> the HTML report. Every step is a library call that the
+matching `oecode` verb makes too.
+"""
 
 from __future__ import annotations
 
+import csv
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
+from opencode.analysis.study_tables import question_tables, write_tables
+from opencode.analysis.table_output import format_table
+from opencode.coding import adjudication, autocode, frame_io, reliability, rules
+from opencode.coding.import_codes import import_codes
 from opencode.errors import OpenCodeError
+from opencode.export.report import ReportSection, build_report
+from opencode.export.study_export import export_study
 from opencode.ingest.importer import ImportOptions, import_survey
 from opencode.resources import demo_dir
 from opencode.study.store import Study
 from opencode.study.summary import format_summary, summarise
+from opencode.text import study_text
 
 DEMO_QUESTIONS = ["why", "improve"]
+DEMO_CODERS = ["ash", "bryn"]
+DEMO_BANNERS = ["support", "age_band", "children"]
+DEMO_PHRASES = ["opening hours", "self service", "study space", "panic button", "waiting lists"]
+DEMO_MERGES = {"library": ["libary", "liberry"]}
+#: The accuracy the machine coder must reach in cross-validation before it pre-codes anything.
+TARGET_ACCURACY = 0.9
+ACTOR = "demo"
 
 
 @dataclass
 class DemoOutputs:
-    """Where each output of the demo run is."""
+    """Where each output of the demo run is, and what the run printed along the way."""
 
     folder: Path
     study: Path
     files: dict[str, Path] = field(default_factory=dict)
     summary: str = ""
+    lines: list[str] = field(default_factory=list)
 
 
 def demo_import_options(source: str = "csv") -> ImportOptions:
@@ -39,8 +61,16 @@ def build_demo_study(target: Path, source: str = "csv") -> Path:
     return target
 
 
+def _demo_rules() -> dict[str, dict[int, str]]:
+    by_question: dict[str, dict[int, str]] = {}
+    with open(demo_dir() / "rules.csv", encoding="utf-8", newline="") as handle:
+        for row in csv.DictReader(handle):
+            by_question.setdefault(row["question"], {})[int(row["code"])] = row["rule"]
+    return by_question
+
+
 def run_demo(folder: str | Path, progress: Callable[[str], None] | None = None) -> DemoOutputs:
-    """Run every step on the demo survey into `folder` (created if missing; an earlier demo study is replaced)."""
+    """Run every step on the demo survey into `folder` (created if missing; an earlier demo run is replaced)."""
     say = progress or (lambda message: None)
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
@@ -49,9 +79,92 @@ def run_demo(folder: str | Path, progress: Callable[[str], None] | None = None) 
     study_path = folder / "wrenfield.study"
     for extra in ("", "-wal", "-shm"):
         Path(str(study_path) + extra).unlink(missing_ok=True)
-    say("importing the demo survey (2,400 respondents, two open questions)")
-    build_demo_study(study_path)
     outputs = DemoOutputs(folder, study_path)
+    say("importing the demo survey (2,400 invented respondents, two open questions)")
+    build_demo_study(study_path)
     with Study.open(study_path) as study:
         outputs.summary = format_summary(summarise(study))
+        sections = []
+        for question in DEMO_QUESTIONS:
+            say(f"{question}: lexicon with phrases and a spelling merge")
+            study_text.add_phrases(study, question, DEMO_PHRASES, actor=ACTOR)
+            for target, sources in DEMO_MERGES.items():
+                study_text.add_merge(study, question, sources, target, actor=ACTOR)
+        sections += _explore(study, folder, outputs, say)
+        agreement = {}
+        for question in DEMO_QUESTIONS:
+            agreement[question] = _code(study, question, outputs, say)
+        say("banner tables, exports and the report")
+        _tables(study, folder, outputs)
+        _exports(study, folder, outputs)
+        notes: list[str] = []
+        outputs.files["report"] = build_report(
+            study, folder / "report.html", questions=DEMO_QUESTIONS, banner=DEMO_BANNERS, include_suggestions=True,
+            agreement=agreement, extra_sections=sections, notes=notes,
+            title="Wrenfield library hours consultation (invented demo)")
+        outputs.lines += [line for line in (f"note: {note}" for note in dict.fromkeys(notes))
+                          if line not in outputs.lines]
     return outputs
+
+
+def _explore(study: Study, folder: Path, outputs: DemoOutputs, say) -> list[ReportSection]:
+    """Themes and drivers before any coding: what people talk about, which words go with support."""
+    return []
+
+
+def _code(study: Study, question: str, outputs: DemoOutputs, say):
+    """Frame, rules, the double-coded subset, agreement, adjudication, the machine coder; returns agreement."""
+    say(f"{question}: starter code frame and keyword rules")
+    frame_io.import_frame(study, question, demo_dir() / f"frame-{question}.csv", actor=ACTOR)
+    for number, rule in _demo_rules().get(question, {}).items():
+        rules.set_rule(study, question, number, rule, actor=ACTOR)
+    suggested = rules.apply_rules(study, question, actor=ACTOR)
+    outputs.lines.append(f"{question}: keyword rules suggested {sum(suggested.values()):,} codes for people to confirm")
+    say(f"{question}: the double-coded subset by {' and '.join(DEMO_CODERS)}")
+    import_codes(study, question, ["codes"], source_path=demo_dir() / "double-coded.csv", id_column="respondent_id",
+                 coder_column="coder", question_column="question", layout="long", actor=ACTOR)
+    result = reliability.study_agreement(study, question, DEMO_CODERS, n_resamples=200, random_state=0)
+    kappa = result.frame["mean_kappa"]
+    alpha = result.frame["alpha_masi"]
+    outputs.lines.append(f"{question}: agreement between {' and '.join(DEMO_CODERS)} on {result.n_pairable} verbatims: "
+                         f"mean kappa {_number(kappa)}, alpha (MASI) {_number(alpha)}")
+    say(f"{question}: adjudication into the final coder")
+    agreed = adjudication.accept_agreed(study, question, DEMO_CODERS, actor=ACTOR)
+    differing = adjudication.differences(study, question, DEMO_CODERS)
+    for difference in differing:
+        adjudication.take_union(study, question, difference.verbatim_id, DEMO_CODERS)
+    outputs.lines.append(f"{question}: {agreed} agreed verbatims went to final in one step; {len(differing)} "
+                         "differing ones took the union of both coders (a demo shortcut: a lead would review them "
+                         "on the compare screen)")
+    say(f"{question}: training the machine coder on the final codes")
+    autocode.train(study, question, coder="final")
+    try:
+        applied = autocode.apply_machine(study, question, target_accuracy=TARGET_ACCURACY, actor=ACTOR)
+        outputs.lines.append(f"{question}: the machine coder pre-coded {applied.verbatims:,} of {applied.candidates:,} "
+                             f"uncoded verbatims at threshold {applied.threshold:.2f} (cross-validated accuracy "
+                             f">= {TARGET_ACCURACY:.0%}); they stay suggestions until a person accepts them")
+    except OpenCodeError as error:
+        outputs.lines.append(f"{question}: the machine coder pre-coded nothing: {error}")
+    return result
+
+
+def _number(estimate) -> str:
+    return "undefined" if estimate.value is None else f"{estimate.value:.2f} ({estimate.words})"
+
+
+def _tables(study: Study, folder: Path, outputs: DemoOutputs) -> None:
+    made = []
+    for question in DEMO_QUESTIONS:
+        tables = question_tables(study, question, DEMO_BANNERS, include_suggestions=True)
+        made += tables.tables
+        outputs.lines += [f"note: {warning}" for warning in tables.warnings]
+        outputs.lines += ["", format_table(tables.frequencies), ""]
+    outputs.files["banner tables (Excel)"] = write_tables(made, folder / "tables.xlsx")
+    outputs.files["banner tables (HTML)"] = write_tables(made, folder / "tables.html")
+
+
+def _exports(study: Study, folder: Path, outputs: DemoOutputs) -> None:
+    for fmt, name in (("sav", "coded.sav"), ("dta", "coded.dta"), ("csv", "coded.csv"), ("sss", "coded.sss")):
+        result = export_study(study, folder / name, fmt, questions=DEMO_QUESTIONS, include_suggestions=True,
+                              closed=None, verbatims="masked" if fmt == "csv" else "omit")
+        outputs.files[f"coded data ({fmt})"] = result.written[0]

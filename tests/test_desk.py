@@ -15,7 +15,9 @@ from opencode.coding import assignments as coding
 from opencode.coding import frames
 from opencode.errors import OpenCodeError
 from opencode.ingest.importer import ImportOptions, import_survey
+from opencode.study import theme_runs_store
 from opencode.study.store import Study
+from opencode.study.survey_data import get_question
 from opencode.tui.app import DeskApp
 from opencode.tui.screens.modals import AddCodeModal, HelpModal, LockedModal, PromptModal
 from opencode.tui.search_spec import parse_search
@@ -468,12 +470,9 @@ def test_terms_screen_codes_a_term_in_bulk_after_review(study_path):
 
 
 def test_themes_screen_promotes_a_theme_to_a_draft_code(study_path):
-    import json
     summary = {"themes": [{"label": "", "top_terms": ["staff", "night", "safe", "help", "cut"], "n_dominant": 2}]}
-    with Study.open(study_path) as study, study.transaction():
-        study.db.execute("INSERT INTO theme_runs (question_id, created_at, method, k, params, summary, arrays) "
-                         "VALUES ((SELECT id FROM variables WHERE name = 'why'), '2030-01-02T03:04:05', 'nmf', 1, "
-                         "'{}', ?, x'')", (json.dumps(summary),))
+    with Study.open(study_path) as study:
+        theme_runs_store.save_run(study, get_question(study, "why").id, "nmf", 1, {}, summary, {})
 
     async def scenario():
         app = make_app(study_path)

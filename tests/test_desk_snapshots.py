@@ -5,10 +5,10 @@ Regenerate after a deliberate design change with: pytest tests/test_desk_snapsho
 
 from __future__ import annotations
 
-import json
-
 from opencode.coding import assignments as coding
+from opencode.study import theme_runs_store
 from opencode.study.store import Study
+from opencode.study.survey_data import get_question
 from test_desk import make_app, make_study
 
 SIZE = (100, 30)
@@ -68,7 +68,8 @@ def test_themes_screen(tmp_path, snap_compare):
     summary = {"themes": [{"label": "Staff / safety", "top_terms": ["staff", "safe", "night"], "n_dominant": 2,
                            "representatives": [{"text": "Not safe without staff at night"}]},
                           {"label": "", "top_terms": ["work", "shift", "hour"], "n_dominant": 2}]}
-    with Study.open(path) as study, study.transaction():
-        study.db.execute("INSERT INTO theme_runs (question_id, created_at, method, k, params, summary, arrays) "
-                         "VALUES ((SELECT id FROM variables WHERE name = 'why'), '2030-01-02T03:04:05', 'nmf', 2, '{}', ?, x'')", (json.dumps(summary),))
+    with Study.open(path) as study:
+        run_id = theme_runs_store.save_run(study, get_question(study, "why").id, "nmf", 2, {}, summary, {})
+        with study.transaction():  # a fixed time, so the picture does not change from run to run
+            study.db.execute("UPDATE theme_runs SET created_at = '2030-01-02T03:04:05' WHERE id = ?", (run_id,))
     assert snap_compare(make_app(path), press=["f5", "tab"], terminal_size=SIZE, run_before=settle)

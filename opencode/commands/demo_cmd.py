@@ -19,7 +19,12 @@ def run(args: argparse.Namespace) -> int:
     outputs = run_demo(args.out, progress=progress_line)
     print(outputs.summary)
     print()
+    print("\n".join(outputs.lines))
+    print()
     print(f"study file: {outputs.study}")
     for name, path in outputs.files.items():
         print(f"{name}: {path}")
+    print()
+    print("Machine and rule codes are suggestions until a person accepts them. Open the coding desk with:")
+    print(f"  oecode code {outputs.study} --question why --coder YOURNAME")
     return 0

@@ -108,32 +108,12 @@ def other_coders_codes(study: Study, verbatim_id: int, coder: str) -> list[tuple
         "WHERE a.verbatim_id = ? AND a.coder <> ? ORDER BY a.coder, c.number", (int(verbatim_id), coder)).fetchall()
 
 
-def differing_verbatims(study: Study, question_id: int, left: str, right: str) -> np.ndarray:
-    """Verbatim ids where two coders' hand codes differ (at least one of them coded it), ascending."""
-    rows = study.db.execute(
-        "WITH l AS (SELECT a.verbatim_id AS vid, a.code_id AS cid FROM assignments a JOIN verbatims v "
-        "ON v.id = a.verbatim_id WHERE a.coder = ? AND a.source = 'hand' AND v.question_id = ?), "
-        "r AS (SELECT a.verbatim_id AS vid, a.code_id AS cid FROM assignments a JOIN verbatims v "
-        "ON v.id = a.verbatim_id WHERE a.coder = ? AND a.source = 'hand' AND v.question_id = ?) "
-        "SELECT vid FROM (SELECT vid, cid FROM l EXCEPT SELECT vid, cid FROM r) "
-        "UNION SELECT vid FROM (SELECT vid, cid FROM r EXCEPT SELECT vid, cid FROM l) ORDER BY 1",
-        (left, question_id, right, question_id)).fetchall()
-    return np.fromiter((r[0] for r in rows), dtype=np.int64, count=len(rows))
-
-
 def question_coders(study: Study, question_id: int) -> list[str]:
     """Every coder holding any assignment or done mark on the question, by name."""
     return [r[0] for r in study.db.execute(
         "SELECT a.coder FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id WHERE v.question_id = ? "
         "UNION SELECT m.coder FROM coded_marks m JOIN verbatims v ON v.id = m.verbatim_id WHERE v.question_id = ? "
         "ORDER BY 1", (question_id, question_id))]
-
-
-def theme_run_list(study: Study, question_id: int) -> list[tuple[int, str, str, int, str]]:
-    """(id, created_at, method, k, summary JSON) of a question's saved theme runs, newest first."""
-    return study.db.execute(
-        "SELECT id, created_at, method, k, summary FROM theme_runs WHERE question_id = ? ORDER BY id DESC",
-        (question_id,)).fetchall()
 
 
 def verbatims_holding(study: Study, question_id: int, coder: str, code_ids: list[int]) -> int:

@@ -12,8 +12,7 @@ from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
 from textual.widgets import Footer, Static
 
-from opencode.coding import assignments as coding
-from opencode.coding import history
+from opencode.coding import adjudication
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
@@ -64,13 +63,19 @@ class CompareScreen(Screen):
         self.load()
 
     def load(self) -> None:
+        """Read the differences again (after a decision, final's codes change)."""
         s = self.session
-        self.ids = dq.differing_verbatims(s.study, s.question.id, self.left, self.right)
-        self.position = min(self.position, max(self.ids.size - 1, 0))
+        self.found = [] if self.left == self.right else adjudication.differences(
+            s.study, s.question.name, [self.left, self.right])
+        self.ids = [d.verbatim_id for d in self.found]
+        self.position = min(self.position, max(len(self.ids) - 1, 0))
         self.redraw()
 
+    def current(self) -> adjudication.Difference | None:
+        return self.found[self.position] if self.found else None
+
     def current_id(self) -> int | None:
-        return int(self.ids[self.position]) if self.ids.size else None
+        return self.ids[self.position] if self.ids else None
 
     def _codes_text(self, numbers: list[int], against: set[int]) -> Text:
         text = Text()
@@ -82,26 +87,22 @@ class CompareScreen(Screen):
             text.append(f"{number} {code.label if code else '?'}", style=style)
         return text or Text("(no code)", style="italic")
 
-    def hand(self, coder: str) -> list[int]:
-        vid = self.current_id()
-        return [] if vid is None else [a.number for a in coding.codes_of(self.session.study, vid, coder, ("hand",))]
-
     def redraw(self) -> None:
-        vid = self.current_id()
+        found = self.current()
         title = Text(f" compare {self.left} with {self.right}", style="bold")
-        title.append(f"  ·  {self.ids.size:,} verbatims differ" +
-                     (f"  ·  {self.position + 1:,} of {self.ids.size:,}" if self.ids.size else ""))
+        title.append(f"  ·  {len(self.ids):,} verbatims differ" +
+                     (f"  ·  {self.position + 1:,} of {len(self.ids):,}" if self.ids else ""))
         self.query_one("#compare-title", Static).update(title)
-        card = dq.verbatim_card(self.session.study, vid) if vid is not None else None
         self.query_one("#compare-verbatim", Static).update(
-            Text(f"{card.respondent}: {card.text}") if card else
+            Text(f"{found.respondent}: {found.text}") if found else
             Text("These two coders agree everywhere they both coded (c chooses other coders).", style="italic"))
-        left, right = self.hand(self.left), self.hand(self.right)
+        left = list(found.codes.get(self.left) or ()) if found else []
+        right = list(found.codes.get(self.right) or ()) if found else []
         self.query_one("#left-name", Static).update(f"{self.left} (l)")
         self.query_one("#right-name", Static).update(f"{self.right} (r)")
         self.query_one("#left-codes", Static).update(self._codes_text(left, set(right)))
         self.query_one("#right-codes", Static).update(self._codes_text(right, set(left)))
-        final = self.hand(FINAL)
+        final = list(found.final or ()) if found else []
         text = Text(f"{FINAL}: ", style="bold")
         text.append(", ".join(f"{n} {self.session.code(n).label if self.session.code(n) else '?'}" for n in final)
                     or "not settled yet")
@@ -113,27 +114,29 @@ class CompareScreen(Screen):
         status.update(message)
 
     def action_move(self, step: int) -> None:
-        if self.ids.size:
-            self.position = min(max(self.position + step, 0), self.ids.size - 1)
+        if self.ids:
+            self.position = min(max(self.position + step, 0), len(self.ids) - 1)
         self.redraw()
 
     def action_take(self, side: str) -> None:
         vid = self.current_id()
         if vid is None:
             return
-        left, right = self.hand(self.left), self.hand(self.right)
-        numbers = {"left": left, "right": right, "union": sorted(set(left) | set(right))}[side]
+        s = self.session
+        decide = {"left": lambda: adjudication.take(s.study, s.question.name, vid, self.left),
+                  "right": lambda: adjudication.take(s.study, s.question.name, vid, self.right),
+                  "union": lambda: adjudication.take_union(s.study, s.question.name, vid, [self.left, self.right])}
 
-        def done(_) -> None:
-            self.redraw()
+        def done(numbers) -> None:
+            self.load()
             self.say(f"{FINAL} now holds {', '.join(map(str, numbers)) or 'no code'}")
-        self.app.attempt(lambda: coding.set_codes(self.session.study, vid, numbers, FINAL), done, self.say)
+        self.app.attempt(decide[side], done, self.say)
 
     def action_undo(self) -> None:
         def undo():
-            if history.undo(self.session.study, FINAL) is None:
+            if adjudication.undo_last(self.session.study) is None:
                 raise OpenCodeError(f"nothing of {FINAL} to undo")
-        self.app.attempt(undo, lambda _: (self.redraw(), self.say(f"undid {FINAL}'s last change")), self.say)
+        self.app.attempt(undo, lambda _: (self.load(), self.say(f"undid {FINAL}'s last change")), self.say)
 
     def action_choose(self) -> None:
         names = ", ".join(c for c, _ in coding_ranked(self.session)) or "none yet"

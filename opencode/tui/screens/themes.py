@@ -6,8 +6,6 @@ over its top terms (a draft: the rule only suggests, a person confirms at the de
 
 from __future__ import annotations
 
-import json
-
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -18,19 +16,15 @@ from textual.widgets import DataTable, Footer, Static
 from opencode.analysis.theme_summary import propose_code_label
 from opencode.coding import frames
 from opencode.coding.rules import parse_rule
-from opencode.study import desk_queries as dq
+from opencode.study import theme_runs_store
 from opencode.tui.screens.modals import PromptModal
 
 RULE_TERMS = 4
 
 
-def themes_of(summary: str) -> list[dict]:
-    """The themes recorded in a run's summary JSON (empty when the record holds none)."""
-    try:
-        record = json.loads(summary)
-    except (TypeError, ValueError):
-        return []
-    themes = record.get("themes", []) if isinstance(record, dict) else []
+def themes_of(summary: dict) -> list[dict]:
+    """The themes recorded in a run's summary (empty for runs holding none, e.g. a search over k)."""
+    themes = summary.get("themes", []) if isinstance(summary, dict) else []
     return [t for t in themes if isinstance(t, dict) and t.get("top_terms")]
 
 
@@ -58,11 +52,12 @@ class ThemesScreen(Screen):
 
     def on_mount(self) -> None:
         s = self.session
-        self.runs = dq.theme_run_list(s.study, s.question.id)
+        self.runs = list(reversed(theme_runs_store.run_rows(s.study, s.question.id)))
+        self._themes: dict[int, list[dict]] = {}
         runs = self.query_one("#runs-table", DataTable)
         runs.add_columns("run", "method", "k", "saved")
-        for run_id, created, method, k, _ in self.runs:
-            runs.add_row(run_id, method, k, created[:16].replace("T", " "))
+        for run in self.runs:
+            runs.add_row(run["id"], run["method"], run["k"], run["created_at"][:16].replace("T", " "))
         self.query_one("#themes-table", DataTable).add_columns("theme", "draft label", "verbatims", "top terms")
         title = Text(f" theme runs of {s.question.name}  ·  {len(self.runs)} saved", style="bold")
         if not self.runs:
@@ -77,7 +72,11 @@ class ThemesScreen(Screen):
 
     def current_themes(self) -> list[dict]:
         run = self.current_run()
-        return themes_of(run[4]) if run else []
+        if run is None:
+            return []
+        if run["id"] not in self._themes:
+            self._themes[run["id"]] = themes_of(theme_runs_store.load_run(self.session.study, run["id"]).summary)
+        return self._themes[run["id"]]
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         if event.data_table.id == "runs-table":
@@ -134,7 +133,7 @@ class ThemesScreen(Screen):
             def promote():
                 parse_rule(rule)
                 return frames.add_code(s.study, s.question.name, label.strip(), actor=s.coder, rule=rule,
-                                       description=f"Draft from theme run {run[0]}: {', '.join(terms[:8])}")
+                                       description=f"Draft from theme run {run['id']}: {', '.join(terms[:8])}")
 
             def done(code) -> None:
                 s.reload_frame()
