@@ -389,7 +389,7 @@ def test_compare_takes_left_right_and_union_into_final(study_path):
         async with app.run_test(size=(100, 30)) as pilot:
             await pilot.press("f6")
             assert app.screen.name == "compare"
-            assert app.screen.ids.tolist() == [1, 4]  # they agree on A2
+            assert app.screen.ids == [1, 4]  # they agree on A2
             await pilot.press("l")
             assert hand_codes(study_path, "A1", "final") == [1]
             await pilot.press("r")

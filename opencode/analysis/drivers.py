@@ -332,16 +332,16 @@ class DriverRanker(BaseEstimator):
 
     # -- using the fit --------------------------------------------------------------------------------------
     def ranking(self, sort_by: str = "stability", ascending: bool = False) -> pd.DataFrame:
-        """The ranking table sorted by any column (ties broken by |coef|, largest first)."""
+        """The ranking table sorted by any column; ties broken by |Monroe z| (evidence), largest first."""
         table = self.ranking_
         if sort_by not in table.columns:
             raise OpenCodeError(f"cannot sort by {sort_by!r}; columns are {', '.join(table.columns)}")
-        keyed = table.assign(_strength=table["coef"].abs())
+        keyed = table.assign(_strength=table["monroe_z"].abs())
         return (keyed.sort_values([sort_by, "_strength"], ascending=[ascending, False], kind="stable")
                 .drop(columns="_strength").reset_index(drop=True))
 
     def top_terms(self, side: int, n: int = 15) -> pd.DataFrame:
-        """The n terms pushing towards side 1 (positive coef) or side 0 (negative), most stable then strongest."""
+        """The n terms pushing towards side 1 (positive coef) or side 0 (negative): most stable, then most evidence."""
         if side not in (0, 1):
             raise OpenCodeError(f"side must be 0 or 1, got {side!r}")
         table = self.ranking("stability")

@@ -209,11 +209,14 @@ def _write(study: Study, keys: list[str], plans: list[ColumnPlan], report: Impor
     # One statement over a JSON array: far faster than a Python-level insert per respondent.
     study.db.execute("INSERT INTO respondents (id, key) SELECT ? + key, value FROM json_each(?)",
                      (next_id, json.dumps(new_keys, ensure_ascii=False)))
-    existing.update((key, next_id + i) for i, key in enumerate(new_keys))
     report.respondents_added = len(new_keys)
     report.respondents_updated = len(keys) - len(new_keys)
-    respondent_ids = np.fromiter((existing[k] for k in keys), dtype=np.int64, count=len(keys))
-    total = len(existing)
+    if existing:
+        existing.update((key, next_id + i) for i, key in enumerate(new_keys))
+        respondent_ids = np.fromiter((existing[k] for k in keys), dtype=np.int64, count=len(keys))
+    else:  # a first import: respondents are numbered in file order
+        respondent_ids = np.arange(next_id, next_id + len(keys), dtype=np.int64)
+    total = next_id - 1 + len(new_keys)
     for plan in plans:
         variable_id = _upsert_variable(study, plan, report)
         if plan.role == "id":

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import re
-import unicodedata
 from functools import lru_cache
 
 import numpy as np
@@ -11,14 +9,18 @@ import pandas as pd
 
 from opencode.resources import lexicon_dir, read_lexicon
 
-_DROP = re.compile(r"[^\w\s]|_", re.UNICODE)
-_SPACES = re.compile(r"\s+")
-
 
 def normalise(text: str) -> str:
     """Fold a short answer to compare it with the list: NFKC, lower case, no punctuation, single spaces."""
-    text = unicodedata.normalize("NFKC", text).lower().replace("'", "").replace("\u2019", "")
-    return _SPACES.sub(" ", _DROP.sub(" ", text)).strip()
+    return _normalise_series(pd.Series([text])).iloc[0]
+
+
+def _normalise_series(texts: pd.Series) -> pd.Series:
+    """`normalise` for a whole column at once (vectorised string operations)."""
+    # Arrow strings use RE2, where \p{L} and \p{N} are Unicode letters and digits in any script.
+    folded = texts.astype("string[pyarrow]").str.normalize("NFKC").str.lower()
+    folded = folded.str.replace("['\u2019]", "", regex=True).str.replace(r"[^\p{L}\p{N}\s]", " ", regex=True)
+    return folded.str.replace(r"\s+", " ", regex=True).str.strip()
 
 
 @lru_cache(maxsize=None)
@@ -39,7 +41,7 @@ def flag_nonanswers(texts: pd.Series, extra: tuple[str, ...] = ()) -> np.ndarray
     lengths = texts.str.len().to_numpy()
     # Non-answers are short: a text much longer than the longest listed phrase is never one.
     short = np.flatnonzero(lengths <= 2 * longest + 8)
-    for position, text in zip(short, texts.iloc[short]):
-        folded = normalise(text)
-        flags[position] = (not folded) or folded in phrases
+    if len(short):
+        folded = _normalise_series(texts.iloc[short])
+        flags[short] = ((folded == "") | folded.isin(phrases)).to_numpy(dtype=bool)
     return flags

@@ -1,0 +1,63 @@
+"""Chart of the strongest driver terms on each side: horizontal bars of model coefficients, Okabe-Ito colours."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import pandas as pd  # noqa: E402
+
+from opencode.errors import OpenCodeError  # noqa: E402
+from opencode.export.safe_write import atomic_path  # noqa: E402
+from opencode.palette import SIDE_A, SIDE_B  # noqa: E402
+
+
+@dataclass(frozen=True)
+class ChartBars:
+    """What the chart draws, bottom to top: term, coefficient, bar colour."""
+
+    terms: list[str]
+    values: list[float]
+    colours: list[str]
+
+
+def chart_bars(table: pd.DataFrame, n: int = 10, value: str = "coef") -> ChartBars:
+    """The n terms with the most negative and the n with the most positive `value`, side 0 in SIDE_A."""
+    if value not in table.columns:
+        raise OpenCodeError(f"cannot chart column {value!r}; columns are {', '.join(table.columns)}")
+    ordered = table.sort_values(value, kind="stable")
+    low = ordered[ordered[value] < 0].head(n)
+    high = ordered[ordered[value] > 0].tail(n)
+    chosen = pd.concat([low, high])
+    colours = [SIDE_A if v < 0 else SIDE_B for v in chosen[value]]
+    return ChartBars(chosen["term"].astype(str).tolist(), chosen[value].astype(float).tolist(), colours)
+
+
+def write_driver_chart(table: pd.DataFrame, path: str | os.PathLike, labels: tuple[str, str], *, n: int = 10,
+                       value: str = "coef", title: str | None = None) -> Path:
+    """Write a PNG of the top terms for side 0 (left, SIDE_A) and side 1 (right, SIDE_B); returns the path."""
+    bars = chart_bars(table, n=n, value=value)
+    if not bars.terms:
+        raise OpenCodeError(f"{path}: no term has a non-zero {value}; nothing to chart")
+    height = 1.2 + 0.32 * len(bars.terms)
+    fig, ax = plt.subplots(figsize=(7.5, height), dpi=120)
+    try:
+        positions = range(len(bars.terms))
+        ax.barh(positions, bars.values, color=bars.colours, edgecolor="#000000", linewidth=0.4)
+        ax.set_yticks(list(positions), bars.terms)
+        ax.axvline(0, color="#000000", linewidth=0.8)
+        ax.set_xlabel(f"{value} (log-odds, penalized model): left leans to {labels[0]}, right to {labels[1]}")
+        handles = [plt.Rectangle((0, 0), 1, 1, color=SIDE_A), plt.Rectangle((0, 0), 1, 1, color=SIDE_B)]
+        ax.legend(handles, [labels[0], labels[1]], loc="lower right", frameon=False)
+        ax.set_title(title or f"Terms that predict {labels[1]} vs {labels[0]}")
+        fig.tight_layout()
+        with atomic_path(path, suffix=".png") as tmp:
+            fig.savefig(tmp, format="png")
+    finally:
+        plt.close(fig)
+    return Path(path)
