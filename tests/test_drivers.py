@@ -14,10 +14,12 @@ from opencode.errors import OpenCodeError
 from opencode.palette import SIDE_A, SIDE_B
 
 
-def planted(seed=0, n_docs=400, n_terms=60, n_signal=4, strength=1.5):
+def planted(seed=0, n_docs=400, n_terms=60, n_signal=4, strength=2.0):
     """Small synthetic fixture (property checks only): terms w0..w3 push to side 1, w4..w7 to side 0."""
     rng = np.random.default_rng(seed)
-    X = sp.csr_matrix(rng.binomial(1, rng.uniform(0.03, 0.25, n_terms), size=(n_docs, n_terms)).astype(float))
+    rates = rng.uniform(0.03, 0.25, n_terms)
+    rates[:2 * n_signal] = 0.15
+    X = sp.csr_matrix(rng.binomial(1, rates, size=(n_docs, n_terms)).astype(float))
     beta = np.zeros(n_terms)
     beta[:n_signal], beta[n_signal:2 * n_signal] = strength, -strength
     y = (rng.random(n_docs) < 1 / (1 + np.exp(-(X @ beta - 0.2)))).astype(int)
@@ -26,7 +28,7 @@ def planted(seed=0, n_docs=400, n_terms=60, n_signal=4, strength=1.5):
 
 @pytest.fixture(scope="module")
 def fitted():
-    X, y, terms = planted()
+    X, y, terms = planted(n_docs=800)
     return X, y, terms, DriverRanker("l1", Cs=8, n_subsamples=20).fit(X, y, terms=terms, labels=("no", "yes"))
 
 
@@ -35,8 +37,8 @@ def test_coefficients_equal_scikit_learn(penalty, l1_ratio, solver):
     # Reference: scikit-learn LogisticRegression with the same data (0/1 presence), penalty and chosen C.
     X, y, terms = planted(1)
     counts = X.multiply(2)  # counts become presence inside the ranker
-    ranker = DriverRanker(penalty, Cs=6, n_subsamples=0).fit(counts, y, terms=terms)
-    reference = make_logistic(ranker.C_, l1_ratio, solver, max_iter=1000, random_state=0).fit(X, y)
+    ranker = DriverRanker(penalty, Cs=6, n_subsamples=0, tol=1e-8).fit(counts, y, terms=terms)
+    reference = make_logistic(ranker.C_, l1_ratio, solver, max_iter=1000, tol=1e-8, random_state=0).fit(X, y)
     np.testing.assert_allclose(ranker.coef_, reference.coef_.ravel(), atol=1e-6)
     assert ranker.intercept_ == pytest.approx(reference.intercept_[0], abs=1e-6)
     if penalty == "l2":  # an independent solver reaches the same optimum (lbfgs vs newton-cg)
@@ -219,8 +221,8 @@ def test_holdout_scores(fitted):
 
 
 def test_hanley_mcneil_interval():
-    # Hanley & McNeil (1982), Radiology 143: SE(A) formula; A = 0.5 with 50 + 50 gives SE = sqrt(1/12)... / n
-    # checked here by its defining expression with Q1 = A/(2-A), Q2 = 2A^2/(1+A).
+    # Hanley & McNeil (1982), Radiology 143:29-36, eq. 2: SE(A) with Q1 = A/(2-A), Q2 = 2A^2/(1+A);
+    # 1.959964 = the 97.5% normal quantile (from memory).
     auc, n1, n0 = 0.8, 60, 90
     q1, q2 = auc / (2 - auc), 2 * auc**2 / (1 + auc)
     se = np.sqrt((auc * (1 - auc) + (n1 - 1) * (q1 - auc**2) + (n0 - 1) * (q2 - auc**2)) / (n1 * n0))
@@ -244,3 +246,11 @@ def test_chart_uses_side_colours_and_writes_png(fitted, tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["drivers.png"]  # no temporary file left behind
     with pytest.raises(OpenCodeError, match="no term has a non-zero coef"):
         write_driver_chart(ranker.ranking_.assign(coef=0.0), tmp_path / "empty.png", ranker.labels_)
+
+
+def test_l2_stability_counts_the_largest_coefficients():
+    # With L2 nothing is exactly zero, so each half-sample fit selects its stability_top largest |coef|.
+    X, y, terms = planted(15, n_docs=200, n_terms=30)
+    ranker = DriverRanker("l2", Cs=[0.1], n_subsamples=5, stability_top=8).fit(X, y, terms=terms)
+    assert ranker.stability_.sum() == pytest.approx(8.0)
+    assert ranker.stability_[:8].mean() > ranker.stability_[8:].mean()

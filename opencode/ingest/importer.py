@@ -11,12 +11,15 @@ import difflib
 import json
 import os
 import tempfile
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from opencode.errors import OpenCodeError
 from opencode.export.safe_write import normal_file_mode
@@ -24,6 +27,7 @@ from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies,
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
 from opencode.ingest.readers import RawTable, read_survey_file
+from opencode.ingest.text_cells import as_text
 from opencode.study import survey_data
 from opencode.study.store import Study
 
@@ -99,19 +103,20 @@ def _check_columns(table: RawTable, options: ImportOptions) -> None:
 
 def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
     raw = table.frame[id_column]
-    keys = raw.astype(object).where(raw.notna(), "").astype(str).str.strip()
+    keys = as_text(raw).str.strip()
     keys = keys.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_float_dtype(raw) else keys
-    blank = keys.isin(["", "\\N", "NULL", "nan"])
+    blank = keys.isin(["", "\\N", "NULL", "nan"]).to_numpy(dtype=bool)
     if blank.any():
-        rows = [table.row_name(i) for i in np.flatnonzero(blank.to_numpy())[:5]]
+        rows = [table.row_name(i) for i in np.flatnonzero(blank)[:5]]
         raise OpenCodeError(f"{table.path}: column {id_column}: missing respondent id in {', '.join(rows)}")
-    duplicated = keys.duplicated(keep=False)
-    if duplicated.any():
+    listed = keys.tolist()
+    if pc.count_distinct(pa.array(listed, type=pa.string())).as_py() < len(listed):
+        duplicated = keys.duplicated(keep=False)
         first = keys[duplicated].iloc[0]
         rows = [table.row_name(i) for i in np.flatnonzero((keys == first).to_numpy())[:5]]
         raise OpenCodeError(f"{table.path}: column {id_column}: respondent id {first!r} appears more than once "
                             f"({', '.join(rows)})")
-    return keys.tolist()
+    return listed
 
 
 def _check_cell_sizes(table: RawTable, options: ImportOptions) -> None:
@@ -140,7 +145,7 @@ def plan_columns(table: RawTable, options: ImportOptions) -> list[ColumnPlan]:
             continue
         if name in options.questions:
             plan = ColumnPlan(name, "text", "question", table.variable_labels.get(name, ""))
-            plan.values = clean_text(table.frame[name], display_safe=table.display_safe)
+            plan.values = clean_text(table.frame[name])
         else:
             kind = options.kinds.get(name) or ("numeric" if name == options.weight else infer_kind(table, name))
             plan = convert(table, name, kind)
@@ -167,14 +172,16 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
     _check_columns(table, options)
     keys = _respondent_keys(table, options.id_column)
     _check_cell_sizes(table, options)
-    plans = plan_columns(table, options)
     report = ImportReport(study_path, Path(source), created=not study_path.exists(), encoding=table.encoding)
     say("writing the study")
-    if report.created:
-        _create_then_rename(study_path, lambda study: _write(study, keys, plans, report))
-    else:
-        with Study.open(study_path) as study, study.transaction():
-            _write(study, keys, plans, report)
+    # Columns are converted on the second core while SQLite writes the respondents (both release the GIL).
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        plans = pool.submit(plan_columns, table, options)
+        if report.created:
+            _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
+        else:
+            with Study.open(study_path) as study, study.transaction():
+                _write(study, keys, plans.result, report)
     return report
 
 
@@ -190,9 +197,8 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
     try:
         study = Study.create(temp, overwrite=True)
         try:
-            with study.transaction():
+            with study.private_bulk_load(), study.transaction():
                 fill(study)
-            study.db.execute("PRAGMA wal_checkpoint(TRUNCATE)")
         finally:
             study.close()
         os.replace(temp, target)
@@ -202,13 +208,13 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
                 os.remove(str(temp) + extra)
 
 
-def _write(study: Study, keys: list[str], plans: list[ColumnPlan], report: ImportReport) -> None:
+def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport) -> None:
     existing = dict(study.db.execute("SELECT key, id FROM respondents"))
     next_id = len(existing) + 1
     new_keys = [k for k in keys if k not in existing] if existing else keys
     # One statement over a JSON array: far faster than a Python-level insert per respondent.
     study.db.execute("INSERT INTO respondents (id, key) SELECT ? + key, value FROM json_each(?)",
-                     (next_id, json.dumps(new_keys, ensure_ascii=False)))
+                     (next_id, json.dumps(new_keys)))
     report.respondents_added = len(new_keys)
     report.respondents_updated = len(keys) - len(new_keys)
     if existing:
@@ -217,7 +223,7 @@ def _write(study: Study, keys: list[str], plans: list[ColumnPlan], report: Impor
     else:  # a first import: respondents are numbered in file order
         respondent_ids = np.arange(next_id, next_id + len(keys), dtype=np.int64)
     total = next_id - 1 + len(new_keys)
-    for plan in plans:
+    for plan in plans():
         variable_id = _upsert_variable(study, plan, report)
         if plan.role == "id":
             continue
@@ -274,18 +280,22 @@ def _write_values(study: Study, variable_id: int, plan: ColumnPlan, respondent_i
 def _write_verbatims(study: Study, question_id: int, plan: ColumnPlan, respondent_ids: np.ndarray,
                      report: ImportReport) -> None:
     texts: pd.Series = plan.values
-    flags = flag_nonanswers(texts)
     has_any = study.db.execute("SELECT 1 FROM verbatims WHERE question_id = ? LIMIT 1", (question_id,)).fetchone()
     consecutive = len(respondent_ids) > 0 and bool(np.all(np.diff(respondent_ids) == 1))
     if not has_any and consecutive:  # a new question over a block of respondents: one bulk statement
-        study.db.execute("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) "
-                         "SELECT ?, ? + key, value, 0 FROM json_each(?)",
-                         (question_id, int(respondent_ids[0]), json.dumps(texts.tolist(), ensure_ascii=False)))
+        # Flag non-answers on the second core while SQLite writes (both release the GIL), then mark them.
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            pending = pool.submit(flag_nonanswers, texts)
+            study.db.execute("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) "
+                             "SELECT ?, ? + key, value, 0 FROM json_each(?)",
+                             (question_id, int(respondent_ids[0]), json.dumps(texts.tolist())))
+            flags = pending.result()
         study.db.executemany("UPDATE verbatims SET nonanswer = 1 WHERE question_id = ? AND respondent_id = ?",
                              [(question_id, int(rid)) for rid in respondent_ids[flags]])
         report.verbatims_added += len(texts)
         report.nonanswers += int(flags.sum())
         return
+    flags = flag_nonanswers(texts)
     known = {rid: (text, key) for rid, text, key in study.db.execute(
         "SELECT v.respondent_id, v.text, r.key FROM verbatims v JOIN respondents r ON r.id = v.respondent_id "
         "WHERE v.question_id = ?", (question_id,))}

@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.ingest.text_cells import NULL_MARKERS, strip_display_breakers
+from opencode.ingest.text_cells import NULL_MARKERS
 from opencode.ingest.sniff import decode_text, detect_format, sniff_delimiter
 
 #: Cells that mean "no value" in text exports ("\N" from database dumps, NULL, and the like).
@@ -28,7 +28,6 @@ class RawTable:
     value_labels: dict[str, dict[float, str]] = field(default_factory=dict)
     missing_codes: dict[str, list[float]] = field(default_factory=dict)
     encoding: str | None = None
-    display_safe: bool = False  # characters that break display already stripped from every cell
 
     def row_name(self, index: int) -> str:
         """How to name data row `index` (0-based) to a user."""
@@ -72,17 +71,26 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
     raw = path.read_bytes()
     if not raw.strip():
         raise OpenCodeError(f"{path}: the file is empty")
-    text, used = decode_text(path, raw, encoding)
+    text, used = decode_text(path, raw, encoding, head_only=b"\x00" not in raw)
     if text.startswith("\ufeff"):
         text = text[1:]
-    text = strip_display_breakers(text.replace("\r\n", "\n"))
+    if "\x00" in text:
+        text = text.replace("\x00", "")
     sep = delimiter or sniff_delimiter(path, text, kind)
+    # UTF-8 files are parsed from their bytes (fast); other encodings from the decoded text.
+    utf8 = used in ("utf-8", "utf-8-sig") and b"\x00" not in raw
+    source = (lambda: io.BytesIO(raw[3:] if used == "utf-8-sig" else raw)) if utf8 else (lambda: io.StringIO(text))
     try:
-        header = pd.read_csv(io.StringIO(text), sep=sep, nrows=0, engine="c").columns
+        header = pd.read_csv(source(), sep=sep, nrows=0, engine="c").columns
         typed = [c for c in header if str(c).strip() not in text_columns] if text_columns else []
-        frame = pd.read_csv(io.StringIO(text), sep=sep, engine="c", skip_blank_lines=True,
-                            dtype={c: str for c in header if c not in typed}, keep_default_na=False,
+        frame = pd.read_csv(source(), sep=sep, engine="c", skip_blank_lines=True, keep_default_na=False,
                             na_values={c: sorted(NULL_MARKERS) for c in typed})
+        as_given = [c for c in header if c not in typed and not pd.api.types.is_string_dtype(frame[c])]
+        if as_given:  # ids or answers that looked like numbers: read those columns again exactly as written
+            exact = pd.read_csv(source(), sep=sep, engine="c", skip_blank_lines=True, keep_default_na=False,
+                                usecols=as_given, dtype=str)
+            for column in as_given:
+                frame[column] = exact[column]
     except pd.errors.ParserError as error:
         match = _RAGGED.search(str(error))
         if match:
@@ -93,7 +101,7 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
     except pd.errors.EmptyDataError as error:
         raise OpenCodeError(f"{path}: the file is empty") from error
     frame.columns = [str(c).strip() for c in frame.columns]
-    return RawTable(path, frame, kind, encoding=used, display_safe=True)
+    return RawTable(path, frame, kind, encoding=used)
 
 
 def _read_xlsx(path: Path, sheet: str | int | None) -> RawTable:

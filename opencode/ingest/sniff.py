@@ -73,14 +73,19 @@ def detect_encoding(raw: bytes) -> str:
     return "cp1252"
 
 
-def decode_text(path: Path, raw: bytes, encoding: str | None) -> tuple[str, str]:
-    """Decode the whole file; a forced encoding that fails names the line and byte."""
+def decode_text(path: Path, raw: bytes, encoding: str | None, head_only: bool = False) -> tuple[str, str]:
+    """Decode the file (or, for UTF-8 that is already known valid, only its first 64 KB for sniffing).
+
+    A forced encoding that fails names the line and byte.
+    """
     chosen = encoding or detect_encoding(raw)
     try:
         codecs.lookup(chosen)
     except LookupError as error:
         raise OpenCodeError(f"{path}: unknown encoding {chosen!r}") from error
     try:
+        if head_only and encoding is None and chosen in ("utf-8", "utf-8-sig"):
+            return raw[:65536].decode(chosen, errors="ignore"), chosen  # detect_encoding validated it all
         return raw.decode(chosen), chosen
     except UnicodeDecodeError as error:
         line = raw[: error.start].count(b"\n") + 1

@@ -10,11 +10,7 @@ import pandas as pd
 NULL_MARKERS = frozenset({"", "\\N", "NULL", "null", "NaN", "nan", "#NULL!", "."})
 # Characters that break a terminal or a table: C0/C1 controls (not tab or newline) and bidi overrides.
 _BREAKS_DISPLAY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
-
-
-def strip_display_breakers(text: str) -> str:
-    """Remove characters that break a terminal or a table from a whole text at once."""
-    return _BREAKS_DISPLAY.sub("", text)
+_NEEDS_CLEANING = "[\r" + _BREAKS_DISPLAY.pattern[1:]
 
 
 def as_text(series: pd.Series) -> pd.Series:
@@ -24,11 +20,11 @@ def as_text(series: pd.Series) -> pd.Series:
     return series.astype(object).where(series.notna(), "").astype(str)
 
 
-def clean_text(series: pd.Series, display_safe: bool = False) -> pd.Series:
-    """Text as given, minus characters that break display (unless already stripped); null markers become empty."""
-    text = as_text(series)
+def clean_text(series: pd.Series) -> pd.Series:
+    """Text as given, minus characters that break display; null markers become empty."""
+    text = as_text(series).astype("string[pyarrow]")
     text = text.where(~text.isin(["\\N", "NULL", "nan", "NaN", "None"]), "")
-    if display_safe:
-        return text
-    text = text.str.replace("\r\n", "\n", regex=False)
-    return text.str.replace(_BREAKS_DISPLAY, "", regex=True)
+    # Most columns hold none of these characters: one fast look, and replace only where needed.
+    if text.str.contains(_NEEDS_CLEANING, regex=True).any():
+        text = text.str.replace("\r\n", "\n", regex=False).str.replace(_BREAKS_DISPLAY.pattern, "", regex=True)
+    return text.astype(str)

@@ -96,6 +96,20 @@ class Study:
     def __exit__(self, *exc) -> None:
         self.close()
 
+    @contextlib.contextmanager
+    def private_bulk_load(self) -> Iterator["Study"]:
+        """Fill a study no one else can see yet (a temporary file) without journaling; WAL again afterwards.
+
+        Only for a file that is thrown away if anything fails: without a journal a failed write is not undone.
+        """
+        self.db.execute("PRAGMA journal_mode = OFF")
+        self.db.execute("PRAGMA synchronous = OFF")
+        try:
+            yield self
+        finally:
+            self.db.execute("PRAGMA journal_mode = WAL")
+            self.db.execute("PRAGMA synchronous = NORMAL")
+
     # -- schema ----------------------------------------------------------------------------------------------
     def schema_version(self) -> int:
         """The schema version this file is at."""

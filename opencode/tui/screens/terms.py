@@ -1,8 +1,9 @@
 """The terms screen: the question's terms, kwic lines for the one selected, drivers when an outcome is set,
 and bulk coding of the verbatims containing a term after a review step.
 
-The term matrix is built in a thread (the screen stays responsive). Drivers come from `drivers_source`, a
-pluggable function: it returns rows to show, or a sentence saying why there are none.
+The term matrix and the drivers are computed in threads (the screen stays responsive, drivers show their
+progress). Drivers come from `drivers_source`, a pluggable function: it returns rows to show and a line about
+them (model quality), or no rows and a sentence saying why there are none.
 """
 
 from __future__ import annotations
@@ -11,15 +12,19 @@ from typing import Callable
 
 import numpy as np
 from rich.text import Text
+from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
+from textual.worker import get_current_worker
 
+from opencode.analysis import study_drivers
 from opencode.coding.features import default_analyzer
 from opencode.errors import OpenCodeError
 from opencode.study import survey_data
+from opencode.study.store import Study
 from opencode.text.kwic import kwic
 from opencode.text.matrix import TermMatrix, build_matrix
 from opencode.text.words import top_terms
@@ -28,18 +33,43 @@ from opencode.tui.widgets.panes import Pane
 
 MAX_TERMS = 300
 KWIC_LINES = 40
+#: Driver terms shown per side on the terms screen.
+DRIVERS_PER_SIDE = 8
+NO_OUTCOME = "drivers: set a closed-ended outcome first (oecode drivers / a variable with role outcome)"
+
+Progress = Callable[[int, int], None]
+DriverRows = tuple[list[tuple[str, str]], str]
 
 
-def no_drivers(study, question: str, tm: TermMatrix) -> tuple[list[tuple[str, str]], str]:
-    """The default drivers source: none, with the reason (the drivers library plugs in here)."""
-    outcomes = survey_data.list_variables(study, role="outcome")
-    if not outcomes:
-        return [], "drivers: set a closed-ended outcome first (oecode drivers / a variable with role outcome)"
-    return [], f"drivers against {outcomes[0].name}: the drivers ranking is not available in this build yet"
+def ranked_drivers(study: Study, question: str, progress: Progress | None = None) -> DriverRows:
+    """Drivers for the question's outcome (the choice `oecode drivers` stored, else the role-outcome variable).
+
+    Rows are (term, figure) for the top terms of each side; the note is the model's quality line, or why
+    there is no ranking (no outcome, the text barely predicts it, or a problem with the data).
+    """
+    choice = study_drivers.drivers_choice(study, question)
+    if choice is None:
+        return [], NO_OUTCOME
+    try:
+        result = study_drivers.question_drivers(study, question, choice["outcome"], split=choice.get("split"),
+                                                one_vs_rest=bool(choice.get("one_vs_rest")), progress=progress)
+    except OpenCodeError as error:
+        return [], f"drivers against {choice['outcome']}: {error}"
+    comparison = result.first
+    note = "  ".join(study_drivers.quality_lines(comparison))
+    if comparison.ranker.quality_note_:
+        return [], f"{note}\n{comparison.ranker.quality_note_}"
+    rows = []
+    labels = dict(zip(comparison.table["term"], comparison.table["label"]))
+    for side in (1, 0):
+        arrow = "+" if side == 1 else "-"
+        for _, row in comparison.ranker.top_terms(side, DRIVERS_PER_SIDE).iterrows():
+            rows.append((labels[row["term"]], f"{arrow} OR {row['odds_ratio']:.2f}"))
+    return rows, note
 
 
-#: (study, question, term matrix) -> ([(term, figure text)], note). Replace to show a drivers ranking.
-drivers_source: Callable = no_drivers
+#: (study, question, progress) -> ([(term, figure text)], note). Replace to show another drivers ranking.
+drivers_source: Callable[..., DriverRows] = ranked_drivers
 
 
 class TermsScreen(Screen):
@@ -72,6 +102,38 @@ class TermsScreen(Screen):
         self.tm: TermMatrix | None = None
         self.rows = []
         self.run_worker(self._build, thread=True, group="terms", exclusive=True)
+        self.query_one("#drivers", Static).update(Text("drivers: reading the outcome…", style="italic"))
+        self._drivers()
+
+    @work(thread=True, group="drivers", exclusive=True)
+    def _drivers(self) -> None:
+        """Fit the drivers off the UI thread on a connection of its own, showing the steps as they finish."""
+        s = self.session
+
+        worker = get_current_worker()
+
+        def show(found: list[tuple[str, str]], note: str) -> None:
+            if not worker.is_cancelled:
+                self.app.call_from_thread(self._show_drivers, found, note)
+
+        try:
+            with Study.open(s.study.path) as study:
+                found, note = drivers_source(study, s.question.name,
+                                             lambda done, total: show([], f"drivers: fitting… step {done} of {total}"))
+        except OpenCodeError as error:
+            found, note = [], f"drivers: {error}"
+        show(found, note)
+
+    def _show_drivers(self, found: list[tuple[str, str]], note: str) -> None:
+        if not self.is_attached:
+            return
+        text = Text(note, style="italic")
+        if found:
+            text.append("\n")
+            for term, figure in found:
+                text.append(f"{term} ", style="bold")
+                text.append(f"{figure}   ")
+        self.query_one("#drivers", Static).update(text)
 
     def _build(self) -> None:
         s = self.session
@@ -81,13 +143,12 @@ class TermsScreen(Screen):
             tm = build_matrix(texts, default_analyzer(s.study, s.question.name),
                               doc_ids=frame["verbatim_id"].tolist(), exclude=frame["nonanswer"].to_numpy())
             rows = top_terms(tm, n=MAX_TERMS)
-            drivers = drivers_source(s.study, s.question.name, tm)
         except OpenCodeError as error:
             self.app.call_from_thread(self.say, str(error), True)
             return
-        self.app.call_from_thread(self._ready, tm, texts, rows, drivers)
+        self.app.call_from_thread(self._ready, tm, texts, rows)
 
-    def _ready(self, tm: TermMatrix, texts: list[str], rows, drivers) -> None:
+    def _ready(self, tm: TermMatrix, texts: list[str], rows) -> None:
         self.tm, self.texts, self.rows = tm, texts, rows
         table = self.query_one(DataTable)
         for row in rows:
@@ -96,11 +157,6 @@ class TermsScreen(Screen):
         self.query_one("#terms-title", Static).update(
             Text(f" terms of {self.session.question.name}  ·  {len(rows)} shown  ·  "
                  f"{tm.counts.shape[0]:,} verbatims with terms", style="bold"))
-        found, note = drivers
-        text = Text()
-        for term, figure in found[:10]:
-            text.append(f"{term} {figure}   ")
-        self.query_one("#drivers", Static).update(text if found else Text(note, style="italic"))
         self.show_kwic()
 
     def selected(self):
