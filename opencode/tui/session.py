@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from opencode.coding import assignments as coding
-from opencode.coding import frames, history
+from opencode.coding import frames, history, reliability
 from opencode.coding.frames import Code, Frame
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
@@ -162,9 +162,12 @@ class DeskSession:
         return None if vid is None else coding.note_of(self.study, vid, self.coder)
 
     def others(self) -> list[tuple[str, int, str]]:
-        """Other coders' codes on the current verbatim (seen after a refresh)."""
+        """Other coders' codes on the current verbatim (seen after a refresh); hidden while it is in one of
+        this coder's reliability samples, so double coding stays blind."""
         vid = self.current_id
-        return [] if vid is None else dq.other_coders_codes(self.study, vid, self.coder)
+        if vid is None or reliability.is_blind(self.study, self.question.name, self.coder, vid):
+            return []
+        return dq.other_coders_codes(self.study, vid, self.coder)
 
     def context(self) -> list[tuple[str, str]]:
         """(variable name, answer label) of the respondent's closed-ended answers."""
