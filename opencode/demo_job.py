@@ -13,7 +13,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
+from opencode.analysis.study_drivers import drivers_chart, drivers_html, question_drivers, remember_choice
 from opencode.analysis.study_tables import question_tables, write_tables
+from opencode.analysis.study_themes import search_question_k, themes_html, themes_with_chart
 from opencode.analysis.table_output import format_table
 from opencode.coding import adjudication, autocode, frame_io, reliability, rules
 from opencode.coding.import_codes import import_codes
@@ -31,6 +33,9 @@ DEMO_CODERS = ["ash", "bryn"]
 DEMO_BANNERS = ["support", "age_band", "children"]
 DEMO_PHRASES = ["opening hours", "self service", "study space", "panic button", "waiting lists"]
 DEMO_MERGES = {"library": ["libary", "liberry"]}
+DEMO_K_RANGE = "4:12"
+DEMO_OUTCOME = "support"
+DEMO_SPLIT = "top2"
 #: The accuracy the machine coder must reach in cross-validation before it pre-codes anything.
 TARGET_ACCURACY = 0.9
 ACTOR = "demo"
@@ -109,7 +114,30 @@ def run_demo(folder: str | Path, progress: Callable[[str], None] | None = None) 
 
 def _explore(study: Study, folder: Path, outputs: DemoOutputs, say) -> list[ReportSection]:
     """Themes and drivers before any coding: what people talk about, which words go with support."""
-    return []
+    sections = []
+    for question in DEMO_QUESTIONS:
+        say(f"{question}: choosing the number of themes (k = {DEMO_K_RANGE}) by coherence and stability")
+        search = search_question_k(study, question, DEMO_K_RANGE, actor=ACTOR)
+        k = search.search.recommended_k
+        say(f"{question}: {k} themes")
+        themes, chart = themes_with_chart(study, question, folder / f"themes-{question}.png", k=k, by="support",
+                                          actor=ACTOR)
+        outputs.files[f"themes chart ({question})"] = chart
+        outputs.lines.append(f"{question}: {k} themes (recommended by coherence and stability; reading them is the "
+                             "final test): " + "; ".join(t.label for t in themes.run.themes))
+        sections.append(ReportSection(f"Themes in {question}", themes_html(themes, chart)))
+    say("why: drivers of support (support or strong support against oppose or strong oppose)")
+    remember_choice(study, "why", DEMO_OUTCOME, split=DEMO_SPLIT, actor=ACTOR)
+    drivers = question_drivers(study, "why", DEMO_OUTCOME, split=DEMO_SPLIT, n_subsamples=20)
+    chart = drivers_chart(drivers, folder / "drivers-why.png")[0]
+    outputs.files["drivers chart (why)"] = chart
+    comparison = drivers.comparisons[0]
+    label = dict(zip(comparison.table["term"], comparison.table["label"]))
+    sides = [", ".join(label[t] for t in comparison.ranker.top_terms(side, 6)["term"]) for side in (1, 0)]
+    outputs.lines.append(f"why: drivers of {DEMO_OUTCOME}: cross-validated AUC {comparison.ranker.cv_auc_:.2f}; "
+                         f"{comparison.outcome.labels[1]}: {sides[0]}; {comparison.outcome.labels[0]}: {sides[1]}")
+    sections.append(ReportSection(f"Drivers of {DEMO_OUTCOME} in why", drivers_html(drivers, chart, heading=False)))
+    return sections
 
 
 def _code(study: Study, question: str, outputs: DemoOutputs, say):

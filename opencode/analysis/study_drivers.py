@@ -7,7 +7,6 @@ after the lexicon, and whose outcome falls on a side of the split. Everything le
 
 from __future__ import annotations
 
-import base64
 import html
 import os
 import re
@@ -24,6 +23,7 @@ from opencode.analysis.driver_chart import write_driver_chart
 from opencode.analysis.drivers import DriverRanker, term_indicators
 from opencode.analysis.outcome import Outcome, make_outcome, one_vs_rest as outcome_per_category
 from opencode.errors import OpenCodeError
+from opencode.export.html_embed import png_img
 from opencode.study import survey_data
 from opencode.study.store import Study
 from opencode.text.matrix import TermMatrix
@@ -381,18 +381,18 @@ def _comparison_html(comparison: DriverComparison, n: int) -> str:
 
 
 def drivers_html(result: StudyDrivers, chart: str | os.PathLike | bytes | None = None, *,
-                 n: int = TOP_PER_SIDE) -> str:
-    """An HTML <section> for the report: the top terms per side, the notes, and the chart embedded as base64 PNG."""
-    parts = [f'<section class="oc-drivers-section"><h2>Drivers of {html.escape(result.outcome_variable)} in '
-             f"{html.escape(result.question)}</h2>"]
+                 n: int = TOP_PER_SIDE, heading: bool = True) -> str:
+    """An HTML <section> for the report: the top terms per side, the notes, and the chart embedded as base64 PNG.
+
+    `heading=False` leaves out the section's own title (for a report that titles its sections itself).
+    """
+    parts = ['<section class="oc-drivers-section">']
+    if heading:
+        parts.append(f"<h2>Drivers of {html.escape(result.outcome_variable)} in {html.escape(result.question)}</h2>")
     parts += [f'<p class="oc-note">{html.escape(note)}</p>' for note in result.notes]
     parts += [_comparison_html(c, n) for c in result.comparisons]
     if chart is not None:
-        data = chart if isinstance(chart, bytes) else Path(chart).read_bytes()
-        if not data.startswith(b"\x89PNG"):
-            raise OpenCodeError(f"{chart if not isinstance(chart, bytes) else 'chart'}: is not a PNG image")
-        parts.append(f'<img class="oc-chart" alt="chart of the driver terms" '
-                     f'src="data:image/png;base64,{base64.b64encode(data).decode("ascii")}">')
+        parts.append(png_img(chart, "chart of the driver terms"))
     parts.append('<p class="oc-caption">Odds ratio from the penalized model (verbatims mentioning the term); '
                  "stability: share of half-sample fits selecting the term; q: Benjamini-Hochberg adjusted p of "
                  "the term's 2x2 table.</p></section>")

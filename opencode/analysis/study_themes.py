@@ -9,6 +9,7 @@ study with its parameters, seed and lexicon version so it can be shown, compared
 
 from __future__ import annotations
 
+import html
 import os
 import re
 from dataclasses import dataclass, field
@@ -27,6 +28,8 @@ from opencode.analysis.themes import LOSSES
 from opencode.coding import rules as coding_rules
 from opencode.coding.frames import Code, add_code, load_frame
 from opencode.errors import OpenCodeError
+from opencode.export.html_embed import png_img
+from opencode.export.masking import mask_identifiers
 from opencode.study import theme_runs_store as store
 from opencode.study.store import Study
 from opencode.study.survey_data import analysis_values, get_question, get_variable, respondent_keys, verbatims
@@ -504,3 +507,26 @@ def format_unexplained(table: pd.DataFrame, width: int = 100) -> str:
     rows = [[d, f"{s:.0%}", " ".join(str(t or "").split())[:width - 30]]
             for d, s, t in zip(table["doc_id"], table["best_share"], table["text"])]
     return format_table(["respondent", "best share", "text"], rows)
+
+
+# -- report -----------------------------------------------------------------------------------------------------
+def themes_html(result: QuestionThemes, chart: str | os.PathLike | bytes | None = None, *, quotes: int = 1) -> str:
+    """An HTML fragment for the report: each theme's draft label, top terms, share and a masked example verbatim,
+    then the term chart embedded as a PNG."""
+    rows = []
+    for theme in result.run.themes:
+        examples = [mask_identifiers(r.text) for r in theme.representatives[:quotes] if r.text]
+        rows.append("<tr>" + "".join(f"<td>{html.escape(str(cell))}</td>" for cell in (
+            theme.index + 1, theme.label, ", ".join(theme.top_terms[:8]), f"{100 * theme.share:.1f}%",
+            f"{theme.npmi:.2f}", " / ".join(examples))) + "</tr>")
+    settings = result.settings
+    parts = [f'<p class="oc-lead">{len(result.run.themes)} themes ({html.escape(str(settings.get("method", "")))}, '
+             f"run {result.run_id}) in {html.escape(result.question)}; machine-found groups of terms to read, "
+             "not codes: promote the ones that hold up into the code frame.</p>",
+             '<table class="oc-table"><thead><tr><th>#</th><th>draft label</th><th>top terms</th>'
+             "<th>share dominated</th><th>NPMI</th><th>example (masked)</th></tr></thead><tbody>",
+             *rows, "</tbody></table>"]
+    parts += [f'<p class="oc-note">{html.escape(note)}</p>' for note in result.run.notes]
+    if chart is not None:
+        parts.append(png_img(chart, f"term weights of the themes in {result.question}"))
+    return "".join(parts)

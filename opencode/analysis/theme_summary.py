@@ -167,17 +167,23 @@ def _prevalence_from_record(record: dict) -> Prevalence:
                       tests=tests, tested_groups=list(record["tested_groups"]), note=record["note"])
 
 
+_BARE_NEGATIONS = frozenset({"not", "never", "none", "nor", "nothing", "nobody"})
+
+
 def propose_code_label(top_labels: Sequence[str], n_words: int = 3) -> str:
     """A short draft code label from a theme's top terms, e.g. "Staff / safety / evenings".
 
     Terms that repeat an earlier one (same word, or one a prefix of the other, e.g. staff / staffing) are
-    skipped; phrase terms joined by "_" read as words.
+    skipped, and so are words that name nothing on their own (numbers, words under three letters, a bare
+    negation); phrase terms joined by "_" read as words.
     """
     chosen: list[str] = []
     for raw in top_labels:
         term = " ".join(str(raw).replace("_", " ").split())
         lowered = term.lower()
-        if not term or any(lowered.startswith(c.lower()) or c.lower().startswith(lowered) for c in chosen):
+        if len(lowered) < 3 or lowered.isdigit() or lowered in _BARE_NEGATIONS:
+            continue
+        if any(lowered.startswith(c.lower()) or c.lower().startswith(lowered) for c in chosen):
             continue
         chosen.append(term)
         if len(chosen) == n_words:

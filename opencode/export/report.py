@@ -8,7 +8,6 @@ offline and prints cleanly.
 
 from __future__ import annotations
 
-import base64
 import datetime as dt
 import html
 import os
@@ -27,6 +26,7 @@ from opencode.analysis.table_output import TABLE_CSS, to_html
 from opencode.analysis.tables import MIN_BASE, banner_table, code_frequencies
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
+from opencode.export.html_embed import png_img
 from opencode.export.masking import mask_identifiers
 from opencode.export.report_charts import frequency_chart_png
 from opencode.export.safe_write import atomic_open, check_writable_target
@@ -158,10 +158,10 @@ def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreem
              f"{frequencies.base.n:,} coded verbatims that are not non-answers; "
              f"{frequencies.non_answer.n:,} non-answers shown apart.</p>"]
     parts += [f'<p class="oc-note">{html.escape(n)}</p>' for n in notes]
-    chart = base64.b64encode(frequency_chart_png(frequencies)).decode("ascii")
     parts.append('<div class="oc-scroll">' + to_html(frequencies) + "</div>")
-    parts.append(f'<figure class="oc-chart"><img alt="Bar chart: % of respondents per code and net of '
-                 f'{html.escape(coding.question)}" src="data:image/png;base64,{chart}">'
+    img = png_img(frequency_chart_png(frequencies), f"Bar chart: % of respondents per code and net of {coding.question}",
+                  css_class="oc-chart-image")
+    parts.append(f'<figure class="oc-chart">{img}'
                  "<figcaption>% of respondents in the base per code; nets count a respondent once.</figcaption></figure>")
     parts.append("<h3>Code frame with example verbatims</h3>" + _frame_table(coding, quotes_per_code, mask))
     if banners:
