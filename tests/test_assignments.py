@@ -1,6 +1,6 @@
 """Assignments: per-coder undo / redo over the audit trail, suggestions never overriding hand codes, speed paths.
 
-The property test replays random sequences of assign / unassign / undo / redo / merge / renumber / import
+The property test replays random sequences of assign / unassign / bulk assign / undo / redo / merge / renumber / import
 against a plain in-memory model (common practice for testing undo stacks; no published source).
 """
 
@@ -94,6 +94,73 @@ def test_undo_redo_per_coder_and_new_change_clears_redo(study):
     assert history.undo(study, "nobody") is None
 
 
+def everything(study) -> list[tuple]:
+    """Every assignment row of every coder, all columns, in a fixed order."""
+    return study.db.execute("SELECT verbatim_id, code_id, coder, source, confidence, created_at FROM assignments "
+                            "ORDER BY verbatim_id, code_id, coder").fetchall()
+
+
+def audit_rows(study) -> int:
+    return study.db.execute("SELECT COUNT(*) FROM audit").fetchone()[0]
+
+
+def test_assign_many_is_one_undoable_change(study):
+    v = A.uncoded_ids(study, "why", "ash")
+    A.assign(study, v[0], 1, "ash")                                    # already a hand code: skipped
+    A.assign(study, v[1], 1, "ash", source="rule")                     # a rule suggestion: becomes hand
+    A.assign(study, v[2], 1, "ash", source="machine", confidence=0.8)  # a machine suggestion: becomes hand
+    A.assign(study, v[4], 2, "ash")                                    # another code of ash: stays
+    A.assign(study, v[1], 1, "bryn", source="rule")                    # other coders: never touched
+    A.assign(study, v[3], 2, "bryn")
+    before, bryn_before, audits = everything(study), [r for r in everything(study) if r[2] == "bryn"], audit_rows(study)
+
+    assert A.assign_many(study, [v[0], v[1], v[2], v[3], v[4], v[4]], 1, "ash") == 4
+    after = everything(study)
+    assert audit_rows(study) == audits + 1  # one audit row for the whole bulk change
+    assert [held(study, x) for x in v[:5]] == [[(1, "hand")], [(1, "hand")], [(1, "hand")], [(1, "hand")],
+                                               [(1, "hand"), (2, "hand")]]
+    assert [r for r in after if r[2] == "bryn"] == bryn_before
+    assert A.assignments(study, "why", ["ash"], ("hand",))["confidence"].isna().all()
+
+    assert history.undo(study, "ash") == "assign"   # one undo takes the whole bulk change back...
+    assert everything(study) == before             # ...to exactly the rows there were (sources, confidences, times)
+    assert history.redo(study, "ash") == "assign"
+    assert everything(study) == after
+    history.undo(study, "ash")
+    history.undo(study, "ash")                      # the next undo reaches the change before the bulk one
+    assert held(study, v[4]) == [] and held(study, v[1]) == [(1, "rule")]
+    assert A.assign_many(study, [v[0]], 1, "ash") == 0 and audit_rows(study) == audits + 1  # nothing: no audit row
+
+
+def test_assign_many_suggestions_and_actor(study):
+    v = A.uncoded_ids(study, "why", "ash")
+    A.assign(study, v[0], 3, "final")
+    assert A.assign_many(study, v[:3], 3, "final", source="rule", actor="lead") == 2
+    assert [held(study, x, "final") for x in v[:3]] == [[(3, "hand")], [(3, "rule")], [(3, "rule")]]
+    assert history.undo(study, "final") == "assign"  # the coder's own change, not the lead's bulk one
+    assert held(study, v[0], "final") == []
+    assert history.undo(study, "lead") == "assign"
+    assert [held(study, x, "final") for x in v[:3]] == [[], [], []]
+
+
+def test_assign_many_bad_inputs_write_nothing(study):
+    v = A.uncoded_ids(study, "why", "ash")
+    frames.add_code(study, "why", "net", 90, kind="net")
+    audits = audit_rows(study)
+    with pytest.raises(OpenCodeError, match="verbatim 99999: no such verbatim"):
+        A.assign_many(study, [v[0], v[1], 99999], 1, "ash")  # all or nothing
+    with pytest.raises(OpenCodeError, match="no code 42"):
+        A.assign_many(study, v, 42, "ash")
+    with pytest.raises(OpenCodeError, match="is a net"):
+        A.assign_many(study, v, 90, "ash")
+    with pytest.raises(OpenCodeError, match="coder name is needed"):
+        A.assign_many(study, v, 1, " ")
+    with pytest.raises(OpenCodeError, match="source 'guess'"):
+        A.assign_many(study, v, 1, "ash", source="guess")
+    assert everything(study) == [] and audit_rows(study) == audits
+    assert A.assign_many(study, [], 1, "ash") == 0 and audit_rows(study) == audits
+
+
 def test_single_verbatim_calls_are_fast(tmp_path):
     """The desk calls these at every key press: each must stay well under 20 ms (a 20,000-verbatim study)."""
     import time
@@ -130,6 +197,7 @@ OPS = st.one_of(
     st.tuples(st.just("renumber"), st.integers(1, 4), st.integers(1, 6)),
     st.tuples(st.just("import"), st.lists(st.tuples(st.integers(0, N_VERBATIMS - 1), st.integers(1, 4)),
                                           min_size=1, max_size=4)),
+    st.tuples(st.just("bulk"), st.lists(st.integers(0, N_VERBATIMS - 1), max_size=5), st.integers(1, 4)),
 )
 
 
@@ -158,6 +226,8 @@ class Model:
             s["pairs"] = {(v, keep if ident == gone else ident) for v, ident in s["pairs"]}
         elif op[0] == "renumber" and op[1] in numbers and op[2] not in numbers:
             numbers[op[2]] = numbers.pop(op[1])
+        elif op[0] == "bulk" and op[2] in numbers:
+            s["pairs"] |= {(v, numbers[op[2]]) for v in op[1]}
         elif op[0] == "import" and all(n in numbers for _, n in op[1]):
             s["pairs"] |= {(v, numbers[n]) for v, n in op[1]}
             s["marks"] |= {v for v, _ in op[1]}
@@ -183,6 +253,8 @@ def run_op(study, folder, vids, op):
             A.assign(study, vids[op[1]], op[2], "ash")
         elif op[0] == "unassign":
             A.unassign(study, vids[op[1]], op[2], "ash")
+        elif op[0] == "bulk":
+            A.assign_many(study, [vids[i] for i in op[1]], op[2], "ash")
         elif op[0] == "undo":
             history.undo(study, "ash")
         elif op[0] == "redo":

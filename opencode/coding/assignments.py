@@ -52,23 +52,55 @@ def _resolve(study: Study, verbatim_id: int, number: int, assignable: bool = Tru
     return int(code_id)
 
 
+def _check_source(source: str) -> str:
+    if source not in SOURCES:
+        raise OpenCodeError(f"source {source!r} is not one of {', '.join(SOURCES)}")
+    return source
+
+
+def _give(change: Change, verbatim_id: int, code_number: int, coder: str, source: str,
+          confidence: float | None, stamp: str) -> str | None:
+    """Stage one code on one verbatim in a change: "assign" (new), "accept" (a suggestion made a hand code),
+    or None when the coder holds it already (a hand code is never downgraded to a suggestion)."""
+    code_id = _resolve(change.study, verbatim_id, code_number)
+    existing = astore.get_assignment(change.study, verbatim_id, code_id, coder)
+    if existing is not None and (existing["source"] == "hand" or source != "hand"):
+        return None
+    change.put_assignment({"verbatim_id": verbatim_id, "code_id": code_id, "coder": coder, "source": source,
+                           "confidence": None if source == "hand" else confidence, "created_at": stamp})
+    return "assign" if existing is None else "accept"
+
+
 def assign(study: Study, verbatim_id: int, code_number: int, coder: str, source: str = "hand",
            confidence: float | None = None) -> bool:
     """Give a verbatim a code; True if anything changed. A hand code turns a suggestion into a hand code."""
-    coder = _check_coder(coder)
-    if source not in SOURCES:
-        raise OpenCodeError(f"source {source!r} is not one of {', '.join(SOURCES)}")
+    coder, source = _check_coder(coder), _check_source(source)
     with study.transaction():
-        code_id = _resolve(study, verbatim_id, code_number)
-        existing = astore.get_assignment(study, verbatim_id, code_id, coder)
-        if existing is not None and (existing["source"] == "hand" or source != "hand"):
-            return False
         change = Change(study)
-        change.put_assignment({"verbatim_id": verbatim_id, "code_id": code_id, "coder": coder, "source": source,
-                               "confidence": None if source == "hand" else confidence, "created_at": now()})
-        change.commit(coder, "assign" if existing is None else "accept", "verbatim", verbatim_id,
-                      number=int(code_number))
+        action = _give(change, verbatim_id, code_number, coder, source, confidence, now())
+        if action is None:
+            return False
+        change.commit(coder, action, "verbatim", verbatim_id, number=int(code_number))
     return True
+
+
+def assign_many(study: Study, verbatim_ids: list[int], code_number: int, coder: str, source: str = "hand",
+                actor: str | None = None) -> int:
+    """Give one code to many verbatims as ONE undoable change (one transaction, one audit row); how many changed.
+
+    Verbatims where the coder holds the code as a hand code already are skipped; a rule or machine suggestion
+    of the code becomes a hand code; other coders' codes are never touched. Any verbatim that cannot take the
+    code (unknown id, no such code, a net, a retired code) stops the whole change with nothing written.
+    """
+    coder, source = _check_coder(coder), _check_source(source)
+    ids = list(dict.fromkeys(int(v) for v in verbatim_ids))
+    with study.transaction():
+        change = Change(study)
+        stamp = now()
+        given = sum(_give(change, v, code_number, coder, source, None, stamp) is not None for v in ids)
+        change.commit(actor or coder, "assign", "verbatims", None, number=int(code_number), coder=coder,
+                      source=source, verbatims=given)
+    return given
 
 
 def unassign(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool:

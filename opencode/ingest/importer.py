@@ -18,8 +18,6 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
 
 from opencode.errors import OpenCodeError
 from opencode.export.safe_write import normal_file_mode
@@ -110,7 +108,7 @@ def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
         rows = [table.row_name(i) for i in np.flatnonzero(blank)[:5]]
         raise OpenCodeError(f"{table.path}: column {id_column}: missing respondent id in {', '.join(rows)}")
     listed = keys.tolist()
-    if pc.count_distinct(pa.array(listed, type=pa.string())).as_py() < len(listed):
+    if len(set(listed)) < len(listed):
         duplicated = keys.duplicated(keep=False)
         first = keys[duplicated].iloc[0]
         rows = [table.row_name(i) for i in np.flatnonzero((keys == first).to_numpy())[:5]]

@@ -69,7 +69,7 @@ _RAGGED = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | None,
                text_columns: tuple[str, ...]) -> RawTable:
     raw = path.read_bytes()
-    if not raw.strip():
+    if not raw or raw.isspace():
         raise OpenCodeError(f"{path}: the file is empty")
     text, used = decode_text(path, raw, encoding, head_only=b"\x00" not in raw)
     if text.startswith("\ufeff"):

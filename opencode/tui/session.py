@@ -381,11 +381,10 @@ class DeskSession:
         return code
 
     def bulk_assign(self, verbatim_ids: list[int], number: int) -> int:
-        """Give one code as this coder's hand code to many verbatims, all in one transaction; how many got it."""
-        with self.study.transaction():
-            given = sum(coding.assign(self.study, int(vid), number, self.coder) for vid in verbatim_ids)
+        """Give one code as this coder's hand code to many verbatims as one undoable step; how many got it."""
+        given = coding.assign_many(self.study, verbatim_ids, number, self.coder)
         self.refresh_counts()
-        return int(given)
+        return given
 
     def undo(self) -> str | None:
         """Undo this coder's newest change; the action undone, or None."""
