@@ -28,3 +28,10 @@ def test_installed_copy_finds_lexicons_and_demo(tmp_path):
     assert Path(lexicons).is_relative_to(target) and Path(demo).is_relative_to(target)
     assert "nonanswers-en.txt" in lexicon_files and "stop-en.txt" in lexicon_files
     assert "wrenfield.csv" in demo_files and "wrenfield.sav" in demo_files and "generate.py" in demo_files
+    # Every module and stylesheet of the source tree is in the installed copy (a package left out of
+    # pyproject.toml would be missing here).
+    source = {p.relative_to(REPO / "opencode") for p in (REPO / "opencode").rglob("*") if p.suffix in (".py", ".tcss")}
+    installed = {p.relative_to(target / "opencode") for p in (target / "opencode").rglob("*")
+                 if p.suffix in (".py", ".tcss") and "lexicons" not in p.parts[-2:] and p.parts[len(target.parts) + 1]
+                 not in ("demo", "lexicons")}
+    assert source <= installed, sorted(map(str, source - installed))

@@ -19,6 +19,7 @@ from sklearn.feature_extraction.text import TfidfTransformer
 from statsmodels.stats.multitest import multipletests
 
 from opencode.analysis import study_themes as sth
+from opencode.analysis.theme_format import p_value_text
 from opencode.coding.frame_io import import_frame
 from opencode.coding.frames import edit_code, load_frame
 from opencode.coding.history import undo
@@ -141,7 +142,7 @@ def test_prevalence_uses_value_labels_without_missing_codes(study, fitted):
     assert prevalence.tests.loc[0, "p"] == pytest.approx(p)
     assert_allclose(prevalence.tests["p_adjusted"], multipletests(prevalence.tests["p"], method="fdr_bh")[1])
     text = sth.format_question_themes(fitted)
-    assert all(label in text for label in labels) and sth._p_text(prevalence.tests.loc[0, 'p_adjusted']) in text
+    assert all(label in text for label in labels) and p_value_text(prevalence.tests.loc[0, 'p_adjusted']) in text
 
 
 def test_seeded_run_from_typed_terms(study):

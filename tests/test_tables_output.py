@@ -82,8 +82,9 @@ def test_xlsx_cells_are_inert_and_formatted(tmp_path):
         assert all(c.data_type != "f" for c in texts)
         values = {c.value for c in texts}
         for text in INJECTIONS + ["=NET()"]:
-            # XML reading turns a stored carriage return into a line feed; the quote still leads.
-            assert ("'" + text).replace("\r", "\n") in values
+            # Depending on the XML writer (with or without lxml) a stored carriage return may read back as a
+            # line feed; either way the quote still leads.
+            assert "'" + text in values or ("'" + text).replace("\r", "\n") in values
         assert all(not v.startswith(("=", "+", "@", "\t", "\r", "\n")) for v in values)
         assert sheet.freeze_panes is not None
     banner = book["why banner"]

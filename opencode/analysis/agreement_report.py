@@ -11,6 +11,7 @@ from pathlib import Path
 from opencode.analysis.agreement import STATISTIC_LABELS, AgreementResult, Estimate
 from opencode.export.cell_guard import guard_cell
 from opencode.export.safe_write import atomic_open
+from opencode.textout import format_table
 
 UNDEFINED = "undefined"
 _PERCENT = {"percent"}
@@ -112,32 +113,22 @@ def _confused_rows(result: AgreementResult) -> list[list[str]]:
     ]
 
 
-def _text_table(headers: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
-    """Left-aligned columns separated by two spaces, with a rule under the header."""
-    widths = [max(len(str(x)) for x in column) for column in zip(headers, *rows)]
-
-    def line(cells: Sequence[str]) -> str:
-        return "  ".join(str(x).ljust(w) for x, w in zip(cells, widths)).rstrip()
-
-    return "\n".join([line(headers), "  ".join("-" * w for w in widths)] + [line(r) for r in rows])
-
-
 def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | None = None) -> str:
     """The whole result as plain-text tables for the terminal (choose per-code statistics with `statistics`)."""
     stats = tuple(statistics or result.statistic_names)
     parts = ["\n".join(_summary_lines(result)), "Across the code frame",
-             _text_table(["statistic", "value [interval]", "reading"], _frame_rows(result)),
+             format_table(["statistic", "value [interval]", "reading"], _frame_rows(result)),
              "Per code (present / absent)",
-             _text_table(["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats]
-                         + [f"reading of {STATISTIC_LABELS[_kappa_name(result)]}"], _code_rows(result, stats))]
+             format_table(["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats]
+                          + [f"reading of {STATISTIC_LABELS[_kappa_name(result)]}"], _code_rows(result, stats))]
     for title, headers, rows in _pair_blocks(result):
-        parts += [f"Coder pair {title}", _text_table(headers, rows)]
+        parts += [f"Coder pair {title}", format_table(headers, rows)]
     if result.disputed_units:
         parts += ["Verbatims with most disputed codes",
-                  _text_table(["verbatim", "disputed codes", *result.coders], _disputed_rows(result))]
+                  format_table(["verbatim", "disputed codes", *result.coders], _disputed_rows(result))]
     if result.confused_pairs:
         parts += ["Codes most often swapped between coders",
-                  _text_table(["one coder", "another coder", "times"], _confused_rows(result))]
+                  format_table(["one coder", "another coder", "times"], _confused_rows(result))]
     return "\n\n".join(parts) + "\n"
 
 

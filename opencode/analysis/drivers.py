@@ -29,6 +29,7 @@ from sklearn.model_selection import StratifiedKFold
 from opencode.analysis.outcome import small_group_warning
 from opencode.analysis.univariate import presence, two_by_two, univariate_table
 from opencode.errors import OpenCodeError
+from opencode.textout import format_table
 
 #: Below this cross-validated AUC (or when its 95% CI covers 0.5) the text is said not to predict the outcome.
 MIN_USEFUL_AUC = 0.55
@@ -458,6 +459,14 @@ _FORMAT_COLUMNS = [("term", "term", "{}"), ("direction", "leans to", "{}"), ("co
                    ("monroe_z", "z", "{:+.2f}")]
 
 
+def format_ranking_table(table: pd.DataFrame, term_column: str = "term") -> str:
+    """Ranking rows as an aligned text table: the term (from `term_column`) and its side left, the numbers right."""
+    columns = [(term_column, "term", "{}"), *_FORMAT_COLUMNS[1:]]
+    cells = [[fmt.format(v) for v in table[col]] for col, _, fmt in columns]
+    return format_table([head for _, head, _ in columns], [list(values) for values in zip(*cells)],
+                        align="ll" + "r" * (len(columns) - 2))
+
+
 def format_ranking(ranker: DriverRanker, n: int = 20, sort_by: str = "stability", force: bool = False) -> str:
     """Plain-text ranking for the terminal: quality line, warnings, then the top n rows (or the quality note)."""
     lines = [f"outcome: {ranker.labels_[1]} (n={ranker.class_counts_[1]}) vs {ranker.labels_[0]} "
@@ -471,16 +480,7 @@ def format_ranking(ranker: DriverRanker, n: int = 20, sort_by: str = "stability"
         lines.append(ranker.quality_note_)
         if not force:
             return "\n".join(lines)
-    table = ranker.ranking(sort_by).head(n)
-    cells = [[fmt.format(v) for v in table[col]] for col, _, fmt in _FORMAT_COLUMNS]
-    heads = [head for _, head, _ in _FORMAT_COLUMNS]
-    widths = [max([len(h)] + [len(c) for c in col]) for h, col in zip(heads, cells)]
-
-    def row(values) -> str:
-        return "  ".join(v.ljust(wd) if i < 2 else v.rjust(wd) for i, (v, wd) in enumerate(zip(values, widths)))
-
-    lines.append(row(heads))
-    lines += [row(values) for values in zip(*cells)]
+    lines.append(format_ranking_table(ranker.ranking(sort_by).head(n)))
     lines.append("coef/OR: penalized model; stab: share of half-sample fits selecting the term; "
                  "uni OR, q: 2x2 table (BH); z: Monroe et al. log-odds z")
     return "\n".join(lines)

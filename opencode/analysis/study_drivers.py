@@ -20,7 +20,7 @@ from sklearn.model_selection import train_test_split
 
 from opencode.analysis import coded_data
 from opencode.analysis.driver_chart import write_driver_chart
-from opencode.analysis.drivers import DriverRanker, term_indicators
+from opencode.analysis.drivers import DriverRanker, format_ranking_table, term_indicators
 from opencode.analysis.outcome import Outcome, make_outcome, one_vs_rest as outcome_per_category
 from opencode.errors import OpenCodeError
 from opencode.export.html_embed import png_img
@@ -28,7 +28,6 @@ from opencode.study import survey_data
 from opencode.study.store import Study
 from opencode.text.matrix import TermMatrix
 from opencode.text.study_text import term_matrix
-from opencode.text.tables import format_table
 
 #: Study setting holding the outcome and split last used for a question's drivers ("drivers:<question>").
 SETTING_PREFIX = "drivers:"
@@ -216,12 +215,6 @@ def sorted_table(result: StudyDrivers, comparison: DriverComparison, sort_by: st
     return _with_labels(comparison.ranker.ranking(sort_by, ascending=ascending), result.tm)
 
 
-_TEXT_COLUMNS = [("label", "term", "{}"), ("direction", "leans to", "{}"), ("coef", "coef", "{:+.3f}"),
-                 ("odds_ratio", "OR", "{:.2f}"), ("stability", "stab", "{:.2f}"), ("docs_1", "n1", "{}"),
-                 ("docs_0", "n0", "{}"), ("uni_or", "uni OR", "{:.2f}"), ("q", "q", "{:.3g}"),
-                 ("monroe_z", "z", "{:+.2f}")]
-
-
 def quality_lines(comparison: DriverComparison) -> list[str]:
     """How well the text predicts the outcome: cross-validated AUC with its CI, log-loss, held-out scores."""
     ranker, (zero, one) = comparison.ranker, comparison.outcome.labels
@@ -248,10 +241,7 @@ def format_drivers(result: StudyDrivers, *, sort_by: str = "stability", ascendin
         lines += [""] + quality_lines(comparison) + [f"note: {note}" for note in comparison.notes]
         if comparison.ranker.quality_note_ and not force:
             continue
-        table = sorted_table(result, comparison, sort_by, ascending).head(n)
-        cells = [[fmt.format(v) for v in table[col]] for col, _, fmt in _TEXT_COLUMNS]
-        rows = [list(values) for values in zip(*cells)]
-        lines.append(format_table([head for _, head, _ in _TEXT_COLUMNS], rows, align="ll" + "r" * 8))
+        lines.append(format_ranking_table(sorted_table(result, comparison, sort_by, ascending).head(n), "label"))
     lines.append("coef/OR: penalized model (verbatims mentioning the term); stab: share of half-sample fits "
                  "selecting the term; n1/n0: verbatims on each side; uni OR, q: the term's 2x2 table "
                  "(Benjamini-Hochberg); z: Monroe et al. log-odds z")

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.analysis.theme_charts import plot_theme_terms
-from opencode.analysis.theme_format import format_k_search, format_themes
+from opencode.analysis.theme_format import format_k_search, format_prevalence, format_themes
 from opencode.analysis.theme_search import DEFAULT_K_RANGE, KSearch, choose_k, parse_k_range
 from opencode.analysis.theme_summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
                                              unexplained_verbatims)
@@ -35,7 +35,7 @@ from opencode.study.store import Study
 from opencode.study.survey_data import analysis_values, get_question, get_variable, respondent_keys, verbatims
 from opencode.text.matrix import TermMatrix
 from opencode.text.study_text import analyzer_for, get_lexicon, term_matrix
-from opencode.text.tables import format_table
+from opencode.textout import format_table
 
 KIND_THEMES, KIND_K_SEARCH = "themes", "k-search"
 DEFAULT_MIN_DF = 2  # common practice (no published source): drop one-off words and typos before finding themes
@@ -458,31 +458,10 @@ def format_question_themes(result: QuestionThemes, n_terms: int = 8, n_verbatims
     if run.prevalence is not None:
         lines += ["", f"Prevalence by {result.settings.get('by')} (share of each group's verbatims a theme "
                       "dominates; chi-square p per theme, q = Benjamini-Hochberg across themes):",
-                  format_group_prevalence(run)]
+                  format_prevalence(run)]
     lines += ["", f"unexplained: {run.n_unexplained} verbatim(s) with terms explained by no theme "
                   f"(oecode themes STUDY show {result.run_id if result.run_id is not None else 'RUN'} --unexplained)"]
     return "\n".join(lines)
-
-
-def _p_text(p: float) -> str:
-    """A p-value for a table: four decimals, '<0.0001' below that, '-' when not tested."""
-    if pd.isna(p):
-        return "-"
-    return "<0.0001" if p < 0.0001 else f"{p:.4f}"
-
-
-def format_group_prevalence(run: ThemeRun, label_width: int = 36) -> str:
-    """Theme shares by group with full group labels as column heads, the base row, p and q (adjusted p)."""
-    prevalence = run.prevalence
-    groups = [str(g) for g in prevalence.shares.columns]
-    rows = [["base", *(f"{int(b):,}" for b in prevalence.bases), "", ""]]
-    for theme, shares, p, q in zip(run.themes, prevalence.shares.to_numpy(), prevalence.tests["p"],
-                                   prevalence.tests["p_adjusted"]):
-        name = f"{theme.index + 1}. {theme.label}"
-        rows.append([name if len(name) <= label_width else name[:label_width - 3] + "...",
-                     *(f"{s:.1%}" for s in shares), _p_text(p), _p_text(q)])
-    table = format_table(["theme", *groups, "p", "q"], rows, align="l" + "r" * (len(groups) + 2))
-    return "\n".join([table, "", prevalence.note])
 
 
 def format_question_k_search(result: QuestionKSearch) -> str:
@@ -497,7 +476,7 @@ def format_run_list(table: pd.DataFrame) -> str:
     """Stored runs as an aligned table."""
     if table.empty:
         return "no theme runs kept yet"
-    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").values.tolist())
+    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").astype(str).values.tolist())
 
 
 def format_unexplained(table: pd.DataFrame, width: int = 100) -> str:

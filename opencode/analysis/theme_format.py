@@ -1,4 +1,4 @@
-"""Plain-text tables of theme runs, k searches and run comparisons for the terminal."""
+"""Plain-text tables of theme runs, k searches, run comparisons and prevalence by group for the terminal."""
 
 from __future__ import annotations
 
@@ -8,6 +8,7 @@ import pandas as pd
 
 from opencode.analysis.theme_search import KSearch
 from opencode.analysis.theme_summary import ThemeRun
+from opencode.textout import format_table
 
 
 def _shorten(text: str | None, width: int) -> str:
@@ -37,37 +38,40 @@ def format_themes(run: ThemeRun, n_terms: int = 8, n_verbatims: int = 2, width: 
 
 def format_k_search(search: KSearch) -> str:
     """The k-selection curve as a table, the recommended k marked with '*', then the explanation."""
-    table = search.table
-    lines = ["   k    NPMI   UMass  stability  unexplained  rank", "-" * 50]
-    for row in table.itertuples():
-        mark = "*" if row.k == search.recommended_k else " "
-        lines.append(f"{mark}{row.k:>3}  {row.npmi:+.3f}  {row.umass:6.2f}  {row.stability:9.3f}  "
-                     f"{row.unexplained:11.1%}  {row.combined_rank:4.1f}")
-    return "\n".join(lines + ["", search.note])
+    rows = [["*" if row.k == search.recommended_k else "", row.k, f"{row.npmi:+.3f}", f"{row.umass:.2f}",
+             f"{row.stability:.3f}", f"{row.unexplained:.1%}", f"{row.combined_rank:.1f}"]
+            for row in search.table.itertuples()]
+    table = format_table(["", "k", "NPMI", "UMass", "stability", "unexplained", "rank"], rows, align="lrrrrrr")
+    return "\n".join([table, "", search.note])
 
 
 def format_comparison(table: pd.DataFrame) -> str:
     """The matched themes of two runs (compare_runs), best match first."""
-    lines = [f"{'A':>3}  {'label A':<30} {'B':>3}  {'label B':<30} {'Jaccard':>7}", "-" * 80]
-    for row in table.itertuples():
-        a = "" if pd.isna(row.theme_a) else int(row.theme_a) + 1
-        b = "" if pd.isna(row.theme_b) else int(row.theme_b) + 1
-        lines.append(f"{a!s:>3}  {_shorten(row.label_a, 30):<30} {b!s:>3}  {_shorten(row.label_b, 30):<30} "
-                     f"{row.jaccard:7.2f}")
-    return "\n".join(lines)
+    rows = [["" if pd.isna(row.theme_a) else int(row.theme_a) + 1, _shorten(row.label_a, 30),
+             "" if pd.isna(row.theme_b) else int(row.theme_b) + 1, _shorten(row.label_b, 30), f"{row.jaccard:.2f}"]
+            for row in table.itertuples()]
+    return format_table(["A", "label A", "B", "label B", "Jaccard"], rows, align="rlrlr")
 
 
-def format_prevalence(run: ThemeRun) -> str:
-    """Theme shares by group with the per-theme test; empty string when the run has no grouping."""
+def p_value_text(p: float) -> str:
+    """A p-value for a table: four decimals, '<0.0001' below that, '-' when not tested."""
+    if pd.isna(p):
+        return "-"
+    return "<0.0001" if p < 0.0001 else f"{p:.4f}"
+
+
+def format_prevalence(run: ThemeRun, label_width: int = 36) -> str:
+    """Theme shares by group with full group labels as column heads, the base row, p and q (adjusted p), then
+    the note; empty string when the run has no grouping."""
     prevalence = run.prevalence
     if prevalence is None:
         return ""
-    groups = list(prevalence.shares.columns)
-    header = f"{'theme':<28}" + "".join(f"{_shorten(g, 10):>11}" for g in groups) + f"{'p adj.':>9}"
-    lines = [header, f"{'base':<28}" + "".join(f"{int(b):>11}" for b in prevalence.bases) + " " * 9,
-             "-" * len(header)]
-    for theme, shares, p_adj in zip(run.themes, prevalence.shares.to_numpy(), prevalence.tests["p_adjusted"]):
-        p_text = "    -" if pd.isna(p_adj) else f"{p_adj:9.4f}"
-        lines.append(f"{_shorten(f'{theme.index + 1}. {theme.label}', 28):<28}"
-                     + "".join(f"{s:>11.1%}" for s in shares) + f"{p_text:>9}")
-    return "\n".join(lines + ["", prevalence.note])
+    groups = [str(g) for g in prevalence.shares.columns]
+    rows = [["base", *(f"{int(b):,}" for b in prevalence.bases), "", ""]]
+    for theme, shares, p, q in zip(run.themes, prevalence.shares.to_numpy(), prevalence.tests["p"],
+                                   prevalence.tests["p_adjusted"]):
+        name = f"{theme.index + 1}. {theme.label}"
+        rows.append([name if len(name) <= label_width else name[:label_width - 3] + "...",
+                     *(f"{s:.1%}" for s in shares), p_value_text(p), p_value_text(q)])
+    table = format_table(["theme", *groups, "p", "q"], rows, align="l" + "r" * (len(groups) + 2))
+    return "\n".join([table, "", prevalence.note])

@@ -16,6 +16,7 @@ from opencode.study import assignments_store as astore
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study
+from opencode.textout import format_table
 
 KINDS = ("code", "net")
 SPECIALS = ("nonanswer", "other", "dontknow")
@@ -337,3 +338,34 @@ _LABEL_SPACE = re.compile(r"\s+")
 def label_key(label: str) -> str:
     """How labels are compared when matching imported codes: case and spacing ignored."""
     return _LABEL_SPACE.sub(" ", str(label)).strip().casefold()
+
+
+def format_frame(frame: Frame, counts: dict[int, int] | None = None) -> str:
+    """A frame as a table: number, label (indented under its net), kind, hotkey, special, state, count."""
+    depth: dict[int, int] = {}
+    by_number = frame.by_number()
+
+    def level(number: int) -> int:
+        if number not in depth:
+            parent = by_number[number].net
+            depth[number] = 0 if parent is None or parent not in by_number else level(parent) + 1
+        return depth[number]
+
+    ordered: list = []
+
+    def walk(parent: int | None) -> None:
+        for code in sorted((c for c in frame.codes if c.net == parent), key=lambda c: c.number):
+            ordered.append(code)
+            if code.is_net:
+                walk(code.number)
+
+    walk(None)
+    rows = []
+    for c in ordered:
+        count = None if counts is None else (counts.get(c.number, 0) if not c.is_net else None)
+        rows.append([c.number, "  " * level(c.number) + c.label, c.kind, c.hotkey or "", c.special or "",
+                     "active" if c.active else "retired", "yes" if c.rule else "", count])
+    headers = ["code", "label", "kind", "key", "special", "state", "rule", "count"]
+    if counts is None:
+        headers, rows = headers[:-1], [r[:-1] for r in rows]
+    return format_table(headers, rows)

@@ -28,13 +28,13 @@ from opencode.coding import assignments as coding
 from opencode.coding.assignments import FINAL
 from opencode.coding.frames import load_frame
 from opencode.coding.reliability_sample import MISSING_STRATUM, draw_reliability_sample
-from opencode.coding.text_tables import text_table
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
 from opencode.study import desk_queries as dq
 from opencode.study import samples_store as sstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
+from opencode.textout import format_table
 
 MACHINE = "machine"
 MAX_STRATA = 50  # a stratifying variable with more values than this is almost surely not closed-ended
@@ -213,7 +213,7 @@ def format_sample(sample: ReliabilitySample) -> str:
              f"{'included' if p.get('include_nonanswers') else 'left out'})",
              f"coders: {', '.join(sample.coders) or 'none assigned yet'}"]
     if p.get("allocation"):
-        lines.append(text_table(["stratum", "verbatims", "drawn"], p["allocation"]))
+        lines.append(format_table(["stratum", "verbatims", "drawn"], p["allocation"]))
     return "\n".join(lines)
 
 
@@ -225,7 +225,7 @@ def format_sample_status(status: SampleStatus) -> str:
         return head + "\nno coders assigned yet (oecode sample STUDY assign --name NAME --coders A,B)"
     rows = [[p.coder, f"{p.finished:,}", f"{p.remaining:,}", f"{100 * p.finished / n:.0f}%" if n else "-"]
             for p in status.progress]
-    return "\n".join([head, text_table(["coder", "finished", "to do", "done"], rows),
+    return "\n".join([head, format_table(["coder", "finished", "to do", "done"], rows),
                       f"finished by every assigned coder: {status.finished_by_all:,} of {n:,}"])
 
 

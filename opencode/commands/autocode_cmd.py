@@ -8,9 +8,9 @@ from __future__ import annotations
 import argparse
 
 from opencode.coding import autocode, rules
-from opencode.coding.text_tables import text_table
 from opencode.commands.common import progress_line
 from opencode.study.store import Study
+from opencode.textout import format_table
 
 ACTIONS = ("train", "report", "curve", "suggest", "apply", "queue", "rules")
 SUGGESTION_NOTE = "machine codes are suggestions: they count only once a person accepts them at the desk"
@@ -53,17 +53,17 @@ def _train(study: Study, args: argparse.Namespace) -> None:
 def _report(study: Study, args: argparse.Namespace) -> None:
     rows = autocode.code_report(study, args.question)
     print("cross-validated, machine versus human:")
-    print(text_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
-                     [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
-                      for r in rows]))
+    print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
+                       [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
+                        for r in rows]))
 
 
 def _curve(study: Study, args: argparse.Namespace) -> None:
     rows = autocode.curve(study, args.question)
     print("semi-automatic coding: the model codes a verbatim only when sure of every code")
-    print(text_table(["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"],
-                     [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
-                      for r in rows]))
+    print(format_table(["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"],
+                       [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
+                        for r in rows]))
     print("pick a threshold whose accuracy you accept; then: autocode apply --threshold T")
 
 
@@ -74,7 +74,7 @@ def _suggest(study: Study, args: argparse.Namespace) -> None:
         best = values.sort_values(ascending=False).head(3)
         rows.append([int(verbatim_id), "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
     print(f"{len(proba)} verbatims not yet coded by {_coder(args)}; first {len(rows)}:")
-    print(text_table(["verbatim", "likeliest codes (probability)"], rows))
+    print(format_table(["verbatim", "likeliest codes (probability)"], rows))
     print(SUGGESTION_NOTE)
 
 
@@ -90,18 +90,18 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
     if args.kind == "learn":
         items = autocode.learning_queue(study, args.question, _coder(args), n=args.limit)
         print("code these next (the model is least sure about them):")
-        print(text_table(["verbatim", "doubt", "code", "p", "text"],
-                         [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
-                          for i in items]))
+        print(format_table(["verbatim", "doubt", "code", "p", "text"],
+                           [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
+                            for i in items]))
     else:
         items = autocode.second_look_queue(study, args.question, args.coder, n=args.limit)
         print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
-        print(text_table(["verbatim", "coder", "code", "p", "why", "text"],
-                         [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
-                          for i in items]))
+        print(format_table(["verbatim", "coder", "code", "p", "why", "text"],
+                           [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
+                            for i in items]))
 
 
 def _rules(study: Study, args: argparse.Namespace) -> None:
     written = rules.apply_rules(study, args.question, coder=_coder(args))
-    print(text_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())]))
+    print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())]))
     print(f"rule codes are suggestions for {_coder(args)}: they count only once a person accepts them at the desk")

@@ -6,9 +6,9 @@ import argparse
 
 from opencode.coding import codebook, frame_io, frames, history, import_codes, rules
 from opencode.coding.assignments import code_counts
-from opencode.coding.text_tables import format_frame, text_table
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
+from opencode.textout import format_table
 
 ACTIONS = ("list", "add", "edit", "net", "merge", "renumber", "retire", "restore", "delete", "share", "import",
            "export", "codebook", "import-codes", "rule", "undo", "redo")
@@ -72,7 +72,7 @@ def _list(study: Study, args: argparse.Namespace) -> None:
     counts = code_counts(study, args.question, args.coder) if args.coder else None
     print(f"frame {frame.name}: {sum(not c.is_net for c in frame.codes)} codes, "
           f"{sum(c.is_net for c in frame.codes)} nets" + (f"; counts: hand codes of {args.coder}" if counts else ""))
-    print(format_frame(frame, counts))
+    print(frames.format_frame(frame, counts))
 
 
 def _add(study: Study, args: argparse.Namespace) -> None:
@@ -161,7 +161,7 @@ def _import_codes(study: Study, args: argparse.Namespace) -> None:
         create=args.create, actor=_actor(args))
     print(f"layout: {report.layout}")
     rows = [[who, report.verbatims[who], report.added[who]] for who in sorted(report.added)]
-    print(text_table(["coder", "verbatims", "codes added"], rows))
+    print(format_table(["coder", "verbatims", "codes added"], rows))
     if report.already:
         print(f"{report.already} codes were already there by hand (kept once)")
     for number, label in report.created:

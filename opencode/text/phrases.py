@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 from scipy.special import xlogy
 
+from opencode.textout import format_table
+
 if TYPE_CHECKING:
     from opencode.text.analyzer import Analyzer, Progress
 
@@ -184,8 +186,6 @@ def _labels(keys: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int,
 
 def format_phrase_suggestions(rows: Sequence[PhraseSuggestion]) -> str:
     """An aligned text table of phrase suggestions."""
-    from opencode.text.tables import format_table
-
     return format_table(
         ["phrase", "count", "G2", "PMI"],
         [[r.phrase, r.count, f"{r.g2:.1f}", f"{r.pmi:.2f}"] for r in rows],

@@ -32,7 +32,7 @@ from opencode.text.matrix import TermMatrix, build_matrix, cache_key
 from opencode.text.phrases import PhraseSuggestion, suggest_phrases
 from opencode.text.stemming import SNOWBALL_LANGUAGES, language_name
 from opencode.text.stoplists import bundled_stop_words, has_stop_list
-from opencode.text.tables import format_table
+from opencode.textout import format_table
 
 OWN, STUDY_DEFAULT, BUILT_IN = "own", "study default", "built-in default"
 _SHOW = 10

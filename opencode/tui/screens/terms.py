@@ -217,7 +217,8 @@ class TermsScreen(Screen):
 
         def apply(number: int) -> None:
             self.app.attempt(lambda: s.bulk_assign(ids, number),
-                             lambda n: self.say(f"code {number} given to {n:,} more verbatims"), self.say)
+                             lambda n: self.say(f"code {number} given to {n:,} more verbatims; one undo (^z on the "
+                                               "desk) takes them all back"), self.say)
         self.app.push_screen(PromptModal(f"Code every verbatim with {row.label!r} ({len(ids):,})",
                                          "the code number to give them"), review)
 
