@@ -1,11 +1,18 @@
-"""Shared fixtures: small survey files written in the test's own folder."""
+"""Shared fixtures: small survey files written in the test's own folder, and the double-coded demo study."""
 
 from __future__ import annotations
 
 import hashlib
+import shutil
 from pathlib import Path
 
+import pandas as pd
 import pytest
+
+from opencode.coding import frame_io, import_codes
+from opencode.demo_job import build_demo_study
+from opencode.resources import demo_dir
+from opencode.study.store import Study
 
 
 def file_digest(path: Path) -> str:
@@ -25,3 +32,37 @@ def small_csv(tmp_path: Path) -> Path:
         "A4,dont know,4,2,1\n",
         encoding="utf-8")
     return path
+
+
+def build_double_coded(path: Path) -> Path:
+    """The demo study with the 'why' frame and ash's and bryn's codes imported by the coding library."""
+    build_demo_study(path)
+    with Study.open(path) as study:
+        frame_io.import_frame(study, "why", demo_dir() / "frame-why.csv")
+        import_codes.import_codes(study, "why", ["codes"], source_path=demo_dir() / "double-coded.csv",
+                                  id_column="respondent_id", coder_column="coder", question_column="question")
+    return path
+
+
+@pytest.fixture(scope="session")
+def demo_base(tmp_path_factory) -> Path:
+    return build_double_coded(tmp_path_factory.mktemp("demo") / "base.study")
+
+
+@pytest.fixture
+def demo_copy(demo_base: Path, tmp_path: Path) -> Path:
+    """A fresh copy of the double-coded demo study for one test."""
+    target = tmp_path / "wrenfield.study"
+    shutil.copyfile(demo_base, target)
+    return target
+
+
+@pytest.fixture
+def csv_sets() -> dict[str, dict[str, frozenset[int]]]:
+    """coder -> respondent -> codes on 'why', read straight from demo/double-coded.csv."""
+    table = pd.read_csv(demo_dir() / "double-coded.csv", dtype=str, keep_default_na=False)
+    table = table[table["question"] == "why"]
+    sets: dict[str, dict[str, frozenset[int]]] = {}
+    for rid, coder, codes in table[["respondent_id", "coder", "codes"]].itertuples(index=False):
+        sets.setdefault(coder, {})[rid] = frozenset(int(c) for c in codes.split(";") if c.strip())
+    return sets

@@ -13,7 +13,6 @@ from opencode.coding import reliability as rel
 from opencode.errors import OpenCodeError
 from opencode.study import survey_data
 from opencode.study.store import Study
-from test_reliability_store import csv_sets, demo_base, demo_copy  # noqa: F401 (fixtures)
 
 
 def respondent_ids(study: Study, question: str = "why") -> dict[str, int]:
@@ -24,8 +23,8 @@ def final_hand(study: Study, verbatim_id: int) -> list[int]:
     return [a.number for a in coding.codes_of(study, verbatim_id, "final", ("hand",))]
 
 
-def test_differences_match_the_file_and_show_labels(demo_copy):
-    sets = csv_sets()
+def test_differences_match_the_file_and_show_labels(demo_copy, csv_sets):
+    sets = csv_sets
     differ = sorted(r for r in sets["ash"] if sets["ash"][r] != sets["bryn"][r])
     with Study.open(demo_copy) as study:
         ids = respondent_ids(study)
@@ -95,8 +94,8 @@ def test_bad_decisions_are_clear_errors(demo_copy):
         assert study.db.execute("SELECT COUNT(*) FROM assignments WHERE coder = 'final'").fetchone()[0] == 0
 
 
-def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_copy):
-    sets = csv_sets()
+def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_copy, csv_sets):
+    sets = csv_sets
     agreed = {r: c for r, c in sets["ash"].items() if sets["bryn"][r] == c}
     with Study.open(demo_copy) as study:
         ids = respondent_ids(study)
@@ -118,8 +117,8 @@ def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_c
         assert in_final == 0 and coding.is_done(study, settled_first, "final")
 
 
-def test_accept_agreed_within_a_sample(demo_copy):
-    sets = csv_sets()
+def test_accept_agreed_within_a_sample(demo_copy, csv_sets):
+    sets = csv_sets
     with Study.open(demo_copy) as study:
         sample = rel.draw_sample(study, "why", "rel1", percent=25, random_state=9)
         respondents = survey_data.verbatims(study, "why").set_index("verbatim_id")["respondent"]

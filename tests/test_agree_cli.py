@@ -9,7 +9,6 @@ import pytest
 
 from opencode.cli import main
 from opencode.study.store import Study
-from test_reliability_store import csv_sets, demo_base, demo_copy  # noqa: F401 (fixtures)
 
 NAN = re.compile(r"\bnan\b", re.IGNORECASE)
 
@@ -50,8 +49,8 @@ def test_agree_prints_tables_and_writes_csv_and_html(demo_copy, tmp_path, capsys
     assert page.startswith("<!DOCTYPE html>") and '<section class="oc-agreement">' in page
 
 
-def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys):
-    sets = csv_sets()
+def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys, csv_sets):
+    sets = csv_sets
     agreed = sum(sets["ash"][r] == sets["bryn"][r] for r in sets["ash"])
     run(capsys, "sample", demo_copy, "draw", "--question", "why", "--name", "rel1", "--n", "400", "--seed", "1")
     code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--sample", "rel1",

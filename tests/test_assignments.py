@@ -7,7 +7,6 @@ against a plain in-memory model (common practice for testing undo stacks; no pub
 from __future__ import annotations
 
 import copy
-import csv
 import tempfile
 from pathlib import Path
 
@@ -19,25 +18,15 @@ from opencode.coding import assignments as A
 from opencode.coding import frames, history
 from opencode.coding.import_codes import import_codes
 from opencode.errors import OpenCodeError
-from opencode.ingest.importer import ImportOptions, import_survey
-from opencode.study.store import Study
+
+from helpers import make_text_study
 
 N_VERBATIMS = 6
 
 
-def make_study(folder: Path, texts: list[str]) -> Study:
-    source = folder / "s.csv"
-    with open(source, "w", newline="", encoding="utf-8") as handle:
-        writer = csv.writer(handle)
-        writer.writerow(["rid", "why"])
-        writer.writerows([[f"R{i}", t] for i, t in enumerate(texts)])
-    import_survey(folder / "t.study", source, ImportOptions(id_column="rid", questions=["why"]))
-    return Study.open(folder / "t.study")
-
-
 @pytest.fixture
 def study(tmp_path):
-    s = make_study(tmp_path, [f"answer number {i}" for i in range(N_VERBATIMS)])
+    s = make_text_study(tmp_path, [f"answer number {i}" for i in range(N_VERBATIMS)])
     for number in (1, 2, 3):
         frames.add_code(s, "why", f"code {number}", number)
     yield s
@@ -165,7 +154,7 @@ def test_single_verbatim_calls_are_fast(tmp_path):
     """The desk calls these at every key press: each must stay well under 20 ms (a 20,000-verbatim study)."""
     import time
 
-    study = make_study(tmp_path, [f"answer {i} about parking and staff" for i in range(20_000)])
+    study = make_text_study(tmp_path, [f"answer {i} about parking and staff" for i in range(20_000)])
     for number in range(1, 11):
         frames.add_code(study, "why", f"code {number}", number)
     v = A.uncoded_ids(study, "why", "ash")
@@ -275,7 +264,7 @@ def run_op(study, folder, vids, op):
 @given(st.lists(OPS, min_size=1, max_size=14))
 def test_no_sequence_loses_or_duplicates_an_assignment(ops):
     with tempfile.TemporaryDirectory(dir="/tmp") as folder:
-        study = make_study(Path(folder), [f"answer {i}" for i in range(N_VERBATIMS)])
+        study = make_text_study(Path(folder), [f"answer {i}" for i in range(N_VERBATIMS)])
         for number in (1, 2, 3):
             frames.add_code(study, "why", f"code {number}", number, actor="setup")
         vids = A.uncoded_ids(study, "why", "ash")

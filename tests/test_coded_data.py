@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
 import numpy as np
@@ -11,54 +10,13 @@ import pytest
 
 from opencode.analysis import coded_data
 from opencode.analysis.tables import banner_table, code_frequencies
-from opencode.coding import frame_io, import_codes
 from opencode.coding.assignments import assign, assignments, mark_done
-from opencode.demo_job import build_demo_study
 from opencode.errors import OpenCodeError
 from opencode.resources import demo_dir
 from opencode.study import survey_data
 from opencode.study.store import Study
 
-MACHINE_SUGGESTIONS = 40
-RULE_SUGGESTIONS = 10
-
-
-def build_fixture_study(folder: Path) -> Path:
-    """The demo study with both frames, the double-coded file (ash, bryn), ash's 'why' codes copied as the
-    confirmed 'final' codes, machine and rule suggestions for 'final', and an e-mail verbatim coded 97."""
-    path = folder / "wrenfield.study"
-    build_demo_study(path)
-    double = demo_dir() / "double-coded.csv"
-    final_file = folder / "final-why.csv"
-    rows = pd.read_csv(double, dtype=str, keep_default_na=False)
-    rows[(rows["coder"] == "ash") & (rows["question"] == "why")].assign(coder="final").to_csv(final_file, index=False)
-    with Study.open(path) as study:
-        for question in ("why", "improve"):
-            frame_io.import_frame(study, question, demo_dir() / f"frame-{question}.csv")
-        for source in (double, final_file):
-            for question in ("why", "improve"):
-                import_codes.import_codes(study, question, ["codes"], source_path=source, id_column="respondent_id",
-                                          coder_column="coder", question_column="question")
-        texts = survey_data.verbatims(study, "why")
-        held = set(assignments(study, "why", ["final"])["verbatim_id"])
-        free = texts[~texts["verbatim_id"].isin(held) & ~texts["nonanswer"]]
-        email = free[free["text"].str.contains("@", regex=False)]["verbatim_id"].iloc[0]
-        assign(study, int(email), 97, "final")
-        mark_done(study, int(email), "final")
-        spare = [v for v in free["verbatim_id"] if v != email]
-        for verbatim_id in spare[:MACHINE_SUGGESTIONS]:
-            assign(study, int(verbatim_id), 7, "final", source="machine", confidence=0.8)
-        for verbatim_id in spare[MACHINE_SUGGESTIONS:MACHINE_SUGGESTIONS + RULE_SUGGESTIONS]:
-            assign(study, int(verbatim_id), 1, "final", source="rule")
-    return path
-
-
-def copy_study(source: Path, folder: Path) -> Path:
-    """A private copy of a closed study (WAL checkpointed on close), for tests that change it."""
-    folder.mkdir(parents=True, exist_ok=True)
-    target = folder / source.name
-    shutil.copy(source, target)
-    return target
+from helpers import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, add_numeric, build_fixture_study, copy_study
 
 
 @pytest.fixture(scope="module")
@@ -172,21 +130,15 @@ def test_banner_and_weight_from_the_study(study):
         coded_data.banner_variable(study, "nope")
 
 
-def _add_numeric(study: Study, name: str, values, kind: str = "numeric", labels=None) -> None:
-    with study.transaction():
-        variable_id = survey_data.add_variable(study, name, label=name, kind=kind, role="other", value_labels=labels)
-        survey_data.write_values(study, variable_id, np.asarray(values, dtype=float))
-
-
 def test_bad_weights_and_one_category_banner(study_path, tmp_path):
     path = copy_study(study_path, tmp_path / "copy")
     with Study.open(path) as study:
         n = survey_data.respondent_count(study)
-        _add_numeric(study, "w_empty", np.full(n, np.nan))
+        add_numeric(study, "w_empty", np.full(n, np.nan))
         negative = np.ones(n)
         negative[5] = -2.0
-        _add_numeric(study, "w_negative", negative)
-        _add_numeric(study, "one_group", np.ones(n), kind="single", labels={1.0: "everyone"})
+        add_numeric(study, "w_negative", negative)
+        add_numeric(study, "one_group", np.ones(n), kind="single", labels={1.0: "everyone"})
         question = coded_data.table_question(coded_data.load_coding(study, "why"))
         with pytest.raises(OpenCodeError, match="'w_empty' is empty"):
             coded_data.survey_weight(study, "w_empty")

@@ -18,47 +18,16 @@ from opencode.ingest.importer import ImportOptions, import_survey
 from opencode.study import theme_runs_store
 from opencode.study.store import Study
 from opencode.study.survey_data import get_question
-from opencode.tui.app import DeskApp
 from opencode.tui.screens.modals import AddCodeModal, HelpModal, LockedModal, PromptModal
 from opencode.tui.search_spec import parse_search
 from opencode.tui.session import DeskSession
 
-SURVEY = (
-    "rid,why,support\n"
-    "A1,Not safe without staff at night,1\n"
-    "A2,Great for students after work,5\n"
-    "A3,dont know,3\n"
-    "A4,Staff jobs will be cut and nobody to help,1\n"
-    "A5,Evening hours suit shift workers,4\n"
-)
-
-
-def make_study(folder: Path) -> Path:
-    """A five-respondent study with a small frame: net 90 holding codes 1 (s) and 2 (j), code 3 (h) alone."""
-    csv = folder / "survey.csv"
-    csv.write_text(SURVEY, encoding="utf-8")
-    path = folder / "desk.study"
-    import_survey(path, csv, ImportOptions("rid", ["why"]))
-    with Study.open(path) as study:
-        frames.add_code(study, "why", "Concerns", number=90, kind="net")
-        frames.add_code(study, "why", "Not safe without staff", number=1, hotkey="s", net=90, rule="safe OR night")
-        frames.add_code(study, "why", "Staff jobs", number=2, hotkey="j", net=90)
-        frames.add_code(study, "why", "Convenient hours", number=3, hotkey="h")
-    return path
+from helpers import make_app, make_desk_study, on_disk
 
 
 @pytest.fixture
 def study_path(tmp_path: Path) -> Path:
-    return make_study(tmp_path)
-
-
-def on_disk(path: Path, sql: str, params=()) -> list[tuple]:
-    """Rows read through a fresh connection: what a crash right now would leave."""
-    connection = sqlite3.connect(path)
-    try:
-        return connection.execute(sql, params).fetchall()
-    finally:
-        connection.close()
+    return make_desk_study(tmp_path)
 
 
 def hand_codes(path: Path, respondent: str, coder: str = "ash") -> list[int]:
@@ -66,10 +35,6 @@ def hand_codes(path: Path, respondent: str, coder: str = "ash") -> list[int]:
         path, "SELECT c.number FROM assignments a JOIN codes c ON c.id = a.code_id JOIN verbatims v "
         "ON v.id = a.verbatim_id JOIN respondents r ON r.id = v.respondent_id "
         "WHERE r.key = ? AND a.coder = ? AND a.source = 'hand' ORDER BY c.number", (respondent, coder))]
-
-
-def make_app(path: Path, coder: str = "ash") -> DeskApp:
-    return DeskApp(DeskSession(path, "why", coder, clock=lambda: 0.0), refresh_seconds=0, show_pace=False)
 
 
 def run(scenario) -> None:

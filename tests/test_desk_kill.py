@@ -13,7 +13,7 @@ import time
 
 import pytest
 
-from test_desk import make_study, on_disk
+from helpers import make_desk_study, on_disk
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs a POSIX pseudo-terminal")
 
@@ -44,7 +44,7 @@ def _wait_for(fd: int, check, timeout: float = 30.0) -> bool:
 
 
 def test_sigkill_mid_session_loses_no_assignment(tmp_path):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     def state() -> tuple[int, int]:
         return (on_disk(path, "SELECT COUNT(*) FROM assignments WHERE coder = 'ash' AND source = 'hand'")[0][0],
                 on_disk(path, "SELECT COUNT(*) FROM coded_marks WHERE coder = 'ash'")[0][0])

@@ -9,7 +9,7 @@ from opencode.coding import assignments as coding
 from opencode.study import theme_runs_store
 from opencode.study.store import Study
 from opencode.study.survey_data import get_question
-from test_desk import make_app, make_study
+from helpers import make_app, make_desk_study
 
 SIZE = (100, 30)
 
@@ -21,7 +21,7 @@ async def settle(pilot) -> None:
 
 
 def test_desk_screen(tmp_path, snap_compare):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     with Study.open(path) as study:
         coding.assign(study, 1, 3, "ash", source="machine", confidence=0.42)
         coding.set_note(study, 1, "ash", "mentions night twice")
@@ -30,17 +30,17 @@ def test_desk_screen(tmp_path, snap_compare):
 
 
 def test_desk_search_results(tmp_path, snap_compare):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     keys = ["slash", *"staff", "enter", "right"]
     assert snap_compare(make_app(path), press=keys, terminal_size=SIZE, run_before=settle)
 
 
 def test_help_overlay(tmp_path, snap_compare):
-    assert snap_compare(make_app(make_study(tmp_path)), press=["f1"], terminal_size=SIZE, run_before=settle)
+    assert snap_compare(make_app(make_desk_study(tmp_path)), press=["f1"], terminal_size=SIZE, run_before=settle)
 
 
 def test_frame_screen(tmp_path, snap_compare):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     with Study.open(path) as study:
         coding.assign(study, 1, 1, "ash")
         coding.assign(study, 4, 2, "ash")
@@ -48,7 +48,7 @@ def test_frame_screen(tmp_path, snap_compare):
 
 
 def test_compare_screen(tmp_path, snap_compare):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     with Study.open(path) as study:
         coding.set_codes(study, 1, [1], "ash")
         coding.set_codes(study, 1, [1, 2], "bryn")
@@ -60,11 +60,11 @@ def test_terms_screen(tmp_path, snap_compare):
         await settle(pilot)
         await pilot.press("f4")
         await settle(pilot)
-    assert snap_compare(make_app(make_study(tmp_path)), press=["down"], terminal_size=SIZE, run_before=load)
+    assert snap_compare(make_app(make_desk_study(tmp_path)), press=["down"], terminal_size=SIZE, run_before=load)
 
 
 def test_themes_screen(tmp_path, snap_compare):
-    path = make_study(tmp_path)
+    path = make_desk_study(tmp_path)
     summary = {"themes": [{"label": "Staff / safety", "top_terms": ["staff", "safe", "night"], "n_dominant": 2,
                            "representatives": [{"text": "Not safe without staff at night"}]},
                           {"label": "", "top_terms": ["work", "shift", "hour"], "n_dominant": 2}]}

@@ -1,6 +1,6 @@
 """The export input (CodedDataset) and its two layouts: multiple dichotomy and multiple category.
 
-`small_dataset` is shared by the other export tests (imported from this module).
+`small_dataset` (tests/helpers.py) is shared with the other export tests.
 """
 
 import numpy as np
@@ -19,42 +19,7 @@ from opencode.export.dataset import (
     sibling_path,
 )
 
-WHY_FRAME = [
-    FrameCode(1, "Staff make it feel safe", net=20),
-    FrameCode(2, "Worried about evenings alone", net=20),
-    FrameCode(3, "Longer hours suit shift workers", net=21),
-    FrameCode(4, "Students need late study space", net=21),
-    FrameCode(5, "=Waste of money"),
-    FrameCode(20, "Safety", is_net=True),
-    FrameCode(21, "Access", is_net=True),
-]
-WHY_CODES = [{1, 2}, {3}, set(), {2, 4, 5}, {5}, {1, 3}]
-WHY_TEXTS = [
-    "I'd feel unsafe, call me on 07700 900123",
-    "=HYPERLINK(\"http://example.org\")",
-    "",
-    "@SUM(1+1) evenings are lonely",
-    "-2+3 waste",
-    None,
-]
-
-
-def small_dataset(ids=None, **kwargs) -> CodedDataset:
-    """Six invented Wrenfield respondents, one coded question with two nets, two closed-ended variables."""
-    ids = ids if ids is not None else [101, 102, 103, 104, 105, 106]
-    why = CodedQuestion("why", "Why do you say that?", WHY_FRAME, WHY_CODES, WHY_TEXTS)
-    change = CodedQuestion(
-        "change", "What one change would most improve your library?",
-        [FrameCode(1, "More books"), FrameCode(2, "Quiet rooms"), FrameCode(3, "Nothing")],
-        {ids[0]: [1], ids[2]: [2, 1], ids[5]: [3]},
-        ["more books", "", "quiet rooms and books", "", "", "nothing"],
-    )
-    support = ClosedVariable(
-        "support", [1, 5, 9, 4, None, 2], "Support for late opening",
-        {1: "strongly oppose", 2: "oppose", 3: "neither", 4: "support", 5: "strongly support", 9: "refused"}, [9],
-    )
-    weight = ClosedVariable("weight", [1.2, 0.8, 1.0, 1.5, 0.75, 0.9], "Survey weight")
-    return CodedDataset(ids, [why, change], [support, weight], title="Wrenfield library hours", **kwargs)
+from helpers import WHY_FRAME, small_dataset
 
 
 def test_dichotomy_indicators_and_nets_count_once():

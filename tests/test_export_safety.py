@@ -9,7 +9,7 @@ from opencode.errors import OpenCodeError
 from opencode.export.spss_stata import write_dta, write_sav
 from opencode.export.tabular import write_csv, write_xlsx
 from opencode.export.triple_s import write_triple_s
-from test_export_dataset import small_dataset
+from helpers import small_dataset
 
 WRITERS = {
     "csv": (write_csv, "out.csv"),

@@ -11,7 +11,7 @@ import pytest
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import ClosedVariable, CodedDataset, CodedQuestion, FrameCode, build_table
 from opencode.export.spss_stata import write_dta, write_sav
-from test_export_dataset import small_dataset
+from helpers import small_dataset
 
 
 def _assert_same_values(read: pd.DataFrame, expected: pd.DataFrame) -> None:

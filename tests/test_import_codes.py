@@ -10,12 +10,12 @@ from opencode.coding.import_codes import import_codes
 from opencode.errors import OpenCodeError
 from opencode.resources import demo_dir
 from opencode.study.store import Study
-from test_assignments import make_study  # shared small-study helper (tests/ is on sys.path under pytest)
+from helpers import make_text_study
 
 
 @pytest.fixture
 def study(tmp_path):
-    s = make_study(tmp_path, ["bike stolen", "lost my keys", "both", "nothing", "fine"])
+    s = make_text_study(tmp_path, ["bike stolen", "lost my keys", "both", "nothing", "fine"])
     frames.add_code(s, "why", "Theft", 3)
     frames.add_code(s, "why", "Loss", 7)
     yield s

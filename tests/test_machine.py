@@ -23,7 +23,7 @@ from opencode.coding.machine import MachineCoder, _platt, code_metrics, coverage
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.text.analyzer import Analyzer
-from test_assignments import make_study  # shared small-study helper (tests/ is on sys.path under pytest)
+from helpers import make_text_study
 
 F1_TOLERANCE = 0.01     # stated tolerance: our cross-validated F1 may trail the baseline by at most this
 BRIER_TOLERANCE = 0.005  # and our Brier score may exceed the baseline's by at most this
@@ -97,7 +97,7 @@ def test_coverage_curve_and_threshold_pick():
 def coded_study(tmp_path_factory, reviews):
     texts, score = reviews
     folder = tmp_path_factory.mktemp("machine")
-    study = make_study(folder, texts[:800])
+    study = make_text_study(folder, texts[:800])
     frames.add_code(study, "why", "Great", 1)
     frames.add_code(study, "why", "Other", 2)
     frames.add_code(study, "why", "Rare", 3)
@@ -197,7 +197,7 @@ def test_learning_queue_picks_uncoded_and_skips_near_duplicates(coded_study):
 
 
 def test_training_needs_hand_codes(tmp_path):
-    study = make_study(tmp_path, ["a b", "c d"])
+    study = make_text_study(tmp_path, ["a b", "c d"])
     frames.add_code(study, "why", "X", 1)
     with pytest.raises(OpenCodeError, match="no hand-coded verbatims"):
         autocode.train(study, "why")

@@ -17,7 +17,7 @@ from opencode.coding.assignments import mark_done
 from opencode.export.triple_s import read_triple_s
 from opencode.study import survey_data
 from opencode.study.store import Study
-from test_coded_data import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, _add_numeric, build_fixture_study, copy_study
+from helpers import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, add_numeric, build_fixture_study, copy_study
 
 
 @pytest.fixture(scope="module")
@@ -176,11 +176,11 @@ def test_tables_bad_banner_weight_and_zero_base(study_path, tmp_path, capsys):
     path = copy_study(study_path, tmp_path / "copy")
     with Study.open(path) as study:
         n = survey_data.respondent_count(study)
-        _add_numeric(study, "w_empty", np.full(n, np.nan))
+        add_numeric(study, "w_empty", np.full(n, np.nan))
         negative = np.ones(n)
         negative[3] = -1.0
-        _add_numeric(study, "w_negative", negative)
-        _add_numeric(study, "one_group", np.ones(n), kind="single", labels={1.0: "everyone"})
+        add_numeric(study, "w_negative", negative)
+        add_numeric(study, "one_group", np.ones(n), kind="single", labels={1.0: "everyone"})
         texts = survey_data.verbatims(study, "why")
         mark_done(study, int(texts.loc[texts["nonanswer"], "verbatim_id"].iloc[0]), "zed")
     code, _, err = run(capsys, "tables", path, "--question", "why", "--banner", "one_group")

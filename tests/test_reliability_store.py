@@ -2,14 +2,12 @@
 
 The demo study (Wrenfield) gets its starter frame and the double-coded file imported through the coding
 library; expected values are computed from the CSV files directly (pandas) and, for kappa, with scikit-learn.
-test_adjudication.py and test_agree_cli.py reuse `demo_copy` from here.
+The double-coded demo study (`demo_copy`) and the codes read from its CSV (`csv_sets`) are conftest.py fixtures.
 """
 
 from __future__ import annotations
 
 import re
-import shutil
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -19,7 +17,7 @@ from sklearn.metrics import cohen_kappa_score
 from opencode.analysis.agreement import CodingMatrix, measure_agreement
 from opencode.analysis.agreement_report import format_agreement_text
 from opencode.coding import assignments as coding
-from opencode.coding import frames, frame_io, import_codes
+from opencode.coding import frames
 from opencode.coding import reliability as rel
 from opencode.demo_job import build_demo_study
 from opencode.errors import OpenCodeError
@@ -28,39 +26,6 @@ from opencode.study import survey_data
 from opencode.study.store import Study
 
 NAN = re.compile(r"\bnan\b", re.IGNORECASE)
-
-
-def build_double_coded(path: Path) -> Path:
-    """The demo study with the 'why' frame and ash's and bryn's codes imported by the coding library."""
-    build_demo_study(path)
-    with Study.open(path) as study:
-        frame_io.import_frame(study, "why", demo_dir() / "frame-why.csv")
-        import_codes.import_codes(study, "why", ["codes"], source_path=demo_dir() / "double-coded.csv",
-                                  id_column="respondent_id", coder_column="coder", question_column="question")
-    return path
-
-
-@pytest.fixture(scope="session")
-def demo_base(tmp_path_factory) -> Path:
-    return build_double_coded(tmp_path_factory.mktemp("demo") / "base.study")
-
-
-@pytest.fixture
-def demo_copy(demo_base: Path, tmp_path: Path) -> Path:
-    """A fresh copy of the double-coded demo study for one test."""
-    target = tmp_path / "wrenfield.study"
-    shutil.copyfile(demo_base, target)
-    return target
-
-
-def csv_sets() -> dict[str, dict[str, frozenset[int]]]:
-    """coder -> respondent -> codes on 'why', read straight from demo/double-coded.csv."""
-    table = pd.read_csv(demo_dir() / "double-coded.csv", dtype=str, keep_default_na=False)
-    table = table[table["question"] == "why"]
-    sets: dict[str, dict[str, frozenset[int]]] = {}
-    for rid, coder, codes in table[["respondent_id", "coder", "codes"]].itertuples(index=False):
-        sets.setdefault(coder, {})[rid] = frozenset(int(c) for c in codes.split(";") if c.strip())
-    return sets
 
 
 def frame_codes() -> list[int]:
@@ -140,8 +105,8 @@ def test_duplicate_and_unknown_names(demo_copy):
 
 
 # -- assigning, status, blindness --------------------------------------------------------------------------------------
-def test_assign_and_status_count_finished_verbatims(demo_copy):
-    sets = csv_sets()
+def test_assign_and_status_count_finished_verbatims(demo_copy, csv_sets):
+    sets = csv_sets
     with Study.open(demo_copy) as study:
         sample = rel.draw_sample(study, "why", "rel1", percent=20, random_state=2)
         with pytest.raises(OpenCodeError, match="two or more coders"):
@@ -185,8 +150,8 @@ def test_is_blind_only_for_assigned_coders_on_sample_items(demo_copy):
 
 
 # -- agreement from the study ------------------------------------------------------------------------------------------
-def test_agreement_from_the_study_matches_the_csv_and_sklearn(demo_copy):
-    sets = csv_sets()
+def test_agreement_from_the_study_matches_the_csv_and_sklearn(demo_copy, csv_sets):
+    sets = csv_sets
     codes = frame_codes()
     with Study.open(demo_copy) as study:
         result = rel.study_agreement(study, "why", ["ash", "bryn"], n_resamples=100, random_state=4)
@@ -213,8 +178,8 @@ def test_agreement_from_the_study_matches_the_csv_and_sklearn(demo_copy):
     assert result.per_code[0].label == "Not safe without staff"
 
 
-def test_agreement_on_a_sample_uses_only_its_verbatims(demo_copy):
-    sets = csv_sets()
+def test_agreement_on_a_sample_uses_only_its_verbatims(demo_copy, csv_sets):
+    sets = csv_sets
     with Study.open(demo_copy) as study:
         sample = rel.draw_sample(study, "why", "rel1", percent=30, random_state=5)
         respondents = survey_data.verbatims(study, "why").set_index("verbatim_id")["respondent"]
@@ -224,8 +189,8 @@ def test_agreement_on_a_sample_uses_only_its_verbatims(demo_copy):
     assert result.units_per_coder == {"ash": len(in_sample), "bryn": len(in_sample)}
 
 
-def test_the_machine_coder_joins_as_one_more_coder(demo_copy):
-    sets = csv_sets()
+def test_the_machine_coder_joins_as_one_more_coder(demo_copy, csv_sets):
+    sets = csv_sets
     with Study.open(demo_copy) as study:
         ids = survey_data.verbatims(study, "why").set_index("respondent")["verbatim_id"]
         chosen = sorted(sets["ash"])[:40]

@@ -17,7 +17,7 @@ from opencode.coding.reliability import study_agreement
 from opencode.errors import OpenCodeError
 from opencode.export.report import CAUTIONS, ReportSection, build_report, example_verbatims
 from opencode.study.store import Study
-from test_coded_data import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, build_fixture_study
+from helpers import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, build_fixture_study
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 OUTSIDE = re.compile(r"""(?:src|href)\s*=\s*["']?\s*(?:https?:)?//|url\(\s*["']?(?:https?:)?//|@import""", re.I)

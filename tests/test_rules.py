@@ -9,7 +9,7 @@ from opencode.coding import assignments as A
 from opencode.coding import frames, history, rules
 from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer
-from test_assignments import make_study  # shared small-study helper (tests/ is on sys.path under pytest)
+from helpers import make_text_study
 
 
 class Splitter:
@@ -74,7 +74,7 @@ def test_terms_match_through_the_real_analyzer():
 
 
 def test_dry_run_and_apply_never_touch_hand_codes(tmp_path):
-    study = make_study(tmp_path, ["parking is a nightmare", "no parking spaces near the branch", "staff are kind",
+    study = make_text_study(tmp_path, ["parking is a nightmare", "no parking spaces near the branch", "staff are kind",
                                   "car park too small", "parking parking parking"])
     frames.add_code(study, "why", "Parking", 1, rule="parking OR (car NEAR/1 park)")
     frames.add_code(study, "why", "Staff", 2)

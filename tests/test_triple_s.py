@@ -23,7 +23,7 @@ from hypothesis import strategies as st
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import ClosedVariable, CodedDataset, CodedQuestion, FrameCode, build_table
 from opencode.export.triple_s import read_triple_s, write_triple_s
-from test_export_dataset import WHY_CODES, small_dataset
+from helpers import WHY_CODES, small_dataset
 
 WHEN = dt.datetime(2024, 5, 1, 9, 30, 0)
 

@@ -115,13 +115,13 @@ class _FitSpec:
     max_iter: int
     tol: float
     random_state: int
+    path_solver: str  # for the many CV-path and half-sample fits
 
-    def model(self, C: float, warm: bool = False) -> LogisticRegression:
+    def model(self, C: float, many: bool = False) -> LogisticRegression:
+        """A model for the final fit, or (many=True) for one of the CV-path and half-sample fits."""
         params = dict(class_weight=self.class_weight, max_iter=self.max_iter, tol=self.tol,
                       random_state=self.random_state)
-        if warm and self.solver != "liblinear":
-            params["warm_start"] = True
-        return make_logistic(C, self.l1_ratio, self.solver, **params)
+        return make_logistic(C, self.l1_ratio, self.path_solver if many else self.solver, **params)
 
     def fit(self, model, X, y, weights):
         with warnings.catch_warnings():
@@ -130,17 +130,20 @@ class _FitSpec:
 
 
 def _fold_path(spec: _FitSpec, Cs, X, y, w, train, test, scoring: str):
-    """Fit one CV fold along the ascending C path; return held-out probabilities and scores per C."""
-    model = spec.model(Cs[0], warm=True)
+    """Fit one CV fold along the ascending C path; return held-out probabilities and scores per C.
+
+    Every C starts cold: scikit-learn's tol applies to the gradient of the mean loss, and a start from the
+    previous C's optimum already meets it, so warm-started fits stop at once and repeat the previous scores.
+    """
     probs = np.full((len(test), len(Cs)), np.nan)
     scores = np.full(len(Cs), np.nan)
-    w_train, w_test = _weighted(train, w), _weighted(test, w)
+    X_train, y_train, w_train = X[train], y[train], _weighted(train, w)
+    X_test, y_test, w_test = X[test], y[test], _weighted(test, w)
     falling, best = 0, -np.inf
     for k, C in enumerate(Cs):
-        model.set_params(C=C)
-        spec.fit(model, X[train], y[train], w_train)
-        probs[:, k] = model.predict_proba(X[test])[:, 1]
-        scores[k] = _score(y[test], probs[:, k], w_test, scoring)
+        model = spec.fit(spec.model(C, many=True), X_train, y_train, w_train)
+        probs[:, k] = model.predict_proba(X_test)[:, 1]
+        scores[k] = _score(y_test, probs[:, k], w_test, scoring)
         falling = falling + 1 if scores[k] < best else 0
         best = max(best, scores[k])
         if falling >= 2:
@@ -150,7 +153,7 @@ def _fold_path(spec: _FitSpec, Cs, X, y, w, train, test, scoring: str):
 
 def _subsample_support(spec: _FitSpec, C: float, X, y, w, rows, top: int | None) -> np.ndarray:
     """Which terms one half-sample fit selects: non-zero coefficients, or the `top` largest |coef| (L2)."""
-    model = spec.fit(spec.model(C), X[rows], y[rows], _weighted(rows, w))
+    model = spec.fit(spec.model(C, many=True), X[rows], y[rows], _weighted(rows, w))
     coef = model.coef_.ravel()
     if top is None:
         return coef != 0
@@ -201,10 +204,15 @@ class DriverRanker(BaseEstimator):
             l1_ratio = _PENALTY_L1_RATIO[self.penalty]
         else:
             raise OpenCodeError(f"unknown penalty {self.penalty!r}; choose l1, l2 or elasticnet")
-        solver = self.solver
+        solver = path_solver = self.solver
         if solver == "auto":
             solver = {1.0: "liblinear", 0.0: "lbfgs"}.get(l1_ratio, "saga")
-        return _FitSpec(l1_ratio, solver, self.class_weight, self.max_iter, self.tol, self.random_state)
+            # L2 on sparse term matrices: newton-cg takes ~7 Newton steps of sparse Hessian products where lbfgs
+            # takes 50-200 gradient steps, 2-4x faster and closer to the optimum at the same tol. It runs the
+            # many CV-path and half-sample fits; the reported model stays on lbfgs.
+            path_solver = "newton-cg" if l1_ratio == 0.0 else solver
+        return _FitSpec(l1_ratio, solver, self.class_weight, self.max_iter, self.tol, self.random_state,
+                        path_solver)
 
     def _grid(self) -> np.ndarray:
         Cs = np.logspace(-2, 2, int(self.Cs)) if np.isscalar(self.Cs) else np.asarray(self.Cs, dtype=float)

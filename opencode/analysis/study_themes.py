@@ -403,26 +403,32 @@ def promote_theme(study: Study, run_id: int, theme: int, *, question: str | None
 
     The label is proposed from the top terms unless given; the code's description says where it came from.
     One transaction: the code (undoable add-code) and a promote-theme audit row linking run, theme and code.
+    Reads only the run's stored theme summaries (not its arrays), so the desk can promote what it lists.
     """
-    result = load_themes(study, run_id)
-    if question is not None and question != result.question:
-        raise OpenCodeError(f"run {run_id} belongs to question {result.question!r}, not {question!r}")
-    themes = result.run.themes
+    row = store.load_run(study, run_id)
+    if row.params.get("kind") == KIND_K_SEARCH:
+        raise OpenCodeError(f"run {run_id} is a k search, not a theme run: fit k themes first (e.g. --k {row.k})")
+    run_question = row.params.get("question", "")
+    if question is not None and get_question(study, question).id != row.question_id:
+        raise OpenCodeError(f"run {run_id} belongs to question {run_question!r}, not {question!r}")
+    question = question or run_question
+    themes = row.summary.get("themes") or []
     if int(theme) != theme or not 1 <= theme <= len(themes):
         raise OpenCodeError(f"run {run_id} has themes 1-{len(themes)}: there is no theme {theme}")
     chosen = themes[int(theme) - 1]
-    analyzer = analyzer_for(study, result.question)
-    rule = theme_rule(chosen.top_terms, analyzer, n_rule_terms)
-    label = (label or "").strip() or propose_code_label(chosen.top_terms)
-    description = (f"Draft from theme {theme} of theme run {run_id} ({result.settings.get('method')}, "
-                   f"k={len(themes)}): check the label, notes and rule before coding with it.")
-    examples = [rep.text for rep in chosen.representatives[:3] if rep.text]
+    top_terms = [str(t) for t in chosen.get("top_terms") or []]
+    rule = theme_rule(top_terms, analyzer_for(study, question), n_rule_terms)
+    label = (label or "").strip() or propose_code_label(top_terms)
+    description = (f"Draft from theme {theme} of theme run {run_id} ({row.method}, k={len(themes)}): "
+                   "check the label, notes and rule before coding with it.")
+    examples = [str(rep["text"]) for rep in (chosen.get("representatives") or [])[:3]
+                if isinstance(rep, dict) and rep.get("text")]
     with study.transaction():
-        code = add_code(study, result.question, label, number, hotkey=hotkey, description=description,
+        code = add_code(study, question, label, number, hotkey=hotkey, description=description,
                         examples=examples, rule=rule, actor=actor)
         study.audit(actor, "promote-theme", "code", code.id,
-                    {"run": int(run_id), "theme": int(theme), "question": result.question, "number": code.number,
-                     "label": code.label, "rule": rule, "top_terms": chosen.top_terms})
+                    {"run": int(run_id), "theme": int(theme), "question": question, "number": code.number,
+                     "label": code.label, "rule": rule, "top_terms": top_terms})
     return code
 
 

@@ -11,9 +11,9 @@ import numpy as np
 import pyreadstat
 
 from opencode.errors import OpenCodeError
-from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode, build_table, sibling_path
-from opencode.export.safe_write import atomic_path, check_writable_target
-from opencode.export.tabular import write_csv_table
+from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode
+from opencode.export.safe_write import atomic_path
+from opencode.export.tabular import checked_table, write_frame_beside
 
 SPSS_LABEL_BYTES = 256  # variable labels; longer ones are cut by the format
 SPSS_VALUE_LABEL_BYTES = 120
@@ -53,14 +53,6 @@ def _spss_missing(table: LabelledTable) -> dict[str, list]:
     return out
 
 
-def _write_frame_csv(table: LabelledTable, target: Path, frame_csv: bool) -> list[Path]:
-    if not frame_csv:
-        return [target]
-    frame_path = sibling_path(target)
-    write_csv_table(table.code_frame, frame_path)
-    return [target, frame_path]
-
-
 def write_sav(
     dataset: CodedDataset,
     path: str | os.PathLike,
@@ -70,10 +62,8 @@ def write_sav(
     frame_csv: bool = True,
 ) -> list[Path]:
     """Write an SPSS .sav (labels, value labels, missing codes) and the sibling frame CSV; return the paths."""
-    target = check_writable_target(path)
-    if frame_csv:
-        check_writable_target(sibling_path(target))
-    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims,
+                                  frame_csv=frame_csv)
     numeric_coded = [c for c in table.value_labels if c in table.data and table.data[c].dtype.kind in "iuf"]
     with atomic_path(target, suffix=".sav") as tmp, _format_errors(target):
         pyreadstat.write_sav(
@@ -88,7 +78,7 @@ def write_sav(
             missing_ranges=_spss_missing(table),
             variable_measure={name: "nominal" for name in numeric_coded},
         )
-    return _write_frame_csv(table, target, frame_csv)
+    return write_frame_beside(table, target, frame_csv)
 
 
 def _stata_value_labels(table: LabelledTable) -> dict[str, dict[int, str]]:
@@ -117,10 +107,8 @@ def write_dta(
     Stata has no user-missing codes for ordinary numbers, so missing codes (e.g. 9 = refused) stay as
     labelled values; the frame CSV and the .sav export carry the missing flag.
     """
-    target = check_writable_target(path)
-    if frame_csv:
-        check_writable_target(sibling_path(target))
-    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims,
+                                  frame_csv=frame_csv)
     data = table.data
     id_col = data.columns[0]
     if data[id_col].dtype.kind == "i" and data[id_col].abs().max() < np.iinfo(np.int32).max:
@@ -133,4 +121,4 @@ def write_dta(
             column_labels={k: v[:STATA_LABEL_CHARS] for k, v in table.column_labels.items()},
             variable_value_labels=_stata_value_labels(table),
         )
-    return _write_frame_csv(table, target, frame_csv)
+    return write_frame_beside(table, target, frame_csv)

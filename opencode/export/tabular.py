@@ -71,6 +71,26 @@ def write_csv_table(df: pd.DataFrame, path: str | os.PathLike) -> None:
         guarded_frame(df).to_csv(handle, index=False, quoting=csv.QUOTE_MINIMAL, lineterminator="\r\n")
 
 
+def checked_table(dataset: CodedDataset, path: str | os.PathLike, *, category_columns: bool,
+                  verbatims: VerbatimMode, frame_csv: bool = True) -> tuple[Path, LabelledTable]:
+    """The target path and the table to write, checking first that the target (and the frame CSV beside it)
+    can be written, so a bad path fails before any work."""
+    target = check_writable_target(path)
+    if frame_csv:
+        check_writable_target(sibling_path(target))
+    return target, build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+
+
+def write_frame_beside(table: LabelledTable, target: Path, frame_csv: bool = True) -> list[Path]:
+    """Write the code frame as `<name>-frame.csv` beside a written data file (unless frame_csv is false); return
+    the paths written."""
+    if not frame_csv:
+        return [target]
+    frame_path = sibling_path(target)
+    write_csv_table(table.code_frame, frame_path)
+    return [target, frame_path]
+
+
 def write_csv(
     dataset: CodedDataset,
     path: str | os.PathLike,
@@ -79,12 +99,9 @@ def write_csv(
     verbatims: VerbatimMode = "omit",
 ) -> list[Path]:
     """Write the coded data as CSV and the code frame as `<name>-frame.csv` beside it; return both paths."""
-    target = check_writable_target(path)
-    frame_path = check_writable_target(sibling_path(target))
-    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims)
     write_csv_table(table.data, target)
-    write_csv_table(table.code_frame, frame_path)
-    return [target, frame_path]
+    return write_frame_beside(table, target)
 
 
 def _xlsx_rows(df: pd.DataFrame):

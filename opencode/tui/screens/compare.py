@@ -9,7 +9,6 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
-from textual.screen import Screen
 from textual.widgets import Footer, Static
 
 from opencode.coding import adjudication
@@ -17,11 +16,12 @@ from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
 from opencode.study import desk_queries as dq
+from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import PromptModal
 from opencode.tui.widgets.panes import Pane
 
 
-class CompareScreen(Screen):
+class CompareScreen(StudyScreen):
     """Two coders' hand codes on the verbatims where they differ, and the `final` codes being settled."""
 
     BINDINGS = [
@@ -49,10 +49,6 @@ class CompareScreen(Screen):
         yield Static(id="final-codes", classes="detail")
         yield Static(id="status")
         yield Footer()
-
-    @property
-    def session(self):
-        return self.app.session
 
     def on_mount(self) -> None:
         s = self.session
@@ -107,11 +103,6 @@ class CompareScreen(Screen):
         text.append(", ".join(f"{n} {self.session.code(n).label if self.session.code(n) else '?'}" for n in final)
                     or "not settled yet")
         self.query_one("#final-codes", Static).update(text)
-
-    def say(self, message: str, error: bool = False) -> None:
-        status = self.query_one("#status", Static)
-        status.set_class(error, "error")
-        status.update(message)
 
     def action_move(self, step: int) -> None:
         if self.ids:

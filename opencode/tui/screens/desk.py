@@ -10,11 +10,11 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
-from textual.screen import Screen
 from textual.widgets import Footer
 
 from opencode.coding.frames import RESERVED_HOTKEYS
 from opencode.tui.highlight import IMPORTING, RuleHighlighter
+from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import AddCodeModal, PromptModal
 from opencode.tui.widgets.panes import ContextPane, Drawn, FrameList, NotePane, Pane, SuggestionPane, VerbatimView
 
@@ -22,7 +22,7 @@ SEARCH_HINT = ('words to find · #3 has code 3 · uncoded · blank / answered ·
                'age_band="65 or over" (all combined)')
 
 
-class DeskScreen(Screen):
+class DeskScreen(StudyScreen):
     """Code verbatims one by one; every change is committed before the screen redraws."""
 
     BINDINGS = [
@@ -79,10 +79,6 @@ class DeskScreen(Screen):
             self.app.session.reload_frame()
             self.app.session.refresh_counts()
             self.redraw()
-
-    @property
-    def session(self):
-        return self.app.session
 
     # -- drawing ---------------------------------------------------------------------------------------------
     def _spans(self, text: str) -> list[tuple[int, int]]:

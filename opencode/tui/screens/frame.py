@@ -9,19 +9,19 @@ from __future__ import annotations
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
 from opencode.coding import frames
 from opencode.coding.frames import Code
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
+from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import AddCodeModal, ConfirmModal, PromptModal
 
 COLUMNS = ("key", "no.", "label", "kind", "net", "mine", "uses", "state", "description")
 
 
-class FrameScreen(Screen):
+class FrameScreen(StudyScreen):
     """The code frame as a table; edits go through opencode.coding.frames."""
 
     BINDINGS = [
@@ -49,10 +49,6 @@ class FrameScreen(Screen):
         table.add_columns(*COLUMNS)
         self.reload()
         table.focus()
-
-    @property
-    def session(self):
-        return self.app.session
 
     def reload(self, keep: int | None = None) -> None:
         """Read the frame and counts again and redraw the table, staying on code `keep` if given."""
@@ -103,11 +99,6 @@ class FrameScreen(Screen):
         else:
             text.append("No codes yet: press a to add one.")
         self.query_one("#frame-detail", Static).update(text)
-
-    def say(self, message: str, error: bool = False) -> None:
-        status = self.query_one("#status", Static)
-        status.set_class(error, "error")
-        status.update(message)
 
     def change(self, fn, message: str, keep: int | None = None) -> None:
         def done(result) -> None:

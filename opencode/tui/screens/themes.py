@@ -10,25 +10,27 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
-from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
+from opencode.analysis.study_themes import promote_theme, theme_rule
 from opencode.analysis.theme_summary import propose_code_label
-from opencode.coding import frames
-from opencode.coding.rules import parse_rule
+from opencode.errors import OpenCodeError
 from opencode.study import theme_runs_store
+from opencode.text.study_text import analyzer_for
+from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import PromptModal
 
 RULE_TERMS = 4
 
 
 def themes_of(summary: dict) -> list[dict]:
-    """The themes recorded in a run's summary (empty for runs holding none, e.g. a search over k)."""
+    """The themes recorded in a run's summary, each with its number in the run (empty for runs holding none,
+    e.g. a search over k)."""
     themes = summary.get("themes", []) if isinstance(summary, dict) else []
-    return [t for t in themes if isinstance(t, dict) and t.get("top_terms")]
+    return [{**t, "number": n} for n, t in enumerate(themes, 1) if isinstance(t, dict) and t.get("top_terms")]
 
 
-class ThemesScreen(Screen):
+class ThemesScreen(StudyScreen):
     """Saved theme runs (newest first) and the themes of the one selected."""
 
     BINDINGS = [
@@ -45,10 +47,6 @@ class ThemesScreen(Screen):
         yield Static(id="theme-detail", classes="detail")
         yield Static(id="status")
         yield Footer()
-
-    @property
-    def session(self):
-        return self.app.session
 
     def on_mount(self) -> None:
         s = self.session
@@ -87,10 +85,10 @@ class ThemesScreen(Screen):
     def show_run(self) -> None:
         table = self.query_one("#themes-table", DataTable)
         table.clear()
-        for i, theme in enumerate(self.current_themes()):
+        for theme in self.current_themes():
             terms = [str(t) for t in theme["top_terms"]]
-            table.add_row(i + 1, theme.get("label") or propose_code_label(terms), theme.get("n_dominant", ""),
-                          ", ".join(terms[:6]))
+            table.add_row(theme["number"], theme.get("label") or propose_code_label(terms),
+                          theme.get("n_dominant", ""), ", ".join(terms[:6]))
         self.show_theme()
 
     def selected_theme(self) -> dict | None:
@@ -112,11 +110,6 @@ class ThemesScreen(Screen):
         runs, themes = self.query_one("#runs-table", DataTable), self.query_one("#themes-table", DataTable)
         (themes if runs.has_focus else runs).focus()
 
-    def say(self, message: str, error: bool = False) -> None:
-        status = self.query_one("#status", Static)
-        status.set_class(error, "error")
-        status.update(message)
-
     def action_promote(self) -> None:
         theme, run = self.selected_theme(), self.current_run()
         if theme is None:
@@ -124,20 +117,23 @@ class ThemesScreen(Screen):
             return
         s = self.session
         terms = [str(t) for t in theme["top_terms"]]
-        rule = " OR ".join(f'"{t.replace("_", " ")}"' if ("_" in t or " " in t) else t for t in terms[:RULE_TERMS])
+        try:
+            rule = theme_rule(terms, analyzer_for(s.study, s.question.name), RULE_TERMS)
+        except OpenCodeError as error:
+            self.say(str(error), error=True)
+            return
 
         def run_promote(label: str | None) -> None:
             if not label or not label.strip():
                 return
 
             def promote():
-                parse_rule(rule)
-                return frames.add_code(s.study, s.question.name, label.strip(), actor=s.coder, rule=rule,
-                                       description=f"Draft from theme run {run['id']}: {', '.join(terms[:8])}")
+                return promote_theme(s.study, run["id"], theme["number"], question=s.question.name, label=label,
+                                     n_rule_terms=RULE_TERMS, actor=s.coder)
 
             def done(code) -> None:
                 s.reload_frame()
-                self.say(f"draft code {code.number} {code.label} added with the rule {rule}")
+                self.say(f"draft code {code.number} {code.label} added with the rule {code.rule}")
             self.app.attempt(promote, done, self.say)
         self.app.push_screen(PromptModal("Promote theme to a draft code", f"rule suggested: {rule}",
                                          value=theme.get("label") or propose_code_label(terms)), run_promote)
