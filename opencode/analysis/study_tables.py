@@ -8,7 +8,8 @@ from pathlib import Path
 
 from opencode.analysis import coded_data
 from opencode.analysis.table_output import TABLE_CSS, to_html, write_csv, write_xlsx
-from opencode.analysis.tables import BannerTable, FrequencyTable, banner_table, code_frequencies
+from opencode.analysis.tables import (BannerTable, BannerVariable, FrequencyTable, SurveyWeight, banner_table,
+                                      code_frequencies)
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export.safe_write import atomic_open
@@ -38,20 +39,26 @@ def question_tables(study: Study, question: str, banners: list[str] = (), *, cod
     coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
     survey_weight = None if unweighted else coded_data.survey_weight(study, weight)
     banner_variables = [coded_data.banner_variable(study, name) for name in dict.fromkeys(banners)]
+    return coding_tables(coding, banner_variables, survey_weight, confidence=confidence,
+                         lower_confidence=lower_confidence)
+
+
+def coding_tables(coding: coded_data.QuestionCoding, banners: list[BannerVariable], weight: SurveyWeight | None,
+                  *, confidence: float = 0.95, lower_confidence: float | None = None) -> QuestionTables:
+    """The tables of one loaded coding (shared by `oecode tables`, the demo and the report)."""
     coded = coded_data.table_question(coding)
-    frequencies = code_frequencies(coded, survey_weight)
+    frequencies = code_frequencies(coded, weight)
     warnings = list(coding.notes)
     if frequencies.small_base:
-        warnings.append(f"{question}: base {frequencies.base.n:,} is under {frequencies.min_base}; "
+        warnings.append(f"{coding.question}: base {frequencies.base.n:,} is under {frequencies.min_base}; "
                         "percentages flagged (!)")
     table = None
-    if banner_variables:
-        table = banner_table(coded, banner_variables, survey_weight, confidence=confidence,
-                             lower_confidence=lower_confidence)
+    if banners:
+        table = banner_table(coded, banners, weight, confidence=confidence, lower_confidence=lower_confidence)
         small = [c.label for c, flag in zip(table.columns, table.small_base & (table.base_n > 0)) if flag]
         if small:
-            warnings.append(f"columns with bases under {table.min_base} flagged (!) and not tested: "
-                            f"{', '.join(small)}")
+            warnings.append(f"{coding.question}: banner columns with bases under {table.min_base} flagged (!) and "
+                            f"not tested: {', '.join(small)}")
     return QuestionTables(frequencies, table, warnings)
 
 

@@ -23,7 +23,8 @@ from opencode.analysis import coded_data
 from opencode.analysis.agreement import AgreementResult
 from opencode.analysis.agreement_report import format_agreement_html
 from opencode.analysis.table_output import TABLE_CSS, to_html
-from opencode.analysis.tables import MIN_BASE, banner_table, code_frequencies
+from opencode.analysis.study_tables import coding_tables
+from opencode.analysis.tables import MIN_BASE
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export.html_embed import png_img
@@ -148,12 +149,8 @@ def build_report(
 def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreement, quotes_per_code: int,
                       mask: bool) -> tuple[str, list[str]]:
     """One question: notes, frame with example verbatims, frequencies and chart, banner table, agreement."""
-    question = coded_data.table_question(coding)
-    frequencies = code_frequencies(question, weight)
-    notes = list(coding.notes)
-    if frequencies.small_base:
-        notes.append(f"{coding.question}: the base ({frequencies.base.n:,}) is under {frequencies.min_base}; "
-                     "read percentages with caution")
+    made = coding_tables(coding, banners, weight)
+    frequencies, notes = made.frequencies, made.warnings
     parts = [f'<p class="oc-lead">Coder: <strong>{html.escape(coding.coder)}</strong>; base: '
              f"{frequencies.base.n:,} coded verbatims that are not non-answers; "
              f"{frequencies.non_answer.n:,} non-answers shown apart.</p>"]
@@ -164,13 +161,8 @@ def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreem
     parts.append(f'<figure class="oc-chart">{img}'
                  "<figcaption>% of respondents in the base per code; nets count a respondent once.</figcaption></figure>")
     parts.append("<h3>Code frame with example verbatims</h3>" + _frame_table(coding, quotes_per_code, mask))
-    if banners:
-        table = banner_table(question, banners, weight)
-        small = [c.label for c, flag in zip(table.columns, table.small_base & (table.base_n > 0)) if flag]
-        if small:
-            notes.append(f"{coding.question}: banner columns with bases under {table.min_base} (flagged, not "
-                         f"tested): {', '.join(small)}")
-        parts.append('<div class="oc-scroll">' + to_html(table) + "</div>")
+    if made.banner is not None:
+        parts.append('<div class="oc-scroll">' + to_html(made.banner) + "</div>")
     if agreement and coding.question in agreement:
         parts.append('<div class="oc-scroll">' + format_agreement_html(
             agreement[coding.question], title=f"Coder agreement on {coding.question}") + "</div>")
