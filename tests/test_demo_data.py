@@ -317,7 +317,7 @@ def test_bad_respondent_count_is_rejected(tmp_path, n):
 def test_module_runs_from_the_command_line(tmp_path):
     out = tmp_path / "new" / "demo"
     done = subprocess.run([sys.executable, "-m", "opencode.demo.generate", "--out", str(out), "--respondents", "400"],
-                          capture_output=True, text=True, timeout=60)
+                          capture_output=True, text=True, timeout=60, cwd=tmp_path)
     assert done.returncode == 0, done.stderr
     assert sorted(p.name for p in out.iterdir()) == sorted(FILES)
     assert len(read_data(out)) == 400
