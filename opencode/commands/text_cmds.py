@@ -104,6 +104,8 @@ def run_words(args: argparse.Namespace) -> int:
         if base < SMALL_BASE:
             _warn(f"small base: only {base} verbatims; read the percentages with care")
         print(format_top_terms(rows))
+        if group:
+            print("(counts are within the group; the word forms listed are counted over the whole question)")
     return 0
 
 
