@@ -46,9 +46,16 @@ def test_coefficients_equal_scikit_learn(penalty, l1_ratio, solver):
         np.testing.assert_allclose(ranker.coef_, other.coef_.ravel(), atol=1e-3)
 
 
-def test_cv_picks_best_mean_score_and_reports_quality(fitted):
+def test_cv_takes_the_one_standard_error_rule_and_reports_quality(fitted):
+    # The one-standard-error rule (Breiman et al. 1984; Hastie, Tibshirani & Friedman 2009, section 7.10):
+    # the smallest C (most penalty) whose mean CV score is within one standard error of the best mean.
     X, y, terms, ranker = fitted
-    assert ranker.C_ == ranker.Cs_[np.nanargmax(ranker.cv_scores_)]
+    best = int(np.nanargmax(ranker.cv_scores_))
+    spread = ranker.cv_fold_scores_[:, best].std(ddof=1) / np.sqrt(ranker.cv_fold_scores_.shape[0])
+    within = np.flatnonzero(ranker.cv_scores_ >= ranker.cv_scores_[best] - spread)
+    assert ranker.C_ == ranker.Cs_[within.min()] and ranker.C_ <= ranker.Cs_[best]
+    plain = DriverRanker("l1", Cs=8, n_subsamples=0, c_rule="best").fit(X, y, terms=terms)
+    assert plain.C_ == plain.Cs_[np.nanargmax(plain.cv_scores_)]
     assert ranker.cv_auc_ > 0.7 and ranker.quality_note_ == ""
     low, high = ranker.cv_auc_ci_
     assert low < ranker.cv_auc_ < high

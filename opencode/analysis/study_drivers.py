@@ -132,7 +132,7 @@ def _exclusion_notes(outcome: Outcome, variable: survey_data.Variable) -> list[s
 
 
 def question_drivers(study: Study, question: str, outcome: str, *, split: str | None = None,
-                     one_vs_rest: bool = False, penalty: str = "l2", scoring: str = "log_loss",
+                     one_vs_rest: bool = False, penalty: str = "l2", scoring: str = "auc",
                      class_weight: str | None = None, weighted: bool = True, min_df: int = 5,
                      holdout: float = 0.0, n_subsamples: int = 50, random_state: int = 0,
                      progress: Callable[[int, int], None] | None = None) -> StudyDrivers:

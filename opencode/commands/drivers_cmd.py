@@ -40,8 +40,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     sides.add_argument("--one-vs-rest", action="store_true", help="each category against all the others")
     parser.add_argument("--penalty", default="l2", choices=["l1", "l2", "elasticnet"],
                         help="l2 (default, best held-out prediction), l1 (a short list of terms) or elasticnet")
-    parser.add_argument("--scoring", default="log_loss", choices=["log_loss", "auc"],
-                        help="how cross-validation chooses the penalty (default log_loss)")
+    parser.add_argument("--scoring", default="auc", choices=["log_loss", "auc"],
+                        help="how cross-validation chooses the penalty (default auc, with the one-standard-error rule)")
     parser.add_argument("--balanced", action="store_true", help="weight the two sides equally in the model")
     parser.add_argument("--unweighted", action="store_true", help="ignore the study's survey weight")
     parser.add_argument("--min-df", type=int, default=5, help="keep terms found in at least this many verbatims "
