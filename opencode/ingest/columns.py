@@ -29,6 +29,7 @@ class ColumnPlan:
     value_labels: dict[float, str] = field(default_factory=dict)
     missing_codes: list[float] = field(default_factory=list)
     values: object = None  # np.ndarray (float) or list (text, dates, lists of codes)
+    values_json: str | None = None  # verbatims as one JSON array, ready for a bulk insert
 
 
 def _as_numbers(series: pd.Series) -> pd.Series | None:

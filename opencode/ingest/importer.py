@@ -144,6 +144,7 @@ def plan_columns(table: RawTable, options: ImportOptions) -> list[ColumnPlan]:
         if name in options.questions:
             plan = ColumnPlan(name, "text", "question", table.variable_labels.get(name, ""))
             plan.values = clean_text(table.frame[name])
+            plan.values_json = json.dumps(plan.values.tolist())  # serialised here, off the writing thread
         else:
             kind = options.kinds.get(name) or ("numeric" if name == options.weight else infer_kind(table, name))
             plan = convert(table, name, kind)
@@ -168,13 +169,14 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
     if not options.questions:
         raise OpenCodeError(f"{table.path}: name at least one open question column (--question)")
     _check_columns(table, options)
-    keys = _respondent_keys(table, options.id_column)
     _check_cell_sizes(table, options)
     report = ImportReport(study_path, Path(source), created=not study_path.exists(), encoding=table.encoding)
     say("writing the study")
-    # Columns are converted on the second core while SQLite writes the respondents (both release the GIL).
+    # Columns are converted on the second core while this thread checks the ids and SQLite writes the
+    # respondents (SQLite and the Arrow string kernels release the GIL).
     with ThreadPoolExecutor(max_workers=1) as pool:
         plans = pool.submit(plan_columns, table, options)
+        keys = _respondent_keys(table, options.id_column)
         if report.created:
             _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
         else:
@@ -286,7 +288,7 @@ def _write_verbatims(study: Study, question_id: int, plan: ColumnPlan, responden
             pending = pool.submit(flag_nonanswers, texts)
             study.db.execute("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) "
                              "SELECT ?, ? + key, value, 0 FROM json_each(?)",
-                             (question_id, int(respondent_ids[0]), json.dumps(texts.tolist())))
+                             (question_id, int(respondent_ids[0]), plan.values_json or json.dumps(texts.tolist())))
             flags = pending.result()
         study.db.executemany("UPDATE verbatims SET nonanswer = 1 WHERE question_id = ? AND respondent_id = ?",
                              [(question_id, int(rid)) for rid in respondent_ids[flags]])
