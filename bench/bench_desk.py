@@ -1,9 +1,15 @@
 """Benchmark the coding desk on a big study: 100,000 verbatims, 60 codes, 70,000 codes already given.
 
-Measures, through Textual's test pilot: time to the first drawn desk; the median time from a hotkey press to
-the code being committed and the desk redrawn; peak memory. The reference, measured in the same run, is a
-bare Textual app with one Static showing the same verbatim (first screen; a key that changes its text).
-The study is generated in a separate process, so the memory figure is the desk's own.
+Measures, in the app run by Textual's test pilot: time to the first drawn desk; the median time from a
+hotkey press to the code being committed and the desk redrawn; peak memory. The reference, measured in the
+same run, is a bare Textual app with one Static showing the same verbatim (first screen; a key that changes
+its text). The study is generated in a separate process, so the memory figure is the desk's own.
+
+Keypress time is measured twice. `pilot.press` + `pilot.pause` includes the pilot's own idle detection
+(repeated sleeps until the process looks idle), about 80 ms even for the bare app, so it is printed but not
+gated. The gated figure sends the same key event the pilot sends (through the app's driver) and stops the
+clock when the screen has been repainted after the commit (a `call_after_refresh` callback queued by the
+hotkey handler runs only after the compositor refresh).
 
     /work/venv/bin/python bench/bench_desk.py [--verbatims 100000] [--presses 200] [--keep DIR]
 """
@@ -74,7 +80,9 @@ def generate(folder: Path, n: int) -> Path:
     return study_path
 
 
-async def measure_desk(study_path: Path, presses: int) -> tuple[float, list[float], list[float], str]:
+async def measure_desk(study_path: Path, presses: int):
+    from textual import events
+
     from opencode.tui.app import DeskApp
     from opencode.tui.session import DeskSession
 
@@ -90,10 +98,13 @@ async def measure_desk(study_path: Path, presses: int) -> tuple[float, list[floa
         act = desk.act
         inside: list[float] = []
 
+        repainted = asyncio.Event()
+
         def timed_act(change, report=None) -> None:  # what a hotkey runs: commit, then redraw the widgets
             t = time.perf_counter()
             act(change, report)
             inside.append(time.perf_counter() - t)
+            app.call_after_refresh(repainted.set)
         desk.act = timed_act
         for i in range(presses):
             key = HOTKEYS[(i * 7) % N_CODES]
@@ -104,12 +115,24 @@ async def measure_desk(study_path: Path, presses: int) -> tuple[float, list[floa
             if i % 3 == 2:
                 await pilot.press("right")
         await pilot.pause()
-    return first, timings, inside, text
+        redrawn: list[float] = []
+        for i in range(presses):  # the same key events, clock stopped at the repaint after the commit
+            key = HOTKEYS[(i * 11) % N_CODES]
+            repainted.clear()
+            t0 = time.perf_counter()
+            app._driver.send_message(events.Key(key, key))
+            await asyncio.wait_for(repainted.wait(), timeout=10)
+            redrawn.append(time.perf_counter() - t0)
+        await pilot.pause()
+    return first, timings, inside, text, redrawn
 
 
-async def measure_reference(text: str, presses: int) -> tuple[float, list[float]]:
+async def measure_reference(text: str, presses: int):
+    from textual import events
     from textual.app import App
     from textual.widgets import Static
+
+    repainted = asyncio.Event()
 
     class Bare(App):
         def compose(self):
@@ -117,10 +140,11 @@ async def measure_reference(text: str, presses: int) -> tuple[float, list[float]
 
         def on_key(self, event) -> None:
             self.query_one("#only", Static).update(f"{event.character} {text}")
+            self.call_after_refresh(repainted.set)
 
     start = time.perf_counter()
     app = Bare()
-    timings = []
+    timings, redrawn = [], []
     async with app.run_test(size=(100, 30)) as pilot:
         await pilot.pause()
         first = time.perf_counter() - start
@@ -129,7 +153,13 @@ async def measure_reference(text: str, presses: int) -> tuple[float, list[float]
             await pilot.press(HOTKEYS[(i * 7) % N_CODES])
             await pilot.pause()
             timings.append(time.perf_counter() - t0)
-    return first, timings
+        for i in range(presses):
+            repainted.clear()
+            t0 = time.perf_counter()
+            app._driver.send_message(events.Key(HOTKEYS[(i * 11) % N_CODES], HOTKEYS[(i * 11) % N_CODES]))
+            await asyncio.wait_for(repainted.wait(), timeout=10)
+            redrawn.append(time.perf_counter() - t0)
+    return first, timings, redrawn
 
 
 def committed_changes(study_path: Path) -> int:
@@ -162,18 +192,22 @@ def main() -> int:
         print(f"generated {args.verbatims:,} verbatims, {N_CODES} codes, 70,000 earlier codes in "
               f"{time.perf_counter() - t0:.1f} s (not timed below)")
     before = committed_changes(study_path)
-    first, timings, inside, text = asyncio.run(measure_desk(study_path, args.presses))
+    first, timings, inside, text, redrawn = asyncio.run(measure_desk(study_path, args.presses))
     committed = committed_changes(study_path) - before
-    ref_first, ref_timings = asyncio.run(measure_reference(text, args.presses))
+    ref_first, ref_timings, ref_redrawn = asyncio.run(measure_reference(text, args.presses))
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     median_ms = statistics.median(timings) * 1000
     ref_ms = statistics.median(ref_timings) * 1000
     p95_ms = sorted(timings)[int(0.95 * len(timings))] * 1000
     handler_ms = statistics.median(inside) * 1000 if inside else float("nan")
+    redrawn_ms = statistics.median(redrawn) * 1000
+    ref_redrawn_ms = statistics.median(ref_redrawn) * 1000
     rows = [
         ("first screen (s)", first, ref_first, first / ref_first, f"<= {TARGET_FIRST_SCREEN}",
          first <= TARGET_FIRST_SCREEN),
-        ("keypress->committed+redrawn median (ms)", median_ms, ref_ms, median_ms / ref_ms,
+        ("keypress->committed+repainted median (ms)", redrawn_ms, ref_redrawn_ms, redrawn_ms / ref_redrawn_ms,
+         f"<= {TARGET_KEYPRESS_MS}", redrawn_ms <= TARGET_KEYPRESS_MS),
+        ("pilot.press+pause median (ms, not gated)", median_ms, ref_ms, median_ms / ref_ms,
          f"<= {TARGET_KEYPRESS_MS}", median_ms <= TARGET_KEYPRESS_MS),
         ("  extra over the bare app (ms)", median_ms - ref_ms, 0.0, float("nan"), f"<= {TARGET_KEYPRESS_MS}",
          median_ms - ref_ms <= TARGET_KEYPRESS_MS),
@@ -182,18 +216,19 @@ def main() -> int:
         ("peak memory (MB)", peak_mb, float("nan"), float("nan"), f"<= {TARGET_MEMORY_MB}",
          peak_mb <= TARGET_MEMORY_MB),
     ]
-    print(f"desk on {args.verbatims:,} verbatims, {N_CODES} codes; {args.presses} hotkey presses "
-          f"({committed} committed changes seen in the audit trail); keypress p95 {p95_ms:.1f} ms")
+    print(f"desk on {args.verbatims:,} verbatims, {N_CODES} codes; {args.presses} pilot presses + {args.presses} "
+          f"driver key events ({committed} committed changes seen in the audit trail); pilot keypress p95 "
+          f"{p95_ms:.1f} ms; repaint p95 {sorted(redrawn)[int(0.95 * len(redrawn))] * 1000:.1f} ms")
     print(f"{'measure':42} {'desk':>10} {'reference':>10} {'ratio':>7}  target     result")
     for name, value, ref, ratio, target, ok in rows:
         print(f"{name:42} {value:10.3f} {ref:10.3f} {ratio:7.2f}  {target:10} {'PASS' if ok else 'FAIL'}")
     print("reference: a bare Textual app with one Static showing the same verbatim, in this run; memory is the "
           "whole process (desk and reference).\nThe pilot figure includes Textual's own press/pause cost, which the "
           "bare app pays too; the two indented lines separate the desk's share.")
-    if committed != args.presses:
-        print(f"FAIL: {args.presses} presses but {committed} committed changes")
+    if committed != 2 * args.presses:
+        print(f"FAIL: {2 * args.presses} presses but {committed} committed changes")
         return 1
-    return 0 if all(row[-1] for i, row in enumerate(rows) if i != 1) else 1  # the raw pilot figure is printed, not gated
+    return 0 if all(row[-1] for i, row in enumerate(rows) if i != 2) else 1  # the raw pilot figure is not gated
 
 
 if __name__ == "__main__":
