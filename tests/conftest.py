@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import hashlib
 import shutil
 from pathlib import Path
 
@@ -13,11 +12,6 @@ from opencode.coding import frame_io, import_codes
 from opencode.demo_job import build_demo_study
 from opencode.resources import demo_dir
 from opencode.study.store import Study
-
-
-def file_digest(path: Path) -> str:
-    """A digest of a file's bytes (or 'absent'), to prove a failed command changed nothing."""
-    return hashlib.sha256(path.read_bytes()).hexdigest() if path.exists() else "absent"
 
 
 @pytest.fixture

@@ -7,6 +7,7 @@ Fixtures shared between modules live in conftest.py instead.
 from __future__ import annotations
 
 import csv
+import hashlib
 import shutil
 import sqlite3
 from pathlib import Path
@@ -164,3 +165,8 @@ def on_disk(path: Path, sql: str, params=()) -> list[tuple]:
 def make_app(path: Path, coder: str = "ash") -> DeskApp:
     """The desk on a study's question 'why' for one coder, with a fixed clock and no timers."""
     return DeskApp(DeskSession(path, "why", coder, clock=lambda: 0.0), refresh_seconds=0, show_pace=False)
+
+
+def file_digest(path: Path) -> str:
+    """A digest of a file's bytes (or 'absent'), to prove a failed command changed nothing."""
+    return hashlib.sha256(path.read_bytes()).hexdigest() if path.exists() else "absent"

@@ -6,8 +6,9 @@ Driven through Textual's test pilot; every check reads the study file through a 
 from __future__ import annotations
 
 import asyncio
-import sqlite3
 from pathlib import Path
+
+from helpers import on_disk
 
 from opencode.coding import assignments as coding
 from opencode.coding import frames
@@ -46,16 +47,14 @@ def make_study(folder: Path) -> Path:
     return path
 
 
-def on_disk(path: Path) -> list[tuple]:
+ALL_ASSIGNMENTS = ("SELECT r.key, c.number, a.coder, a.source, a.confidence, a.created_at FROM assignments a "
+                   "JOIN codes c ON c.id = a.code_id JOIN verbatims v ON v.id = a.verbatim_id "
+                   "JOIN respondents r ON r.id = v.respondent_id ORDER BY r.key, c.number, a.coder")
+
+
+def assignments_on_disk(path: Path) -> list[tuple]:
     """Every assignment (respondent, code, coder, source, confidence, time) through a fresh connection."""
-    connection = sqlite3.connect(path)
-    try:
-        return connection.execute(
-            "SELECT r.key, c.number, a.coder, a.source, a.confidence, a.created_at FROM assignments a "
-            "JOIN codes c ON c.id = a.code_id JOIN verbatims v ON v.id = a.verbatim_id "
-            "JOIN respondents r ON r.id = v.respondent_id ORDER BY r.key, c.number, a.coder").fetchall()
-    finally:
-        connection.close()
+    return on_disk(path, ALL_ASSIGNMENTS)
 
 
 def ash_hand(rows: list[tuple]) -> list[str]:
@@ -64,7 +63,7 @@ def ash_hand(rows: list[tuple]) -> list[str]:
 
 def test_bulk_code_from_terms_screen_then_one_undo_restores_the_file(tmp_path):
     path = make_study(tmp_path)
-    before = on_disk(path)
+    before = assignments_on_disk(path)
 
     async def scenario():
         app = DeskApp(DeskSession(path, "why", "ash", clock=lambda: 0.0), refresh_seconds=0, show_pace=False)
@@ -76,18 +75,18 @@ def test_bulk_code_from_terms_screen_then_one_undo_restores_the_file(tmp_path):
             await pilot.press("c", "2", "enter", "enter")  # code 2 for every verbatim with "staff", reviewed
             await pilot.pause()
             assert "code 2 given to 3 more verbatims" in str(app.screen.query_one("#status").render())
-            bulk = on_disk(path)
+            bulk = assignments_on_disk(path)
             assert ash_hand(bulk) == STAFF  # B1 kept, B2's suggestion accepted, B4 and B5 new for ash
             assert [r for r in bulk if r[2] == "bryn"] == [r for r in before if r[2] == "bryn"]
             assert app.session.counts.codes[2] == 4
 
             await pilot.press("escape", "ctrl+z")  # back on the desk: one undo
             await pilot.pause()
-            assert on_disk(path) == before  # every bulk assignment gone, the suggestion back as it was
+            assert assignments_on_disk(path) == before  # every bulk assignment gone, the suggestion back as it was
             assert app.session.counts.codes[2] == 1
             assert "undone: assign" in str(app.screen.query_one("#status").render())
 
             await pilot.press("ctrl+y")
             await pilot.pause()
-            assert on_disk(path) == bulk
+            assert assignments_on_disk(path) == bulk
     asyncio.run(scenario())

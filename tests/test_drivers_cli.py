@@ -3,18 +3,15 @@
 from __future__ import annotations
 
 import csv
-import hashlib
 
 import pytest
+
+from helpers import file_digest
 
 from opencode.cli import main
 from opencode.demo_job import build_demo_study
 from opencode.study import survey_data
 from opencode.study.store import Study
-
-
-def file_digest(path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
 @pytest.fixture(scope="module")

@@ -13,9 +13,6 @@ from opencode.errors import OpenCodeError
 from opencode.ingest.text_cells import NULL_MARKERS
 from opencode.ingest.sniff import decode_text, detect_format, sniff_delimiter
 
-#: Cells that mean "no value" in text exports ("\N" from database dumps, NULL, and the like).
-NULL_MARKERS = frozenset({"", "\\N", "NULL", "null", "NaN", "nan", "#NULL!", "."})
-
 
 @dataclass
 class RawTable:

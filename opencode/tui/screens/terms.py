@@ -16,18 +16,17 @@ from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
-from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 from textual.worker import get_current_worker
 
 from opencode.analysis import study_drivers
-from opencode.coding.features import default_analyzer
 from opencode.errors import OpenCodeError
-from opencode.study import survey_data
 from opencode.study.store import Study
 from opencode.text.kwic import kwic
-from opencode.text.matrix import TermMatrix, build_matrix
+from opencode.text.matrix import TermMatrix
+from opencode.text.study_text import term_matrix
 from opencode.text.words import top_terms
+from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import ConfirmModal, PromptModal
 from opencode.tui.widgets.panes import Pane
 
@@ -72,7 +71,7 @@ def ranked_drivers(study: Study, question: str, progress: Progress | None = None
 drivers_source: Callable[..., DriverRows] = ranked_drivers
 
 
-class TermsScreen(Screen):
+class TermsScreen(StudyScreen):
     """Terms by how many verbatims use them; kwic and bulk coding for the selected term."""
 
     BINDINGS = [
@@ -90,10 +89,6 @@ class TermsScreen(Screen):
         yield Static(id="drivers", classes="detail")
         yield Static(id="status")
         yield Footer()
-
-    @property
-    def session(self):
-        return self.app.session
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
@@ -137,19 +132,18 @@ class TermsScreen(Screen):
 
     def _build(self) -> None:
         s = self.session
-        frame = survey_data.verbatims(s.study, s.question.name)
-        texts = frame["text"].tolist()
-        try:
-            tm = build_matrix(texts, default_analyzer(s.study, s.question.name),
-                              doc_ids=frame["verbatim_id"].tolist(), exclude=frame["nonanswer"].to_numpy())
+        try:  # the study's cached matrix, read on this worker's own connection
+            with Study.open(s.study.path) as own:
+                tm, frame = term_matrix(own, s.question.name)
             rows = top_terms(tm, n=MAX_TERMS)
         except OpenCodeError as error:
             self.app.call_from_thread(self.say, str(error), True)
             return
-        self.app.call_from_thread(self._ready, tm, texts, rows)
+        self.app.call_from_thread(self._ready, tm, frame, rows)
 
-    def _ready(self, tm: TermMatrix, texts: list[str], rows) -> None:
-        self.tm, self.texts, self.rows = tm, texts, rows
+    def _ready(self, tm: TermMatrix, frame, rows) -> None:
+        self.tm, self.texts, self.rows = tm, frame["text"].tolist(), rows
+        self.row_verbatim_ids = frame["verbatim_id"].to_numpy()[tm.rows_source]
         table = self.query_one(DataTable)
         for row in rows:
             table.add_row(row.label, row.verbatims, f"{row.percent:.1f}",
@@ -181,16 +175,11 @@ class TermsScreen(Screen):
             text.append(line.right, style="dim")
         self.query_one("#kwic", Static).update(text)
 
-    def say(self, message: str, error: bool = False) -> None:
-        status = self.query_one("#status", Static)
-        status.set_class(error, "error")
-        status.update(message)
-
     def term_ids(self, term: str) -> list[int]:
         """Verbatim ids of the rows that contain a term."""
         column = self.tm.counts[:, self.tm.column(term)]
         rows = np.unique(column.nonzero()[0])
-        return [int(self.tm.doc_ids[r]) for r in rows]
+        return [int(self.row_verbatim_ids[r]) for r in rows]
 
     def action_code_all(self) -> None:
         row = self.selected()
