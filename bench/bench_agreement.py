@@ -18,9 +18,9 @@ import krippendorff
 import numpy as np
 from sklearn.metrics import cohen_kappa_score
 
-from opencode.analysis.agreement import CodingMatrix, measure_agreement
-from opencode.analysis.agreement_bootstrap import bootstrap_totals, percentile_interval
-from opencode.analysis.agreement_codes import CodeFeatures
+from opencode.analysis.agreement.core import CodingMatrix, measure_agreement
+from opencode.analysis.agreement.bootstrap import bootstrap_totals, percentile_interval
+from opencode.analysis.agreement.codes import CodeFeatures
 
 CODERS = ("ash", "bryn", "machine")
 

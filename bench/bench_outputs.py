@@ -17,8 +17,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from opencode.analysis.coded_data import load_coding, table_question
-from opencode.analysis.tables import code_frequencies
+from opencode.analysis.tables.coded_data import load_coding, table_question
+from opencode.analysis.tables.crosstab import code_frequencies
 from opencode.coding import frame_io
 from opencode.ingest.importer import ImportOptions, import_survey
 from opencode.study import survey_data

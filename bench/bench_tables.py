@@ -16,7 +16,7 @@ import pandas as pd
 from scipy import sparse
 from statsmodels.stats.proportion import proportions_ztest
 
-from opencode.analysis.tables import BannerVariable, Code, CodedQuestion, Net, SurveyWeight, banner_table
+from opencode.analysis.tables.crosstab import BannerVariable, Code, CodedQuestion, Net, SurveyWeight, banner_table
 
 TARGET_SECONDS = 5.0
 

@@ -2,7 +2,7 @@
 
 Usage: /work/venv/bin/python bench/bench_themes.py [--quick]
 
-Data: a synthetic sparse count matrix with planted themes (opencode.analysis.theme_synthetic), 100,000 short
+Data: a synthetic sparse count matrix with planted themes (synthetic_themes), 100,000 short
 verbatims (3-30 tokens) over 5,000 terms with a Zipf background; --quick uses 20,000 verbatims and k 4..8.
 Targets: finder (fit + top terms + shares + representatives) <= 1.5 x a bare NMF fit on the same tf-idf
 matrix, measured in the same run; k search 4..20 <= 180 s.
@@ -12,15 +12,19 @@ from __future__ import annotations
 
 import argparse
 import resource
+import sys
+from pathlib import Path
 import time
 
 from sklearn.decomposition import NMF
 from sklearn.feature_extraction.text import TfidfTransformer
 
-from opencode.analysis.theme_search import choose_k
-from opencode.analysis.theme_summary import summarise
-from opencode.analysis.theme_synthetic import planted_corpus
-from opencode.analysis.themes import ThemeFinder
+from opencode.analysis.themes.search import choose_k
+from opencode.analysis.themes.summary import summarise
+from opencode.analysis.themes.finder import ThemeFinder
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+from synthetic_themes import planted_corpus  # noqa: E402  (test data, not shipped)
 
 FIT_RATIO_TARGET = 1.5
 SEARCH_SECONDS_TARGET = 180.0

@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.safe_write import atomic_open, atomic_path
+from opencode.files.safe_write import atomic_open, atomic_path
 
 DEFAULT_SEED = 2026
 DEFAULT_RESPONDENTS = 2400

@@ -14,7 +14,7 @@ VERBS = {
     "new": "study_cmds", "info": "study_cmds", "demo": "demo_cmd",
     "words": "text_cmds", "kwic": "text_cmds", "phrases": "text_cmds", "lexicon": "text_cmds",
     "themes": "themes_cmd", "drivers": "drivers_cmd",
-    "frame": "frame_cmd", "autocode": "autocode_cmd", "code": "desk_cmd",
+    "frame": "frame_cmd", "model": "model_cmd", "code": "desk_cmd",
     "sample": "reliability_cmds", "agree": "reliability_cmds",
     "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
 }
@@ -24,7 +24,7 @@ def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every available verb."""
     parser = argparse.ArgumentParser(prog="oecode", description="Code open-ended survey answers: from the survey "
                                      "file to a code frame, coded data, agreement and tables.")
-    parser.add_argument("--version", action="version", version=f"opencode {__version__}")
+    parser.add_argument("--version", action="version", version=f"oecode {__version__}")
     subparsers = parser.add_subparsers(dest="verb", metavar="VERB")
     registered = set()
     for module_name in dict.fromkeys(VERBS.values()):

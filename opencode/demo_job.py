@@ -13,11 +13,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
-from opencode.analysis.study_drivers import drivers_chart, drivers_html, question_drivers, remember_choice
-from opencode.analysis.study_tables import question_tables, write_tables
-from opencode.analysis.study_themes import search_question_k, themes_html, themes_with_chart
-from opencode.analysis.table_output import format_table
-from opencode.coding import adjudication, autocode, frame_io, reliability, rules
+from opencode.analysis.agreement.study import question_agreement
+from opencode.analysis.drivers.study import drivers_chart, drivers_html, question_drivers, remember_choice
+from opencode.analysis.tables.study import question_tables, write_tables
+from opencode.analysis.themes.study import search_question_k, themes_html, themes_with_chart
+from opencode.analysis.tables.output import format_table
+from opencode.coding import adjudication, frame_io, reliability, rules
+from opencode.coding import machine_coding
 from opencode.coding.import_codes import import_codes
 from opencode.errors import OpenCodeError
 from opencode.export.report import ReportSection, build_report
@@ -151,7 +153,7 @@ def _code(study: Study, question: str, outputs: DemoOutputs, say):
     say(f"{question}: the double-coded subset by {' and '.join(DEMO_CODERS)}")
     import_codes(study, question, ["codes"], source_path=demo_dir() / "double-coded.csv", id_column="respondent_id",
                  coder_column="coder", question_column="question", layout="long", actor=ACTOR)
-    result = reliability.study_agreement(study, question, DEMO_CODERS, n_resamples=200, random_state=0)
+    result = question_agreement(study, question, DEMO_CODERS, n_resamples=200, random_state=0)
     kappa = result.frame["mean_kappa"]
     alpha = result.frame["alpha_masi"]
     outputs.lines.append(f"{question}: agreement between {' and '.join(DEMO_CODERS)} on {result.n_pairable} verbatims: "
@@ -165,9 +167,9 @@ def _code(study: Study, question: str, outputs: DemoOutputs, say):
                          "differing ones took the union of both coders (a demo shortcut: a lead would review them "
                          "on the compare screen)")
     say(f"{question}: training the machine coder on the final codes")
-    autocode.train(study, question, coder="final")
+    machine_coding.train(study, question, coder="final")
     try:
-        applied = autocode.apply_machine(study, question, target_accuracy=TARGET_ACCURACY, actor=ACTOR)
+        applied = machine_coding.apply_machine(study, question, target_accuracy=TARGET_ACCURACY, actor=ACTOR)
         outputs.lines.append(f"{question}: the machine coder pre-coded {applied.verbatims:,} of {applied.candidates:,} "
                              f"uncoded verbatims at threshold {applied.threshold:.2f} (cross-validated accuracy "
                              f">= {TARGET_ACCURACY:.0%}); they stay suggestions until a person accepts them")

@@ -11,12 +11,12 @@ from nltk.metrics.distance import masi_distance as nltk_masi
 from sklearn.metrics import cohen_kappa_score, confusion_matrix
 from statsmodels.stats.inter_rater import fleiss_kappa as sm_fleiss_kappa
 
-from opencode.analysis.agreement import CodingMatrix, measure_agreement
-from opencode.analysis.agreement_bootstrap import bootstrap_totals, resample_weights
-from opencode.analysis.agreement_codes import CodeFeatures
-from opencode.analysis.agreement_disagreement import confused_pairs, disputed_units, pair_tables
-from opencode.analysis.agreement_sets import jaccard_distance, masi_distance, set_alpha
-from opencode.analysis.agreement_stats import gwet_ac1_table, pabak_table
+from opencode.analysis.agreement.core import CodingMatrix, measure_agreement
+from opencode.analysis.agreement.bootstrap import bootstrap_totals, resample_weights
+from opencode.analysis.agreement.codes import CodeFeatures
+from opencode.analysis.agreement.disagreement import confused_pairs, disputed_units, pair_tables
+from opencode.analysis.agreement.sets import jaccard_distance, masi_distance, set_alpha
+from opencode.analysis.agreement.stats import gwet_ac1_table, pabak_table
 from opencode.errors import OpenCodeError
 
 

@@ -6,8 +6,8 @@ from html.parser import HTMLParser
 
 import pytest
 
-from opencode.analysis.agreement import CodingMatrix, measure_agreement
-from opencode.analysis.agreement_report import (
+from opencode.analysis.agreement.core import CodingMatrix, measure_agreement
+from opencode.analysis.agreement.report import (
     CSV_HEADER,
     format_agreement_html,
     format_agreement_text,

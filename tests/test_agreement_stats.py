@@ -8,8 +8,8 @@ from hypothesis import strategies as st
 from sklearn.metrics import cohen_kappa_score
 from statsmodels.stats.inter_rater import fleiss_kappa as sm_fleiss_kappa
 
-from opencode.analysis.agreement_bands import krippendorff_band, landis_koch_band
-from opencode.analysis.agreement_stats import (
+from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
+from opencode.analysis.agreement.stats import (
     cohen_kappa_table,
     fleiss_kappa,
     gwet_ac1,

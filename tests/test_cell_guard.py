@@ -2,7 +2,7 @@
 
 import pytest
 
-from opencode.export.cell_guard import guard_cell, guard_row
+from opencode.files.cell_guard import guard_cell, guard_row
 
 
 # OWASP "CSV Injection": cells starting with = + - @ tab or carriage return get a leading single quote.

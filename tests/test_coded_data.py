@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from opencode.analysis import coded_data
-from opencode.analysis.tables import banner_table, code_frequencies
+from opencode.analysis.tables import coded_data
+from opencode.analysis.tables.crosstab import banner_table, code_frequencies
 from opencode.coding.assignments import assign, assignments, mark_done
 from opencode.errors import OpenCodeError
 from opencode.resources import demo_dir

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from opencode.analysis.coherence import npmi_coherence, top_term_indices, umass_coherence
+from opencode.analysis.themes.coherence import npmi_coherence, top_term_indices, umass_coherence
 
 # Toy corpus, terms a b c d (columns 0..3); a count of 2 still means "occurs" (document counting):
 #   d1: a b      d2: a a b c      d3: a      d4: c d

@@ -7,11 +7,11 @@ import scipy.sparse as sp
 import statsmodels.api as sm
 from sklearn.linear_model import LogisticRegression
 
-from opencode.analysis.driver_chart import chart_bars, write_driver_chart
-from opencode.analysis.drivers import (DriverRanker, format_ranking, hanley_mcneil_ci, make_logistic,
+from opencode.analysis.drivers.chart import chart_bars, write_driver_chart
+from opencode.analysis.drivers.ranker import (DriverRanker, format_ranking, hanley_mcneil_ci, make_logistic,
                                        term_indicators, unpenalized_odds_ratios)
 from opencode.errors import OpenCodeError
-from opencode.palette import SIDE_A, SIDE_B
+from opencode.files.palette import SIDE_A, SIDE_B
 
 
 def planted(seed=0, n_docs=400, n_terms=60, n_signal=4, strength=2.0):

@@ -11,7 +11,7 @@ from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
 from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import roc_auc_score
 
-from opencode.analysis.drivers import DriverRanker
+from opencode.analysis.drivers.ranker import DriverRanker
 from opencode.text.analyzer import Analyzer
 from opencode.text.matrix import build_matrix
 

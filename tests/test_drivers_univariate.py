@@ -9,7 +9,7 @@ from statsmodels.stats.contingency_tables import Table2x2
 from statsmodels.stats.multitest import multipletests
 
 from opencode.analysis.multiple_testing import bh_adjust
-from opencode.analysis.univariate import (chi_square_p, fisher_p, informative_prior, monroe_z, two_by_two,
+from opencode.analysis.drivers.univariate import (chi_square_p, fisher_p, informative_prior, monroe_z, two_by_two,
                                           univariate_table, woolf_odds_ratio)
 
 

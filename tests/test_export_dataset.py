@@ -37,7 +37,7 @@ def test_dichotomy_indicators_and_nets_count_once():
 
 
 def test_category_layout_holds_sorted_codes_with_labels():
-    table = build_table(small_dataset(), category_columns=True)
+    table = build_table(small_dataset(), mention_columns=True)
     d = table.data
     m = d[["why_m1", "why_m2", "why_m3"]].to_numpy()
     expected = np.array([[1, 2, np.nan], [3, np.nan, np.nan], [np.nan] * 3, [2, 4, 5], [5, np.nan, np.nan], [1, 3, np.nan]])
@@ -79,7 +79,7 @@ def test_names_are_valid_for_spss_and_stata():
     ]
     closed = [ClosedVariable("in", [1, 2]), ClosedVariable("WITH", [1, 2])]
     ds = CodedDataset([1, 2], questions, closed, id_name="to")
-    names = list(build_table(ds, category_columns=True, verbatims="omit").data.columns)
+    names = list(build_table(ds, mention_columns=True, verbatims="omit").data.columns)
     assert len({n.lower() for n in names}) == len(names)
     for n in names:
         assert len(n) <= 32 and n[0].isalpha() and n.isascii()  # Stata: 32 chars; SPSS: 64, letter first
@@ -137,7 +137,7 @@ def test_bad_options_and_values():
 @given(st.lists(st.sets(st.sampled_from([1, 2, 3, 4, 5, 20, 21]), max_size=4), min_size=1, max_size=30))
 def test_vectorised_layouts_agree_with_a_plain_loop(code_sets):
     ds = CodedDataset(list(range(len(code_sets))), [CodedQuestion("why", "", WHY_FRAME, code_sets)])
-    d = build_table(ds, category_columns=True).data
+    d = build_table(ds, mention_columns=True).data
     members = {20: {1, 2, 20}, 21: {3, 4, 21}}
     for i, codes in enumerate(code_sets):
         for c in (1, 2, 3, 4, 5):

@@ -28,8 +28,8 @@ def _assert_same_values(read: pd.DataFrame, expected: pd.DataFrame) -> None:
 @pytest.mark.parametrize("ids", [None, ["w-01", "w-02", "w-03", "w-04", "w-05", "w-06"]])
 def test_sav_round_trip_keeps_values_and_labels(tmp_path, ids):
     ds = small_dataset(ids=ids)
-    expected = build_table(ds, category_columns=True, verbatims="masked")
-    paths = write_sav(ds, tmp_path / "wrenfield.sav", category_columns=True, verbatims="masked")
+    expected = build_table(ds, mention_columns=True, verbatims="masked")
+    paths = write_sav(ds, tmp_path / "wrenfield.sav", mention_columns=True, verbatims="masked")
     assert paths == [tmp_path / "wrenfield.sav", tmp_path / "wrenfield-frame.csv"]
     data, meta = pyreadstat.read_sav(paths[0], user_missing=True)
     _assert_same_values(data, expected.data)
@@ -47,8 +47,8 @@ def test_sav_round_trip_keeps_values_and_labels(tmp_path, ids):
 
 def test_dta_round_trip_with_pyreadstat_and_pandas(tmp_path):
     ds = small_dataset()
-    expected = build_table(ds, category_columns=True, verbatims="raw")
-    path = write_dta(ds, tmp_path / "wrenfield.dta", category_columns=True, verbatims="raw")[0]
+    expected = build_table(ds, mention_columns=True, verbatims="raw")
+    path = write_dta(ds, tmp_path / "wrenfield.dta", mention_columns=True, verbatims="raw")[0]
     data, meta = pyreadstat.read_dta(path)
     _assert_same_values(data, expected.data)
     assert meta.column_names_to_labels == expected.column_labels
@@ -72,7 +72,7 @@ def test_long_labels_fit_each_format(tmp_path):
     long_label = "é" * 300
     frame = [FrameCode(1, long_label)]
     ds = CodedDataset([1, 2], [CodedQuestion("q", long_label, frame, [{1}, set()])], title="t")
-    write_sav(ds, tmp_path / "a.sav", category_columns=True)
+    write_sav(ds, tmp_path / "a.sav", mention_columns=True)
     _, meta = pyreadstat.read_sav(tmp_path / "a.sav")
     assert len(meta.column_names_to_labels["q_c1"].encode("utf-8")) <= 256
     assert meta.variable_value_labels["q_m1"][1] == "é" * 60  # 120 bytes

@@ -26,11 +26,11 @@ def _injection_dataset() -> CodedDataset:
 
 def test_csv_layout_and_frame_sibling(tmp_path):
     ds = small_dataset()
-    data_path, frame_path = write_csv(ds, tmp_path / "out.csv", category_columns=True)
+    data_path, frame_path = write_csv(ds, tmp_path / "out.csv", mention_columns=True)
     assert frame_path == tmp_path / "out-frame.csv"
     with open(data_path, newline="", encoding="utf-8") as handle:
         rows = list(csv.reader(handle))
-    table = build_table(ds, category_columns=True)
+    table = build_table(ds, mention_columns=True)
     assert rows[0] == list(table.data.columns)
     assert len(rows) == ds.n_respondents + 1
     first = dict(zip(rows[0], rows[1]))
@@ -79,7 +79,7 @@ def test_xlsx_sheets_values_and_inert_text(tmp_path):
 
 
 def test_xlsx_numbers_and_missing_cells(tmp_path):
-    [path] = write_xlsx(small_dataset(), tmp_path / "w.xlsx", category_columns=True)
+    [path] = write_xlsx(small_dataset(), tmp_path / "w.xlsx", mention_columns=True)
     sheet = openpyxl.load_workbook(path)["data"]
     header = [c.value for c in sheet[1]]
     row = dict(zip(header, [c.value for c in sheet[6]]))  # respondent 105: support missing

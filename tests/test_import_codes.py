@@ -54,10 +54,10 @@ def test_dichotomies_and_spread(study, tmp_path):
     path = tmp_path / "wide.csv"
     path.write_text("rid,why_c3,why_c7,first,second\nR0,1,0,3,\nR1,0,1,Loss,\nR2,1,1,3,7\nR3,0,0,,\n")
     report = import_codes(study, "why", ["why_c*"], "ash", path, id_column="rid")
-    assert report.layout == "dichotomies"
+    assert report.layout == "flags"
     assert coded(study) == [("R0", 3), ("R1", 7), ("R2", 3), ("R2", 7)]
     report = import_codes(study, "why", ["first", "second"], "bryn", path, id_column="rid")
-    assert report.layout == "spread" and coded(study, "bryn") == coded(study, "ash")
+    assert report.layout == "mentions" and coded(study, "bryn") == coded(study, "ash")
     assert import_codes(study, "why", ["why_c*"], "ash", path, id_column="rid").already == 4  # nothing duplicated
     assert len(A.assignments(study, "why", ["ash"])) == 4
 
@@ -94,4 +94,4 @@ def test_needs_a_coder_and_a_real_column(study, tmp_path):
         import_codes(study, "why", ["nope"], "ash", path, id_column="rid")
     path.write_text("rid,a,b\nR0,3,2\n")
     with pytest.raises(OpenCodeError, match="column b: code 2 is not in the frame"):
-        import_codes(study, "why", ["a", "b"], "ash", path, id_column="rid", layout="spread")
+        import_codes(study, "why", ["a", "b"], "ash", path, id_column="rid", layout="mentions")

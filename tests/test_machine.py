@@ -17,7 +17,8 @@ from sklearn.model_selection import KFold, cross_val_predict
 from threadpoolctl import threadpool_limits
 
 from opencode.coding import assignments as A
-from opencode.coding import autocode, frames
+from opencode.coding import frames
+from opencode.coding import machine_coding as autocode
 from opencode.coding.features import term_lists
 from opencode.coding.machine import MachineCoder, _platt, code_metrics, coverage_curve, pick_threshold
 from opencode.errors import OpenCodeError

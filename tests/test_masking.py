@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from opencode.export.masking import mask_identifiers
+from opencode.files.masking import mask_identifiers
 
 
 @pytest.mark.parametrize(

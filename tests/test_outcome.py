@@ -5,7 +5,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from opencode.analysis.outcome import MIN_GROUP, make_outcome, one_vs_rest, parse_split, small_group_warning
+from opencode.analysis.drivers.outcome import MIN_GROUP, make_outcome, one_vs_rest, parse_split, small_group_warning
 from opencode.errors import OpenCodeError
 
 SUPPORT_LABELS = {1: "strongly oppose", 2: "oppose", 3: "neither", 4: "support", 5: "strongly support",

@@ -11,7 +11,7 @@ import pyreadstat
 import pytest
 from openpyxl import load_workbook
 
-from opencode.analysis import coded_data
+from opencode.analysis.tables import coded_data
 from opencode.cli import main
 from opencode.coding.assignments import mark_done
 from opencode.export.triple_s import read_triple_s
@@ -120,7 +120,7 @@ def test_triple_s_export_reads_back(study_path, tmp_path, capsys):
 
 def test_other_formats_and_verbatim_reminders(study_path, tmp_path, capsys):
     dta = tmp_path / "coded.dta"
-    assert run(capsys, "export", study_path, "--out", dta, "--question", "why", "--layout", "category")[0] == 0
+    assert run(capsys, "export", study_path, "--out", dta, "--question", "why", "--layout", "mentions")[0] == 0
     frame = pd.read_stata(dta, convert_categoricals=False)  # outside check: pandas reads Stata
     assert "why_m1" in frame.columns
     xlsx = tmp_path / "coded.xlsx"

@@ -14,10 +14,11 @@ import pandas as pd
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from opencode.analysis.agreement import CodingMatrix, measure_agreement
-from opencode.analysis.agreement_report import format_agreement_text
+from opencode.analysis.agreement.core import CodingMatrix, measure_agreement
+from opencode.analysis.agreement.report import format_agreement_text
 from opencode.coding import assignments as coding
 from opencode.coding import frames
+from opencode.analysis.agreement.study import question_agreement
 from opencode.coding import reliability as rel
 from opencode.demo_job import build_demo_study
 from opencode.errors import OpenCodeError
@@ -50,7 +51,7 @@ def test_draw_is_stored_reproducible_and_leaves_out_nonanswers(demo_copy, tmp_pa
         assert nonanswers and not nonanswers & set(first.verbatim_ids)
         assert first.params["population"] == len(pool) - len(nonanswers)
         audited = a.db.execute("SELECT actor, entity FROM audit WHERE action = 'draw-sample'").fetchall()
-        assert audited == [("opencode", "sample"), ("opencode", "sample")]
+        assert audited == [("oecode", "sample"), ("oecode", "sample")]
         whole = rel.draw_sample(a, "why", "all", percent=100, include_nonanswers=True)
         assert len(whole.verbatim_ids) == len(pool)
 
@@ -129,7 +130,7 @@ def test_assign_and_status_count_finished_verbatims(demo_copy, csv_sets):
     assert all(p.finished + p.remaining == len(sample.verbatim_ids) for p in status.progress)
     both = {respondents[v] for v in (first, second)} & set(sets["ash"]) & set(sets["bryn"])
     assert status.finished_by_all == len(both)
-    assert [a for a, _ in audited] == ["lead", "opencode"] and '"cy"' in audited[1][1]
+    assert [a for a, _ in audited] == ["lead", "oecode"] and '"cy"' in audited[1][1]
     text = rel.format_sample_status(status)
     assert "cy" in text and f"of {len(sample.verbatim_ids)}" in text
 
@@ -154,7 +155,7 @@ def test_agreement_from_the_study_matches_the_csv_and_sklearn(demo_copy, csv_set
     sets = csv_sets
     codes = frame_codes()
     with Study.open(demo_copy) as study:
-        result = rel.study_agreement(study, "why", ["ash", "bryn"], n_resamples=100, random_state=4)
+        result = question_agreement(study, "why", ["ash", "bryn"], n_resamples=100, random_state=4)
         labels = rel.code_labels(study, "why")
     # the library on the same assignments read straight from the file
     rows = [(rid, coder, c) for coder, by in sets.items() for rid, cs in by.items() for c in cs]
@@ -183,7 +184,7 @@ def test_agreement_on_a_sample_uses_only_its_verbatims(demo_copy, csv_sets):
     with Study.open(demo_copy) as study:
         sample = rel.draw_sample(study, "why", "rel1", percent=30, random_state=5)
         respondents = survey_data.verbatims(study, "why").set_index("verbatim_id")["respondent"]
-        result = rel.study_agreement(study, "why", "ash,bryn", sample="rel1", n_resamples=0)
+        result = question_agreement(study, "why", "ash,bryn", sample="rel1", n_resamples=0)
     in_sample = {respondents[v] for v in sample.verbatim_ids} & set(sets["ash"])
     assert result.n_pairable == len(in_sample) > 0
     assert result.units_per_coder == {"ash": len(in_sample), "bryn": len(in_sample)}
@@ -196,7 +197,7 @@ def test_the_machine_coder_joins_as_one_more_coder(demo_copy, csv_sets):
         chosen = sorted(sets["ash"])[:40]
         for i, rid in enumerate(chosen):  # machine suggestions held by final, as the autocoder writes them
             coding.assign(study, int(ids[rid]), 7 if i % 2 else 1, "final", source="machine", confidence=0.9)
-        result = rel.study_agreement(study, "why", "ash,machine", n_resamples=0)
+        result = question_agreement(study, "why", "ash,machine", n_resamples=0)
         assert "3" not in rel.coder_sets(study, "why", "ash,machine")["machine"]
     assert result.coders == ("ash", "machine") and result.n_pairable == 40
     machine = {rid: {7 if i % 2 else 1} for i, rid in enumerate(chosen)}
@@ -210,7 +211,7 @@ def test_single_coded_verbatims_are_counted_and_reported(demo_copy):
         uncoded = coding.uncoded_ids(study, "why", "ash", limit=3)
         for v in uncoded:
             coding.assign(study, v, 2, "ash")
-        result = rel.study_agreement(study, "why", ["ash", "bryn"], n_resamples=0)
+        result = question_agreement(study, "why", ["ash", "bryn"], n_resamples=0)
     assert result.n_single == 3 and result.n_pairable == 300 and result.units_per_coder["ash"] == 303
     text = format_agreement_text(result)
     assert "300 by two or more coders (compared); 3 by one coder only" in text
@@ -220,7 +221,7 @@ def test_single_coded_verbatims_are_counted_and_reported(demo_copy):
 def test_a_code_nobody_used_is_undefined_in_words(demo_copy):
     with Study.open(demo_copy) as study:
         frames.add_code(study, "why", "Parking near the branch", number=40)
-        result = rel.study_agreement(study, "why", ["ash", "bryn"], n_resamples=50)
+        result = question_agreement(study, "why", ["ash", "bryn"], n_resamples=50)
     unused = next(c for c in result.per_code if c.code == 40)
     assert unused.statistics["cohen_kappa"].value is None
     assert unused.statistics["cohen_kappa"].words == "undefined: no coder used this code"
@@ -238,7 +239,7 @@ def test_a_code_nobody_used_is_undefined_in_words(demo_copy):
 def test_agreement_bad_inputs_are_clear_errors(demo_copy, coders, sample, message):
     with Study.open(demo_copy) as study:
         with pytest.raises(OpenCodeError, match=message):
-            rel.study_agreement(study, "why", coders, sample=sample, n_resamples=0)
+            question_agreement(study, "why", coders, sample=sample, n_resamples=0)
 
 
 def test_a_coder_who_coded_none_of_the_sample_is_named(demo_copy):
@@ -248,6 +249,6 @@ def test_a_coder_who_coded_none_of_the_sample_is_named(demo_copy):
         coding.mark_done(study, sample.verbatim_ids[0], "cy")
         with pytest.raises(OpenCodeError, match="coder 'dee' has coded no verbatims of question 'why' in reliability "
                                                 "sample 'rel1'"):
-            rel.study_agreement(study, "why", "cy,dee", sample="rel1", n_resamples=0)
+            question_agreement(study, "why", "cy,dee", sample="rel1", n_resamples=0)
         with pytest.raises(OpenCodeError, match="no open question named 'nope'"):
-            rel.study_agreement(study, "nope", "ash,bryn")
+            question_agreement(study, "nope", "ash,bryn")

@@ -11,9 +11,9 @@ from pathlib import Path
 
 import pytest
 
-from opencode.analysis import coded_data
+from opencode.analysis.tables import coded_data
 from opencode.cli import main
-from opencode.coding.reliability import study_agreement
+from opencode.analysis.agreement.study import question_agreement
 from opencode.errors import OpenCodeError
 from opencode.export.report import CAUTIONS, ReportSection, build_report, example_verbatims
 from opencode.study.store import Study
@@ -34,7 +34,7 @@ def report(study_path, tmp_path_factory) -> tuple[Path, list[str]]:
     out = tmp_path_factory.mktemp("report-out") / "report.html"
     notes: list[str] = []
     with Study.open(study_path) as study:
-        agreement = {"why": study_agreement(study, "why", ["ash", "bryn"], n_resamples=50)}
+        agreement = {"why": question_agreement(study, "why", ["ash", "bryn"], n_resamples=50)}
         build_report(study, out, coder="ash", banner=["age_band"], agreement=agreement, notes=notes,
                      extra_sections=[ReportSection("Drivers of support", "<p id='extra-marker'>drivers here</p>")])
     return out, notes

@@ -7,7 +7,7 @@ from hypothesis import strategies as st
 from scipy.stats import chi2_contingency
 from statsmodels.stats.proportion import proportions_ztest
 
-from opencode.analysis.significance import chi_square_rows, effective_bases, kish_effective_base, two_proportion_z
+from opencode.analysis.tables.significance import chi_square_rows, effective_bases, kish_effective_base, two_proportion_z
 
 # Agresti, A. (2007) An Introduction to Categorical Data Analysis, 2nd ed.: party identification by gender,
 # Democrat / Independent / Republican. Published: Pearson X2 = 30.07, G2 = 30.02, df = 2.

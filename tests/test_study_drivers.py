@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from sklearn.linear_model import LogisticRegression
 
-from opencode.analysis import study_drivers as sdr
-from opencode.analysis.coded_data import banner_variable
-from opencode.analysis.univariate import presence
+from opencode.analysis.drivers import study as sdr
+from opencode.analysis.tables.coded_data import banner_variable
+from opencode.analysis.drivers.univariate import presence
 from opencode.demo_job import build_demo_study
 from opencode.errors import OpenCodeError
 from opencode.ingest.importer import ImportOptions, import_survey

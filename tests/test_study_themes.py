@@ -18,8 +18,8 @@ from sklearn.exceptions import ConvergenceWarning
 from sklearn.feature_extraction.text import TfidfTransformer
 from statsmodels.stats.multitest import multipletests
 
-from opencode.analysis import study_themes as sth
-from opencode.analysis.theme_format import p_value_text
+from opencode.analysis.themes import study as sth
+from opencode.analysis.themes.format import p_value_text
 from opencode.coding.frame_io import import_frame
 from opencode.coding.frames import edit_code, load_frame
 from opencode.coding.history import undo

@@ -10,8 +10,8 @@ from scipy.stats import chi2_contingency
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.proportion import proportions_ztest
 
-from opencode.analysis.significance import two_proportion_z
-from opencode.analysis.tables import (
+from opencode.analysis.tables.significance import two_proportion_z
+from opencode.analysis.tables.crosstab import (
     BannerVariable, Code, CodedQuestion, Net, SurveyWeight, banner_table, code_frequencies,
 )
 from opencode.errors import OpenCodeError

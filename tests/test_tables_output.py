@@ -6,8 +6,8 @@ import numpy as np
 import openpyxl
 import pytest
 
-from opencode.analysis.table_output import TABLE_CSS, format_table, layout_table, to_html, write_csv, write_xlsx
-from opencode.analysis.tables import BannerVariable, Code, CodedQuestion, Net, SurveyWeight, banner_table, code_frequencies
+from opencode.analysis.tables.output import TABLE_CSS, format_table, layout_table, to_html, write_csv, write_xlsx
+from opencode.analysis.tables.crosstab import BannerVariable, Code, CodedQuestion, Net, SurveyWeight, banner_table, code_frequencies
 from opencode.errors import OpenCodeError
 
 # OWASP "CSV Injection": text starting with = + - @ tab or carriage return must not run as a formula.

@@ -8,7 +8,7 @@ from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer
 from opencode.text.kwic import format_kwic, kwic
 from opencode.text.matrix import build_matrix
-from opencode.text.merges import allowed_distance, close_pairs, format_variants, suggest_variants
+from opencode.text.spelling_variants import allowed_distance, close_pairs, format_variants, suggest_variants
 from opencode.text.words import format_top_terms, top_terms
 
 TEXTS = [

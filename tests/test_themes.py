@@ -6,11 +6,11 @@ import scipy.sparse as sp
 from sklearn.decomposition import NMF, LatentDirichletAllocation
 from sklearn.feature_extraction.text import TfidfTransformer
 
-from opencode.analysis.coherence import top_term_indices
-from opencode.analysis.theme_stability import depth_jaccard, match_themes
-from opencode.analysis.theme_synthetic import planted_corpus
-from opencode.analysis.themes import ThemeFinder
+from opencode.analysis.themes.coherence import top_term_indices
+from opencode.analysis.themes.stability import depth_jaccard, match_themes
+from opencode.analysis.themes.finder import ThemeFinder
 from opencode.errors import OpenCodeError
+from synthetic_themes import planted_corpus
 
 
 @pytest.fixture(scope="module")

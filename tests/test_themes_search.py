@@ -8,11 +8,11 @@ import pytest
 from sklearn.decomposition._nmf import _initialize_nmf
 from sklearn.feature_extraction.text import TfidfTransformer
 
-from opencode.analysis.theme_search import KSearch, choose_k, parse_k_range
-from opencode.analysis.theme_stability import average_jaccard, depth_jaccard, model_agreement, stability
-from opencode.analysis.theme_synthetic import planted_corpus
-from opencode.analysis.themes import leading_svd, nndsvd_start
+from opencode.analysis.themes.search import KSearch, choose_k, parse_k_range
+from opencode.analysis.themes.stability import average_jaccard, depth_jaccard, model_agreement, stability
+from opencode.analysis.themes.finder import leading_svd, nndsvd_start
 from opencode.errors import OpenCodeError
+from synthetic_themes import planted_corpus
 
 
 def test_average_jaccard_worked_example():

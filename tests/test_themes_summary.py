@@ -11,13 +11,13 @@ from scipy.stats import chi2_contingency
 from sklearn.preprocessing import normalize
 from statsmodels.stats.multitest import multipletests
 
-from opencode.analysis.theme_charts import plot_k_curve, plot_theme_terms
-from opencode.analysis.theme_format import format_comparison, format_k_search, format_prevalence, format_themes
-from opencode.analysis.theme_search import KSearch
-from opencode.analysis.theme_summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
+from opencode.analysis.themes.charts import plot_k_curve, plot_theme_terms
+from opencode.analysis.themes.format import format_comparison, format_k_search, format_prevalence, format_themes
+from opencode.analysis.themes.search import KSearch
+from opencode.analysis.themes.summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
                                              theme_prevalence, unexplained_verbatims)
-from opencode.analysis.theme_synthetic import planted_corpus
 from opencode.errors import OpenCodeError
+from synthetic_themes import planted_corpus
 
 
 @pytest.fixture(scope="module")

@@ -45,7 +45,7 @@ def test_metadata_elements_and_attributes_follow_the_standard(tmp_path):
     root = ET.fromstring(text)
     assert root.tag == "sss" and root.attrib == {"version": "2.0"}
     assert [child.tag for child in root] == ["date", "time", "origin", "survey"]
-    assert (root.findtext("date"), root.findtext("time"), root.findtext("origin")) == ("2024-05-01", "09:30:00", "opencode")
+    assert (root.findtext("date"), root.findtext("time"), root.findtext("origin")) == ("2024-05-01", "09:30:00", "oecode")
     survey = root.find("survey")
     assert [child.tag for child in survey] == ["name", "title", "record"]
     record = survey.find("record")

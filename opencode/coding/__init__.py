@@ -19,7 +19,7 @@ API for the desk and other screens (each single-verbatim call is a few indexed q
     frame_io.import_frame / export_frame;  codebook.write_codebook
     import_codes.import_codes(study, question, columns, coder, source_path, ...)
     rules.parse_rule / rule_hits / apply_rules / set_rule
-    autocode.train / load_model / suggest_one(study, verbatim_id) / suggest / apply_machine /
+    machine_coding.train / load_model / suggest_one(study, verbatim_id) / suggest / apply_machine /
         learning_queue / second_look_queue / code_report / curve
 
 The `final` coder holds adjudicated codes. Machine and rule codes are suggestions until a person accepts them.

@@ -131,7 +131,7 @@ def take_union(study: Study, question: str, verbatim_id: int, coders: str | Sequ
 
 
 def accept_agreed(study: Study, question: str, coders: str | Sequence[str], sample: str | None = None,
-                  actor: str = "opencode") -> int:
+                  actor: str = "oecode") -> int:
     """Write to final every verbatim that all the coders coded with the same codes, unless final has settled it
     already (or it holds a retired code); one transaction and one undo step for final. Returns the count."""
     sets = coder_sets(study, question, coders, sample)

@@ -13,8 +13,8 @@ from pathlib import Path
 
 from opencode.coding.frames import Code, Frame, load_frame
 from opencode.errors import OpenCodeError
-from opencode.export.masking import mask_identifiers
-from opencode.export.safe_write import atomic_open
+from opencode.files.masking import mask_identifiers
+from opencode.files.safe_write import atomic_open
 from opencode.study import assignments_store as astore
 from opencode.study import survey_data
 from opencode.study.store import Study

@@ -17,8 +17,8 @@ from typing import Any
 from opencode.coding.frames import KINDS, SPECIALS, RESERVED_HOTKEYS, frame_id, load_frame
 from opencode.coding.history import Change
 from opencode.errors import OpenCodeError
-from opencode.export.cell_guard import guard_cell
-from opencode.export.safe_write import atomic_open
+from opencode.files.cell_guard import guard_cell
+from opencode.files.safe_write import atomic_open
 from opencode.study import frames_store as fstore
 from opencode.study.store import Study
 
@@ -164,7 +164,7 @@ def _check_structure(parsed: list[dict[str, Any]], existing: dict[int, dict[str,
                                 "level")
 
 
-def import_frame(study: Study, question: str, path: str | Path, actor: str = "opencode") -> dict[str, int]:
+def import_frame(study: Study, question: str, path: str | Path, actor: str = "oecode") -> dict[str, int]:
     """Add or update codes from a frame file (by number); returns counts of codes added and updated."""
     path = Path(path)
     parsed = [_parse(where, record) for where, record in _read_records(path)]

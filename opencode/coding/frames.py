@@ -16,7 +16,7 @@ from opencode.study import assignments_store as astore
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 KINDS = ("code", "net")
 SPECIALS = ("nonanswer", "other", "dontknow")
@@ -95,11 +95,11 @@ def frame_id(study: Study, question: str, create: bool = False) -> int:
     with study.transaction():
         new_id = fstore.frame_by_name(study, question) or fstore.insert_frame(study, question)
         fstore.attach_question(study, variable.id, new_id)
-        study.audit("opencode", "create-frame", "frame", new_id, {"question": question})
+        study.audit("oecode", "create-frame", "frame", new_id, {"question": question})
     return new_id
 
 
-def share_frame(study: Study, question: str, with_question: str, actor: str = "opencode") -> None:
+def share_frame(study: Study, question: str, with_question: str, actor: str = "oecode") -> None:
     """Make `question` use the frame of `with_question` (for questions coded with one frame)."""
     target = frame_id(study, with_question)
     variable = survey_data.get_question(study, question)
@@ -189,7 +189,7 @@ def _parent_id(study: Study, fid: int, number: int, kind: str, net: int | None) 
 def add_code(study: Study, question: str, label: str, number: int | None = None, *, kind: str = "code",
              net: int | None = None, hotkey: str | None = None, description: str = "", include: str = "",
              exclude: str = "", examples: list[str] | tuple[str, ...] = (), special: str | None = None,
-             rule: str = "", actor: str = "opencode") -> Code:
+             rule: str = "", actor: str = "oecode") -> Code:
     """Add a code (or a net) to a question's frame; the number defaults to one past the highest."""
     fid = frame_id(study, question, create=True)
     with study.transaction():
@@ -210,7 +210,7 @@ def add_code(study: Study, question: str, label: str, number: int | None = None,
     return get_code(study, question, number)
 
 
-def edit_code(study: Study, question: str, number: int, actor: str = "opencode", **fields: Any) -> Code:
+def edit_code(study: Study, question: str, number: int, actor: str = "oecode", **fields: Any) -> Code:
     """Change a code's label, description, include/exclude notes, examples, hotkey, special or rule."""
     unknown = set(fields) - set(FIELDS)
     if unknown:
@@ -236,7 +236,7 @@ def edit_code(study: Study, question: str, number: int, actor: str = "opencode",
     return get_code(study, question, number)
 
 
-def set_net(study: Study, question: str, number: int, net: int | None, actor: str = "opencode") -> Code:
+def set_net(study: Study, question: str, number: int, net: int | None, actor: str = "oecode") -> Code:
     """Put a code or net inside a net (None takes it out)."""
     code = get_code(study, question, number)
     fid = frame_id(study, question)
@@ -247,7 +247,7 @@ def set_net(study: Study, question: str, number: int, net: int | None, actor: st
     return get_code(study, question, number)
 
 
-def retire_code(study: Study, question: str, number: int, actor: str = "opencode", active: bool = False) -> Code:
+def retire_code(study: Study, question: str, number: int, actor: str = "oecode", active: bool = False) -> Code:
     """Retire a code (kept with its assignments, no longer offered for coding); active=True restores it."""
     code = get_code(study, question, number)
     with study.transaction():
@@ -257,7 +257,7 @@ def retire_code(study: Study, question: str, number: int, actor: str = "opencode
     return get_code(study, question, number)
 
 
-def renumber_code(study: Study, question: str, number: int, new_number: int, actor: str = "opencode") -> Code:
+def renumber_code(study: Study, question: str, number: int, new_number: int, actor: str = "oecode") -> Code:
     """Give a code a new number; assignments follow (they point at the code, not at its number)."""
     code = get_code(study, question, number)
     fid = frame_id(study, question)
@@ -285,7 +285,7 @@ def _move_assignments(study: Study, change: Change, source_id: int, target_id: i
     return moved
 
 
-def merge_codes(study: Study, question: str, number: int, into: int, actor: str = "opencode") -> Code:
+def merge_codes(study: Study, question: str, number: int, into: int, actor: str = "oecode") -> Code:
     """Merge code `number` into code `into`: its assignments (and children, for nets) move; it is removed."""
     source = get_code(study, question, number)
     target = get_code(study, question, into)
@@ -314,7 +314,7 @@ def merge_codes(study: Study, question: str, number: int, into: int, actor: str 
 
 
 def delete_code(study: Study, question: str, number: int, merge_into: int | None = None,
-                actor: str = "opencode") -> None:
+                actor: str = "oecode") -> None:
     """Delete a code; one in use (or a net with members) needs a merge target, which receives its assignments."""
     code = get_code(study, question, number)
     if merge_into is not None:

@@ -1,7 +1,7 @@
 """Bring existing codes into a study: from the survey file (or a variable already in the study).
 
-Layouts: `delimited` (one column, cells like "3;7" or "Theft, Loss"), `dichotomies` (one 0/1 column per
-code), `spread` (columns code 1..k each holding one code) and `long` (one row per respondent and coder,
+Layouts: `delimited` (one column, cells like "3;7" or "Theft, Loss"), `flags` (one 0/1 column per
+code), `mentions` (columns 1..k each holding one code) and `long` (one row per respondent and coder,
 with a coder column and optionally a question column; the demo's double-coded file). Cells hold code
 numbers or labels; labels match case- and space-insensitively. Unknown labels are an error naming the row
 and label unless `create` adds them as new codes. Imported codes are hand codes and the verbatims they
@@ -27,7 +27,7 @@ from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
 
-LAYOUTS = ("auto", "delimited", "dichotomies", "spread", "long")
+LAYOUTS = ("auto", "delimited", "flags", "mentions", "long")
 _SPLIT = re.compile(r"\s*[;,|]\s*")
 _TRAILING_NUMBER = re.compile(r"(\d+)$")
 _BLANK = {"", "nan", "none", "null", "\\n", "."}
@@ -96,7 +96,7 @@ def _cell_text(value) -> str:
     return "" if text.lower() in _BLANK else text
 
 
-def _is_dichotomy(frame: pd.DataFrame, columns: list[str]) -> bool:
+def _is_flags(frame: pd.DataFrame, columns: list[str]) -> bool:
     values = {_cell_text(v) for c in columns for v in frame[c].tolist()} - {""}
     return bool(values) and values <= {"0", "1", "1.0", "0.0"}
 
@@ -157,7 +157,7 @@ class _CodeMatcher:
 def import_codes(study: Study, question: str, columns: list[str], coder: str | None = None,
                  source_path: str | Path | None = None, *, id_column: str | None = None,
                  coder_column: str | None = None, question_column: str | None = None, layout: str = "auto",
-                 create: bool = False, actor: str = "opencode") -> CodesImportReport:
+                 create: bool = False, actor: str = "oecode") -> CodesImportReport:
     """Import codes for a question from `columns` of a file (or of the study's own variables)."""
     if layout not in LAYOUTS:
         raise OpenCodeError(f"layout {layout!r} is not one of {', '.join(LAYOUTS)}")
@@ -182,7 +182,7 @@ def import_codes(study: Study, question: str, columns: list[str], coder: str | N
     else:
         coders = np.full(len(frame), coder, dtype=object)
     if layout == "auto":
-        layout = "delimited" if len(names) == 1 else ("dichotomies" if _is_dichotomy(frame, names) else "spread")
+        layout = "delimited" if len(names) == 1 else ("flags" if _is_flags(frame, names) else "mentions")
     if layout in ("delimited", "long") and len(names) != 1:
         raise OpenCodeError(f"{source.origin}: the {layout} layout reads one column; got {', '.join(names)}")
     report = CodesImportReport(layout)
@@ -232,7 +232,7 @@ def _row_codes(matcher: _CodeMatcher, frame: pd.DataFrame, names: list[str], i: 
                labels: dict[str, str]) -> list[int]:
     if layout in ("delimited", "long"):
         return matcher.cell(_cell_text(frame[names[0]].iat[i]), f"{where}, column {names[0]}")
-    if layout == "spread":
+    if layout == "mentions":
         return [code for name in names for code in matcher.cell(_cell_text(frame[name].iat[i]),
                                                                  f"{where}, column {name}")]
     codes = []

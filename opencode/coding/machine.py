@@ -18,7 +18,6 @@ import scipy.sparse as sp
 from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import KFold
 
-from opencode.analysis.agreement_stats import cohen_kappa_table
 from opencode.coding.features import TermVectorizer, term_lists, terms_of
 from opencode.errors import OpenCodeError
 
@@ -75,8 +74,10 @@ def code_metrics(y: np.ndarray, predicted: np.ndarray) -> dict[str, np.ndarray]:
         precision = np.where(tp + fp > 0, tp / (tp + fp), 0.0)
         recall = np.where(tp + fn > 0, tp / (tp + fn), 0.0)
         f1 = np.where(precision + recall > 0, 2 * precision * recall / (precision + recall), 0.0)
-    tables = np.stack([np.stack([tp, fn], -1), np.stack([fp, tn], -1)], -2)  # (k, 2, 2): rows human, cols machine
-    return {"precision": precision, "recall": recall, "f1": f1, "kappa": cohen_kappa_table(tables),
+        # Cohen's kappa of a 2x2 table in closed form: 2(ad - bc) / ((a+b)(b+d) + (a+c)(c+d)), Cohen (1960).
+        denominator = (tp + fp) * (fp + tn) + (tp + fn) * (fn + tn)
+        kappa = np.where(denominator > 0, 2 * (tp * tn - fn * fp) / denominator, np.nan)
+    return {"precision": precision, "recall": recall, "f1": f1, "kappa": kappa,
             "positives": (tp + fn).astype(int)}
 
 

@@ -1,4 +1,4 @@
-"""Reliability in the study: draw and assign blind double-coding samples, track them, measure agreement.
+"""Reliability in the study: draw and assign blind double-coding samples, track them, gather coders' codes.
 
 Library calls for the CLI (`oecode sample`, `oecode agree`) and the desk:
 
@@ -7,7 +7,7 @@ Library calls for the CLI (`oecode sample`, `oecode agree`) and the desk:
 - `sample_status(study, question, name)` says who has finished what ("finished" is the coding library's
   "coded": a hand code or a done mark);
 - `is_blind(study, question, coder, verbatim_id)` tells the desk to hide other coders' codes;
-- `study_agreement(study, question, coders, sample=None)` measures agreement from the study's codes.
+- `coder_sets(study, question, coders, sample=None)` gives each coder's codes, which agreement measures.
 
 Coders compared are named people (their hand codes; suggestions they hold are not their decisions) or
 MACHINE ("machine"): the machine coder's suggestions (source=machine, whichever coder holds them), which
@@ -23,7 +23,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from opencode.analysis.agreement import AgreementResult, CodingMatrix, measure_agreement
 from opencode.coding import assignments as coding
 from opencode.coding.assignments import FINAL
 from opencode.coding.frames import load_frame
@@ -34,7 +33,7 @@ from opencode.study import desk_queries as dq
 from opencode.study import samples_store as sstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 MACHINE = "machine"
 MAX_STRATA = 50  # a stratifying variable with more values than this is almost surely not closed-ended
@@ -103,7 +102,7 @@ def _allocation(labels: list[str | None], chosen: np.ndarray) -> list[list[Any]]
 
 def draw_sample(study: Study, question: str, name: str, *, n: int | None = None, percent: float | None = None,
                 strata: str | None = None, random_state: int | None = 0, include_nonanswers: bool = False,
-                actor: str = "opencode") -> ReliabilitySample:
+                actor: str = "oecode") -> ReliabilitySample:
     """Draw n (or percent %) of a question's verbatims, simple random or stratified by a closed-ended variable,
     and store it under `name` (audited). Non-answers are left out unless `include_nonanswers`."""
     name = _check_name(name)
@@ -170,7 +169,7 @@ def parse_coders(coders: str | Sequence[str], least: int = 2) -> list[str]:
 
 
 def assign_sample(study: Study, question: str, name: str, coders: str | Sequence[str],
-                  actor: str = "opencode") -> ReliabilitySample:
+                  actor: str = "oecode") -> ReliabilitySample:
     """Give a sample to coders, who then code its verbatims blind; it must end up with two or more coders."""
     row, _ = _stored(study, question, name)
     wanted = parse_coders(coders, least=1)
@@ -287,29 +286,6 @@ def _nothing_coded(study: Study, question: str, question_id: int, coder: str, sa
     where = f"question {question!r}" + (f" in reliability sample {sample!r}" if sample else "")
     if coder == MACHINE:
         return f"the machine coder (source=machine suggestions) has coded no verbatims of {where}; " \
-               "train and apply it first (oecode autocode)"
+               "train and apply it first (oecode model train, then oecode model apply)"
     present = ", ".join(c for c, _ in astore.coders_of_question(study, question_id)) or "none yet"
     return f"coder {coder!r} has coded no verbatims of {where} (coders with hand codes here: {present})"
-
-
-def coding_matrix(study: Study, question: str, coders: str | Sequence[str], sample: str | None = None
-                  ) -> CodingMatrix:
-    """The agreement library's CodingMatrix for the question: units are respondent ids, codes the frame's codes
-    (nets left out), restricted to a sample when given, else every verbatim coded by any of the coders."""
-    sets = coder_sets(study, question, coders, sample)
-    labels = code_labels(study, question)
-    question_id = survey_data.get_question(study, question).id
-    keys = {v: k for k, v in astore.verbatim_ids_by_respondent(study, question_id).items()}
-    rows = [(keys[v], coder, number) for coder, coded in sets.items() for v, numbers in coded.items()
-            for number in sorted(numbers)]
-    coded = {coder: [keys[v] for v in coded] for coder, coded in sets.items()}
-    return CodingMatrix.from_assignments(rows, coded, coders=list(sets), codes=sorted(labels))
-
-
-def study_agreement(study: Study, question: str, coders: str | Sequence[str], sample: str | None = None, *,
-                    n_resamples: int = 1000, random_state: int | None = 0, confidence: float = 0.95,
-                    top: int = 10) -> AgreementResult:
-    """Agreement between coders on a question (per code and across the frame), with the frame's labels."""
-    matrix = coding_matrix(study, question, coders, sample)
-    return measure_agreement(matrix, code_labels=code_labels(study, question), n_resamples=n_resamples,
-                             confidence=confidence, random_state=random_state, top=top)

@@ -367,7 +367,7 @@ def apply_rules(study: Study, question: str, coder: str = "final", codes: list[i
 
 
 def set_rule(study: Study, question: str, number: int, rule: str, analyzer: Any = None,
-             actor: str = "opencode") -> None:
+             actor: str = "oecode") -> None:
     """Check and store a code's rule (an empty rule removes it)."""
     if rule.strip():
         parse_rule(rule, analyzer or default_analyzer(study, question), number)

@@ -10,8 +10,8 @@ from opencode.demo_job import run_demo
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     demo = subparsers.add_parser("demo", help="run the whole job on the bundled demo survey")
-    demo.add_argument("--out", default="opencode-demo", help="folder for the demo study and outputs "
-                      "(default: ./opencode-demo)")
+    demo.add_argument("--out", default="oecode-demo", help="folder for the demo study and outputs "
+                      "(default: ./oecode-demo)")
     demo.set_defaults(handler=run)
 
 

@@ -5,11 +5,11 @@ from __future__ import annotations
 import argparse
 import csv
 
-from opencode.analysis import study_drivers as sdr
+from opencode.analysis.drivers import study as sdr
 from opencode.commands.common import progress_bar
 from opencode.errors import OpenCodeError
-from opencode.export.cell_guard import guard_row
-from opencode.export.safe_write import atomic_open
+from opencode.files.cell_guard import guard_row
+from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
 
 USAGE_NOTE = """splits (side 1 first, then side 0):
@@ -64,7 +64,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--csv", metavar="PATH", help="write the whole ranking table as CSV")
     parser.add_argument("--indicators", nargs="+", metavar="TERM", help="store 0/1 variables '<question>_t_<term>' "
                         "for these terms, for tables and exports")
-    parser.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
     parser.set_defaults(handler=run_drivers)
 
 

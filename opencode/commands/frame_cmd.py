@@ -8,7 +8,7 @@ from opencode.coding import codebook, frame_io, frames, history, import_codes, r
 from opencode.coding.assignments import code_counts
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 ACTIONS = ("list", "add", "edit", "net", "merge", "renumber", "retire", "restore", "delete", "share", "import",
            "export", "codebook", "import-codes", "rule", "undo", "redo")
@@ -64,7 +64,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _actor(args: argparse.Namespace) -> str:
-    return args.actor or args.coder or "opencode"
+    return args.actor or args.coder or "oecode"
 
 
 def _list(study: Study, args: argparse.Namespace) -> None:

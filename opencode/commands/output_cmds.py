@@ -6,13 +6,13 @@ import argparse
 import sys
 from pathlib import Path
 
-from opencode.analysis import coded_data
-from opencode.analysis.study_tables import TABLE_SUFFIXES, question_tables, write_tables
-from opencode.analysis.table_output import format_table
+from opencode.analysis.tables import coded_data
+from opencode.analysis.tables.study import TABLE_SUFFIXES, question_tables, write_tables
+from opencode.analysis.tables.output import format_table
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export import triple_s
-from opencode.export.safe_write import check_writable_target
+from opencode.files.safe_write import check_writable_target
 from opencode.export.study_export import EXPORT_FORMATS, export_format, export_study
 from opencode.study.store import Study
 RAW_REMINDER = ("reminder: verbatims can identify respondents; your organisation's data-protection rules come "
@@ -41,8 +41,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     export.add_argument("--question", nargs="+", action="extend", metavar="Q",
                         help="questions to export (default: every question with a code frame)")
     _coding_options(export)
-    export.add_argument("--layout", choices=("dichotomy", "category"), default="dichotomy",
-                        help="dichotomy: a 0/1 column per code and net; category: also Q_m1..Q_mk code columns")
+    export.add_argument("--layout", choices=("flags", "mentions"), default="flags",
+                        help="flags: a 0/1 column per code and net; mentions: also Q_m1..Q_mk columns holding code numbers")
     export.add_argument("--verbatims", choices=("omit", "masked", "raw"), default="omit",
                         help="include the verbatim text: masked (e-mails, phones, web addresses) or raw")
     closed = export.add_mutually_exclusive_group()
@@ -129,7 +129,8 @@ def run_export(args: argparse.Namespace) -> int:
 
 
 def run_report(args: argparse.Namespace) -> int:
-    from opencode.coding.reliability import parse_coders, study_agreement
+    from opencode.analysis.agreement.study import question_agreement
+    from opencode.coding.reliability import parse_coders
     from opencode.export.report import build_report
 
     check_writable_target(args.out)
@@ -139,7 +140,7 @@ def run_report(args: argparse.Namespace) -> int:
         agreement = None
         if args.coders:
             coders = parse_coders(args.coders)
-            agreement = {q: study_agreement(study, q, coders) for q in questions}
+            agreement = {q: question_agreement(study, q, coders) for q in questions}
         path = build_report(study, args.out, questions=questions, banner=args.banner, coder=args.coder,
                             include_suggestions=args.with_suggestions, weight=args.weight, unweighted=args.unweighted,
                             agreement=agreement, quotes_per_code=max(0, args.quotes),

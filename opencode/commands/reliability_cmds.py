@@ -5,10 +5,11 @@ from __future__ import annotations
 import argparse
 import html
 
-from opencode.analysis.agreement_report import format_agreement_html, format_agreement_text, write_agreement_csv
+from opencode.analysis.agreement.report import format_agreement_html, format_agreement_text, write_agreement_csv
+from opencode.analysis.agreement.study import question_agreement
 from opencode.coding import adjudication, reliability
 from opencode.errors import OpenCodeError
-from opencode.export.safe_write import atomic_open
+from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
 
 SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
@@ -29,7 +30,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--seed", type=int, default=0, help="draw: the random seed (default 0; same seed, same sample)")
     s.add_argument("--include-nonanswers", action="store_true", help="draw: also draw non-answers")
     s.add_argument("--coders", help="assign: the coders, comma-separated (e.g. ash,bryn)")
-    s.add_argument("--actor", default="opencode", help="who does this (for the audit trail)")
+    s.add_argument("--actor", default="oecode", help="who does this (for the audit trail)")
     s.set_defaults(handler=run_sample)
 
     a = subparsers.add_parser("agree", help="agreement between coders (kappa, alpha, AC1) and adjudication into final")
@@ -49,7 +50,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--verbatim", type=int, help="adjudicate take / union / set: the verbatim id")
     a.add_argument("--side", help="adjudicate take: whose codes final takes")
     a.add_argument("--codes", help="adjudicate set: final's codes, comma-separated numbers (empty: no code)")
-    a.add_argument("--actor", default="opencode", help="who adjudicates (for the audit trail)")
+    a.add_argument("--actor", default="oecode", help="who adjudicates (for the audit trail)")
     a.set_defaults(handler=run_agree)
 
 
@@ -123,7 +124,7 @@ def run_agree(args: argparse.Namespace) -> int:
         if args.adjudicate:
             _adjudicate(study, args)
             return 0
-        result = reliability.study_agreement(study, args.question, args.coders, args.sample,
+        result = question_agreement(study, args.question, args.coders, args.sample,
                                              n_resamples=args.resamples, random_state=args.seed, top=args.top)
         where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
         print(f"Agreement on {where}\n")

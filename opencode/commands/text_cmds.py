@@ -11,7 +11,7 @@ from opencode.commands.common import progress_bar
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.text import study_text as st
-from opencode.text.merges import format_variants, suggest_variants
+from opencode.text.spelling_variants import format_variants, suggest_variants
 from opencode.text.phrases import format_phrase_suggestions
 from opencode.text.words import format_top_terms, top_terms
 
@@ -46,7 +46,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     ph.add_argument("values", nargs="*", help="add/remove: phrases in quotes; accept: ranks from the last list")
     ph.add_argument("--min-count", type=int, default=5, help="suggest: pairs seen at least this often (default 5)")
     ph.add_argument("--top", type=int, default=30, help="suggest: how many suggestions (default 30)")
-    ph.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    ph.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
     ph.set_defaults(handler=run_phrases)
 
     lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language; "
@@ -59,7 +59,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     where.add_argument("--study-default", action="store_true",
                        help="the study's default lexicon (used by questions without their own)")
     lex.add_argument("--remove", action="store_true", help="exception: drop the word's stem exception")
-    lex.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    lex.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
     lex.set_defaults(handler=run_lexicon)
 
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 import argparse
 import sys
 
-from opencode.analysis import study_themes as sth
-from opencode.analysis.theme_charts import plot_k_curve, plot_theme_terms
-from opencode.analysis.theme_format import format_comparison
-from opencode.analysis.themes import SHORT_TEXT_NOTE
+from opencode.analysis.themes import study as sth
+from opencode.analysis.themes.charts import plot_k_curve, plot_theme_terms
+from opencode.analysis.themes.format import format_comparison
+from opencode.analysis.themes.finder import SHORT_TEXT_NOTE
 from opencode.commands.common import progress_bar
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
@@ -48,7 +48,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("values", nargs="*", metavar="ARGS", help="run ids (show, compare, delete) or RUN_ID THEME "
                         "(promote)")
     parser.add_argument("--question", help="the open question (needed by fit; list and promote accept it)")
-    parser.add_argument("--actor", default="opencode", help="who makes the change (for the audit trail)")
+    parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
     fit = parser.add_argument_group("fit")
     size = fit.add_mutually_exclusive_group()
     size.add_argument("--k", type=int, help="the number of themes (default 10)")

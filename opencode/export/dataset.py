@@ -1,7 +1,7 @@
 """The input every exporter takes (a coded dataset) and the two table layouts built from it.
 
 The study maps itself onto `CodedDataset`; the writers (tabular, spss_stata, triple_s) only read it.
-Layouts: multiple dichotomy (one 0/1 indicator per code and per net, `Q_c3`) and multiple category
+Layouts: `flags` (one 0/1 indicator per code and per net, `Q_c3`) and `mentions`
 (`Q_m1..Q_mk` holding the code numbers a respondent got, with value labels).
 """
 
@@ -19,7 +19,8 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.masking import mask_identifiers
+from opencode.analysis.tables.dataset import ClosedVariable, CodedDataset, CodedQuestion, FrameCode
+from opencode.files.masking import mask_identifiers
 
 VerbatimMode = Literal["omit", "masked", "raw"]
 VERBATIM_MODES = ("omit", "masked", "raw")
@@ -33,64 +34,6 @@ _RESERVED = {
     "_all", "_b", "byte", "_coef", "_cons", "double", "float", "if", "in", "int", "long", "_n", "_pi",
     "_pred", "_rc", "_skip", "strl", "using",
 }
-
-
-@dataclass(frozen=True)
-class FrameCode:
-    """One entry of a code frame: a code, or a net (a code whose members roll up into it)."""
-
-    code: int
-    label: str
-    net: int | None = None
-    is_net: bool = False
-
-
-@dataclass
-class CodedQuestion:
-    """One open question: its code frame, each respondent's codes and optionally the verbatims.
-
-    `codes` is aligned with the dataset's respondent ids (one iterable of code numbers per respondent)
-    or a mapping from respondent id to codes (respondents left out have no codes).
-    """
-
-    name: str
-    label: str
-    frame: Sequence[FrameCode]
-    codes: Sequence[Iterable[int]] | Mapping[str | int, Iterable[int]]
-    verbatims: Sequence[str | None] | None = None
-
-
-@dataclass
-class ClosedVariable:
-    """A closed-ended variable carried along for merging and tabulation (numeric codes)."""
-
-    name: str
-    values: Sequence[float | int | None]
-    label: str = ""
-    value_labels: Mapping[int | float, str] = field(default_factory=dict)
-    missing_codes: Sequence[int | float] = ()
-
-
-@dataclass
-class CodedDataset:
-    """Respondent ids, coded open questions and closed-ended variables, ready for export."""
-
-    respondent_ids: Sequence[str | int]
-    questions: Sequence[CodedQuestion]
-    closed: Sequence[ClosedVariable] = ()
-    id_name: str = "respondent_id"
-    title: str = ""
-
-    def __post_init__(self) -> None:
-        self.respondent_ids = list(self.respondent_ids)
-        self.questions = list(self.questions)
-        self.closed = list(self.closed)
-        _validate(self)
-
-    @property
-    def n_respondents(self) -> int:
-        """Number of respondents (rows of every layout)."""
-        return len(self.respondent_ids)
 
 
 @dataclass
@@ -113,72 +56,6 @@ class QuestionCodes:
     indicators: np.ndarray
     rows: np.ndarray
     assigned: np.ndarray
-
-
-def _validate(ds: CodedDataset) -> None:
-    """Raise OpenCodeError naming the respondent, question or code that makes the dataset unusable."""
-    ids = ds.respondent_ids
-    if not ids:
-        raise OpenCodeError("export: the dataset has no respondents")
-    kinds = {type(i) for i in ids}
-    if not (kinds <= {str} or all(isinstance(i, (int, np.integer)) and not isinstance(i, bool) for i in ids)):
-        found = sorted(k.__name__ for k in kinds)
-        raise OpenCodeError(f"export: respondent ids must be all text or all whole numbers, got {found}")
-    seen: set = set()
-    for i in ids:
-        if i in seen:
-            raise OpenCodeError(f"export: respondent id {i!r} appears more than once")
-        seen.add(i)
-    names: set[str] = set()
-    for q in ds.questions:
-        if q.name.lower() in names:
-            raise OpenCodeError(f"export: question name {q.name!r} is used twice")
-        names.add(q.name.lower())
-        _validate_frame(q)
-        if q.verbatims is not None and len(q.verbatims) != len(ids):
-            raise OpenCodeError(
-                f"export: question {q.name!r} has {len(q.verbatims)} verbatims for {len(ids)} respondents"
-            )
-        if not isinstance(q.codes, Mapping) and len(q.codes) != len(ids):
-            raise OpenCodeError(
-                f"export: question {q.name!r} has codes for {len(q.codes)} respondents, expected {len(ids)}"
-            )
-        if isinstance(q.codes, Mapping):
-            unknown = [r for r in q.codes if r not in seen]
-            if unknown:
-                raise OpenCodeError(f"export: question {q.name!r} has codes for unknown respondent id {unknown[0]!r}")
-    for v in ds.closed:
-        if v.name.lower() in names:
-            raise OpenCodeError(f"export: variable name {v.name!r} is used twice")
-        names.add(v.name.lower())
-        if len(v.values) != len(ids):
-            raise OpenCodeError(f"export: variable {v.name!r} has {len(v.values)} values for {len(ids)} respondents")
-
-
-def _validate_frame(q: CodedQuestion) -> None:
-    """Codes are unique positive whole numbers and every net reference points at a net of the frame."""
-    if not q.frame:
-        raise OpenCodeError(f"export: question {q.name!r} has an empty code frame")
-    by_code: dict[int, FrameCode] = {}
-    for c in q.frame:
-        if isinstance(c.code, bool) or not isinstance(c.code, (int, np.integer)) or c.code < 1:
-            raise OpenCodeError(f"export: question {q.name!r}: code {c.code!r} must be a whole number of 1 or more")
-        if c.code in by_code:
-            raise OpenCodeError(f"export: question {q.name!r}: code {c.code} appears twice in the code frame")
-        by_code[c.code] = c
-    for c in q.frame:
-        parent = by_code.get(c.net) if c.net is not None else None
-        if c.net is not None and (parent is None or not parent.is_net):
-            raise OpenCodeError(
-                f"export: question {q.name!r}: code {c.code} names net {c.net}, which is not a net of the frame"
-            )
-    for c in q.frame:
-        chain, node = {c.code}, c
-        while node.net is not None:
-            if node.net in chain:
-                raise OpenCodeError(f"export: question {q.name!r}: net {node.net} contains itself")
-            chain.add(node.net)
-            node = by_code[node.net]
 
 
 def _ascii_name(text: str) -> str:
@@ -331,7 +208,7 @@ def _closed_column(v: ClosedVariable) -> np.ndarray:
 def build_table(
     ds: CodedDataset,
     *,
-    category_columns: bool = False,
+    mention_columns: bool = False,
     verbatims: VerbatimMode = "omit",
 ) -> LabelledTable:
     """Build the export layout: id, closed variables, then per question its 0/1 indicators (codes and nets),
@@ -365,7 +242,7 @@ def build_table(
             kind = "net " if c.is_net else ""
             labels[name] = f"{q.name}: {kind}{c.label}"
             value_labels[name] = dict(DICHOTOMY_LABELS)
-        if category_columns:
+        if mention_columns:
             matrix = category_matrix(qc, n)
             for k in range(matrix.shape[1]):
                 name = safe_name(f"{stem}_m{k + 1}", taken=taken)

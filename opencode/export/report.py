@@ -19,19 +19,19 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from opencode import __version__
-from opencode.analysis import coded_data
-from opencode.analysis.agreement import AgreementResult
-from opencode.analysis.agreement_report import format_agreement_html
-from opencode.analysis.table_output import TABLE_CSS, to_html
-from opencode.analysis.study_tables import coding_tables
-from opencode.analysis.tables import MIN_BASE
+from opencode.analysis.tables import coded_data
+from opencode.analysis.agreement.core import AgreementResult
+from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.tables.output import TABLE_CSS, to_html
+from opencode.analysis.tables.study import coding_tables
+from opencode.analysis.tables.crosstab import MIN_BASE
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
-from opencode.export.html_embed import png_img
-from opencode.export.masking import mask_identifiers
+from opencode.files.html_embed import png_img
+from opencode.files.masking import mask_identifiers
 from opencode.export.report_charts import frequency_chart_png
-from opencode.export.safe_write import atomic_open, check_writable_target
-from opencode.palette import OKABE_ITO
+from opencode.files.safe_write import atomic_open, check_writable_target
+from opencode.files.palette import OKABE_ITO
 from opencode.study.store import Study
 from opencode.study.summary import summarise
 
@@ -253,7 +253,7 @@ def _page(title: str, coder: str, include_suggestions: bool, summary: str, secti
 </section>
 {body}
 <footer class="oc-foot"><p>Significance letters and bases as explained under each table.
-Percentages of respondents can add past 100 because a verbatim can have several codes.</p></footer>
+Percentages of respondents can add past 100 because a verbatim can have several codes. Made with oecode.</p></footer>
 </main>
 </body>
 </html>

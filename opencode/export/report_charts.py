@@ -10,8 +10,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from opencode.analysis.tables import FrequencyTable  # noqa: E402
-from opencode.palette import OKABE_ITO  # noqa: E402
+from opencode.analysis.tables.crosstab import FrequencyTable  # noqa: E402
+from opencode.files.palette import OKABE_ITO  # noqa: E402
 
 CODE_COLOUR = OKABE_ITO["blue"]
 NET_COLOUR = OKABE_ITO["orange"]

@@ -12,7 +12,7 @@ import pyreadstat
 
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode
-from opencode.export.safe_write import atomic_path
+from opencode.files.safe_write import atomic_path
 from opencode.export.tabular import checked_table, write_frame_beside
 
 SPSS_LABEL_BYTES = 256  # variable labels; longer ones are cut by the format
@@ -57,12 +57,12 @@ def write_sav(
     dataset: CodedDataset,
     path: str | os.PathLike,
     *,
-    category_columns: bool = False,
+    mention_columns: bool = False,
     verbatims: VerbatimMode = "omit",
     frame_csv: bool = True,
 ) -> list[Path]:
     """Write an SPSS .sav (labels, value labels, missing codes) and the sibling frame CSV; return the paths."""
-    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims,
+    target, table = checked_table(dataset, path, mention_columns=mention_columns, verbatims=verbatims,
                                   frame_csv=frame_csv)
     numeric_coded = [c for c in table.value_labels if c in table.data and table.data[c].dtype.kind in "iuf"]
     with atomic_path(target, suffix=".sav") as tmp, _format_errors(target):
@@ -98,7 +98,7 @@ def write_dta(
     dataset: CodedDataset,
     path: str | os.PathLike,
     *,
-    category_columns: bool = False,
+    mention_columns: bool = False,
     verbatims: VerbatimMode = "omit",
     frame_csv: bool = True,
 ) -> list[Path]:
@@ -107,7 +107,7 @@ def write_dta(
     Stata has no user-missing codes for ordinary numbers, so missing codes (e.g. 9 = refused) stay as
     labelled values; the frame CSV and the .sav export carry the missing flag.
     """
-    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims,
+    target, table = checked_table(dataset, path, mention_columns=mention_columns, verbatims=verbatims,
                                   frame_csv=frame_csv)
     data = table.data
     id_col = data.columns[0]

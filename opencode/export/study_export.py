@@ -5,11 +5,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from opencode.analysis import coded_data
+from opencode.analysis.tables import coded_data
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export import spss_stata, tabular, triple_s
-from opencode.export.safe_write import check_writable_target
+from opencode.files.safe_write import check_writable_target
 from opencode.study.store import Study
 
 EXPORT_FORMATS = ("csv", "xlsx", "sav", "dta", "sss")
@@ -35,7 +35,7 @@ def export_format(fmt: str | None, out: str | Path) -> str:
 
 def export_study(study: Study, out: str | Path, fmt: str | None = None, *, questions: list[str] | None = None,
                  coder: str = FINAL, include_suggestions: bool = False, closed: list[str] | None = (),
-                 layout: str = "dichotomy", verbatims: str = "omit", sss_data: str = "fixed",
+                 layout: str = "flags", verbatims: str = "omit", sss_data: str = "fixed",
                  sss_multiple: str = "bitstring") -> ExportResult:
     """Write the coded questions (and chosen closed-ended variables; None = all) to `out`, atomically."""
     chosen = export_format(fmt, out)
@@ -48,6 +48,6 @@ def export_study(study: Study, out: str | Path, fmt: str | None = None, *, quest
     else:
         writer = {"csv": tabular.write_csv, "xlsx": tabular.write_xlsx, "sav": spss_stata.write_sav,
                   "dta": spss_stata.write_dta}[chosen]
-        written = writer(dataset, target, category_columns=layout == "category", verbatims=verbatims)
+        written = writer(dataset, target, mention_columns=layout == "mentions", verbatims=verbatims)
     return ExportResult(list(written), dataset.n_respondents, [c.question for c in codings],
                         [note for c in codings for note in c.notes])

@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.cell_guard import guard_cell
+from opencode.files.cell_guard import guard_cell
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode, build_table, sibling_path
-from opencode.export.safe_write import atomic_open, atomic_path, check_writable_target
+from opencode.files.safe_write import atomic_open, atomic_path, check_writable_target
 
 XLSX_MAX_ROWS = 1_048_576
 XLSX_MAX_CELL_CHARS = 32_767
@@ -71,14 +71,14 @@ def write_csv_table(df: pd.DataFrame, path: str | os.PathLike) -> None:
         guarded_frame(df).to_csv(handle, index=False, quoting=csv.QUOTE_MINIMAL, lineterminator="\r\n")
 
 
-def checked_table(dataset: CodedDataset, path: str | os.PathLike, *, category_columns: bool,
+def checked_table(dataset: CodedDataset, path: str | os.PathLike, *, mention_columns: bool,
                   verbatims: VerbatimMode, frame_csv: bool = True) -> tuple[Path, LabelledTable]:
     """The target path and the table to write, checking first that the target (and the frame CSV beside it)
     can be written, so a bad path fails before any work."""
     target = check_writable_target(path)
     if frame_csv:
         check_writable_target(sibling_path(target))
-    return target, build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    return target, build_table(dataset, mention_columns=mention_columns, verbatims=verbatims)
 
 
 def write_frame_beside(table: LabelledTable, target: Path, frame_csv: bool = True) -> list[Path]:
@@ -95,11 +95,11 @@ def write_csv(
     dataset: CodedDataset,
     path: str | os.PathLike,
     *,
-    category_columns: bool = False,
+    mention_columns: bool = False,
     verbatims: VerbatimMode = "omit",
 ) -> list[Path]:
     """Write the coded data as CSV and the code frame as `<name>-frame.csv` beside it; return both paths."""
-    target, table = checked_table(dataset, path, category_columns=category_columns, verbatims=verbatims)
+    target, table = checked_table(dataset, path, mention_columns=mention_columns, verbatims=verbatims)
     write_csv_table(table.data, target)
     return write_frame_beside(table, target)
 
@@ -126,7 +126,7 @@ def write_xlsx(
     dataset: CodedDataset,
     path: str | os.PathLike,
     *,
-    category_columns: bool = False,
+    mention_columns: bool = False,
     verbatims: VerbatimMode = "omit",
 ) -> list[Path]:
     """Write an XLSX workbook with sheets `data`, `frame` (the code frames) and `variables` (labels).
@@ -140,7 +140,7 @@ def write_xlsx(
         raise OpenCodeError(
             f"{target}: {dataset.n_respondents} respondents do not fit in one XLSX sheet; export CSV instead"
         )
-    table = build_table(dataset, category_columns=category_columns, verbatims=verbatims)
+    table = build_table(dataset, mention_columns=mention_columns, verbatims=verbatims)
     workbook = Workbook(write_only=True)
     for title, df in (("data", table.data), ("frame", table.code_frame), ("variables", variables_table(table))):
         sheet = workbook.create_sheet(title)

@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.cell_guard import guard_row
+from opencode.files.cell_guard import guard_row
 from opencode.export.dataset import (
     CodedDataset,
     CodedQuestion,
@@ -41,7 +41,7 @@ from opencode.export.dataset import (
     safe_name,
     verbatim_texts,
 )
-from opencode.export.safe_write import atomic_open, check_writable_target
+from opencode.files.safe_write import atomic_open, check_writable_target
 
 SSS_VERSION = "2.0"
 RECORD_IDENT = "A"
@@ -255,7 +255,7 @@ def write_triple_s(
     data_format: Literal["fixed", "csv"] = "fixed",
     multiple: Literal["bitstring", "spread"] = "bitstring",
     verbatims: VerbatimMode = "omit",
-    origin: str = "opencode",
+    origin: str = "oecode",
     timestamp: dt.datetime | None = None,
 ) -> list[Path]:
     """Write Triple-S XML 2.0 metadata and its data file (`.asc` fixed width or `.csv`); return both paths."""

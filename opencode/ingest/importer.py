@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.safe_write import normal_file_mode
+from opencode.files.safe_write import normal_file_mode
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers

@@ -15,7 +15,7 @@ def save_model(study: Study, question_id: int, meta: dict[str, Any], arrays: byt
             "INSERT INTO models (question_id, created_at, meta, arrays) VALUES (?, ?, ?, ?)",
             (question_id, now(), json.dumps(meta, ensure_ascii=False), arrays))
         model_id = int(cursor.lastrowid)
-        study.audit(meta.get("trained_by", "opencode"), "train", "model", model_id,
+        study.audit(meta.get("trained_by", "oecode"), "train", "model", model_id,
                     {"question_id": question_id, "codes": meta.get("n_codes"), "verbatims": meta.get("n_train")})
     return model_id
 

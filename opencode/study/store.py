@@ -175,7 +175,7 @@ class Study:
         row = self.db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
         return json.loads(row[0]) if row else default
 
-    def set_setting(self, key: str, value: Any, actor: str = "opencode") -> None:
+    def set_setting(self, key: str, value: Any, actor: str = "oecode") -> None:
         """Store a study setting (JSON-serialisable) and audit the change."""
         with self.transaction():
             old = self.get_setting(key)

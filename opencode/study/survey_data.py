@@ -189,7 +189,7 @@ def set_value_labels(study: Study, variable_id: int, value_labels: dict[float, s
         [(variable_id, float(code), str(label), i) for i, (code, label) in enumerate(value_labels.items())])
 
 
-def set_variable_role(study: Study, name: str, role: str, actor: str = "opencode") -> None:
+def set_variable_role(study: Study, name: str, role: str, actor: str = "oecode") -> None:
     """Change a variable's role (e.g. mark it as the outcome or a banner), audited."""
     if role not in ROLES:
         raise OpenCodeError(f"variable {name!r}: unknown role {role!r} (roles: {', '.join(ROLES)})")
@@ -206,7 +206,7 @@ def write_values(study: Study, variable_id: int, values) -> None:
                      (variable_id, encoding, len(values), data))
 
 
-def add_indicator_variable(study: Study, name: str, label: str, values: np.ndarray, actor: str = "opencode") -> int:
+def add_indicator_variable(study: Study, name: str, label: str, values: np.ndarray, actor: str = "oecode") -> int:
     """Store a 0/1 variable made by an analysis (e.g. 'verbatim mentions a term'), replacing one of the same name."""
     with study.transaction():
         old = study.db.execute("SELECT id, origin FROM variables WHERE name = ?", (name,)).fetchone()

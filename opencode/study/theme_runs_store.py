@@ -44,7 +44,7 @@ def arrays_from_bytes(blob: bytes) -> dict[str, np.ndarray]:
 
 
 def save_run(study: Study, question_id: int, method: str, k: int, params: dict[str, Any], summary: dict[str, Any],
-             arrays: dict[str, np.ndarray], actor: str = "opencode") -> int:
+             arrays: dict[str, np.ndarray], actor: str = "oecode") -> int:
     """Store a run (one transaction, audited); returns its id."""
     blob = arrays_to_bytes(arrays)
     with study.transaction():
@@ -78,7 +78,7 @@ def load_run(study: Study, run_id: int) -> StoredRun:
                      params=json.loads(row[5]), summary=json.loads(row[6]), arrays=arrays_from_bytes(bytes(row[7])))
 
 
-def delete_run(study: Study, run_id: int, actor: str = "opencode") -> None:
+def delete_run(study: Study, run_id: int, actor: str = "oecode") -> None:
     """Delete a stored run (audited with its parameters)."""
     row = study.db.execute("SELECT question_id, method, k, params FROM theme_runs WHERE id = ?",
                            (int(run_id),)).fetchone()

@@ -8,7 +8,7 @@ from opencode.text.analyzer import Analyzer
 from opencode.text.kwic import format_kwic, kwic
 from opencode.text.lexicon import Lexicon
 from opencode.text.matrix import TermMatrix, build_matrix, cache_key
-from opencode.text.merges import format_variants, suggest_variants
+from opencode.text.spelling_variants import format_variants, suggest_variants
 from opencode.text.phrases import format_phrase_suggestions, suggest_phrases
 from opencode.text.study_text import analyzer_for, get_lexicon, term_matrix
 from opencode.text.words import format_top_terms, top_terms

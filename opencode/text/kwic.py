@@ -9,7 +9,7 @@ from typing import Any
 
 from opencode.errors import OpenCodeError
 from opencode.text.matrix import TermMatrix
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 from opencode.text.tokenize import (
     EMAIL_PLACEHOLDER, EMAIL_RE, NEGATIONS, NUMBER_PLACEHOLDER, URL_PLACEHOLDER, URL_RE, is_negation,
 )

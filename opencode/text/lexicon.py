@@ -98,7 +98,7 @@ class Lexicon:
 
     def to_text(self) -> str:
         """The lexicon in the plain-text exchange format."""
-        lines = ["# opencode lexicon", "[language]", self.language, "[stemmer]", self.stemmer or "none"]
+        lines = ["# oecode lexicon", "[language]", self.language, "[stemmer]", self.stemmer or "none"]
         for section, words in (("stop+", self.stop_add), ("stop-", self.stop_remove), ("phrases", self.phrases)):
             lines.append(f"[{section}]")
             lines.extend(words)

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 from scipy.special import xlogy
 
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 if TYPE_CHECKING:
     from opencode.text.analyzer import Analyzer, Progress

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.export.safe_write import atomic_open
+from opencode.files.safe_write import atomic_open
 from opencode.study.lexicon_store import (
     load_phrase_suggestions, read_lexicon_data, save_phrase_suggestions, write_lexicon_data,
 )
@@ -32,7 +32,7 @@ from opencode.text.matrix import TermMatrix, build_matrix, cache_key
 from opencode.text.phrases import PhraseSuggestion, suggest_phrases
 from opencode.text.stemming import SNOWBALL_LANGUAGES, language_name
 from opencode.text.stoplists import bundled_stop_words, has_stop_list
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 OWN, STUDY_DEFAULT, BUILT_IN = "own", "study default", "built-in default"
 _SHOW = 10
@@ -127,7 +127,7 @@ def _words(words: Iterable[str], what: str) -> list[str]:
     return cleaned
 
 
-def set_lexicon(study: Study, question: str | None, lexicon: Lexicon, *, actor: str = "opencode",
+def set_lexicon(study: Study, question: str | None, lexicon: Lexicon, *, actor: str = "oecode",
                 action: str = "replace") -> LexiconChange:
     """Replace a question's lexicon (None: the study default) as a whole."""
     def apply(data: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
@@ -137,7 +137,7 @@ def set_lexicon(study: Study, question: str | None, lexicon: Lexicon, *, actor: 
     return _edit(study, question, action, actor, apply)
 
 
-def add_stop_words(study: Study, question: str | None, words: Iterable[str], *, actor: str = "opencode") -> LexiconChange:
+def add_stop_words(study: Study, question: str | None, words: Iterable[str], *, actor: str = "oecode") -> LexiconChange:
     """Put words on the question's stop list."""
     words = _words(words, "stop word")
 
@@ -157,7 +157,7 @@ def add_stop_words(study: Study, question: str | None, words: Iterable[str], *, 
 
 
 def remove_stop_words(study: Study, question: str | None, words: Iterable[str], *,
-                      actor: str = "opencode") -> LexiconChange:
+                      actor: str = "oecode") -> LexiconChange:
     """Take words off the stop list (the study's own additions, or words of the bundled list)."""
     words = _words(words, "stop word")
 
@@ -177,7 +177,7 @@ def remove_stop_words(study: Study, question: str | None, words: Iterable[str], 
     return _edit(study, question, "stop-remove", actor, apply)
 
 
-def add_phrases(study: Study, question: str | None, phrases: Iterable[str], *, actor: str = "opencode") -> LexiconChange:
+def add_phrases(study: Study, question: str | None, phrases: Iterable[str], *, actor: str = "oecode") -> LexiconChange:
     """Add multi-word phrases (each becomes one term)."""
     phrases = _words(phrases, "phrase")
 
@@ -190,7 +190,7 @@ def add_phrases(study: Study, question: str | None, phrases: Iterable[str], *, a
 
 
 def remove_phrases(study: Study, question: str | None, phrases: Iterable[str], *,
-                   actor: str = "opencode") -> LexiconChange:
+                   actor: str = "oecode") -> LexiconChange:
     """Remove phrases; an unknown phrase is an error naming the phrases there are."""
     phrases = _words(phrases, "phrase")
 
@@ -216,7 +216,7 @@ def parse_merge(spec: str) -> tuple[list[str], str]:
 
 
 def add_merge(study: Study, question: str | None, sources: Sequence[str], target: str, *,
-              actor: str = "opencode") -> LexiconChange:
+              actor: str = "oecode") -> LexiconChange:
     """Merge words (or phrases) into one target term, e.g. libary, libraries -> library."""
     sources = _words(sources, "word to merge")
     target = _words([target], "merge target")[0]
@@ -231,7 +231,7 @@ def add_merge(study: Study, question: str | None, sources: Sequence[str], target
 
 
 def remove_merges(study: Study, question: str | None, sources: Sequence[str], *,
-                  actor: str = "opencode") -> LexiconChange:
+                  actor: str = "oecode") -> LexiconChange:
     """Undo merges by their source words; an unknown source is an error naming the merges there are."""
     sources = _words(sources, "merged word")
 
@@ -246,7 +246,7 @@ def remove_merges(study: Study, question: str | None, sources: Sequence[str], *,
     return _edit(study, question, "merge-remove", actor, apply)
 
 
-def set_language(study: Study, question: str | None, language: str, *, actor: str = "opencode") -> LexiconChange:
+def set_language(study: Study, question: str | None, language: str, *, actor: str = "oecode") -> LexiconChange:
     """Set the verbatims' language (its stop list and stemmer follow)."""
     name = language_name(language)
     if not name:
@@ -260,7 +260,7 @@ def set_language(study: Study, question: str | None, language: str, *, actor: st
     return _edit(study, question, "language", actor, apply)
 
 
-def set_stemmer(study: Study, question: str | None, stemmer: str | None, *, actor: str = "opencode") -> LexiconChange:
+def set_stemmer(study: Study, question: str | None, stemmer: str | None, *, actor: str = "oecode") -> LexiconChange:
     """Choose the stemmer: 'snowball', 'porter' (English) or None (unstemmed words)."""
     def apply(data: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
         before = data["stemmer"]
@@ -270,7 +270,7 @@ def set_stemmer(study: Study, question: str | None, stemmer: str | None, *, acto
 
 
 def set_stem_exception(study: Study, question: str | None, word: str, stem: str | None = None, *,
-                       actor: str = "opencode", remove: bool = False) -> LexiconChange:
+                       actor: str = "oecode", remove: bool = False) -> LexiconChange:
     """Force a word's stem (no stem: keep the word as it is); remove=True drops the exception."""
     word = _words([word], "word")[0]
 
@@ -288,7 +288,7 @@ def set_stem_exception(study: Study, question: str | None, word: str, stem: str 
 
 
 def import_lexicon(study: Study, question: str | None, path: str | os.PathLike, *,
-                   actor: str = "opencode") -> LexiconChange:
+                   actor: str = "oecode") -> LexiconChange:
     """Replace a question's lexicon by a lexicon text file (a bad line is named by its number)."""
     source = Path(path)
     if not source.is_file():
@@ -426,7 +426,7 @@ def suggest_question_phrases(study: Study, question: str, *, min_count: int = 5,
 
 
 def accept_phrase_suggestions(study: Study, question: str, ranks: Sequence[int], *,
-                              actor: str = "opencode") -> LexiconChange:
+                              actor: str = "oecode") -> LexiconChange:
     """Add phrases from the question's last suggestion list by their rank (1 = first)."""
     saved = load_phrase_suggestions(study, get_question(study, question).id)
     if not saved:

@@ -9,7 +9,7 @@ import numpy as np
 
 from opencode.errors import OpenCodeError
 from opencode.text.matrix import TermMatrix
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 
 @dataclass

@@ -11,14 +11,14 @@ from textual.screen import Screen
 from textual.theme import Theme
 
 from opencode.errors import OpenCodeError
-from opencode.palette import OKABE_ITO
+from opencode.files.palette import OKABE_ITO
 from opencode.tui.highlight import IMPORTING
 from opencode.tui.screens.modals import HelpModal, LockedModal, PromptModal
 from opencode.tui.session import DeskSession, is_locked
 
 #: Our own calm theme from the Okabe-Ito colours (Textual drops colour by itself when NO_COLOR is set).
 CALM = Theme(
-    name="opencode-calm", dark=True,
+    name="oecode-calm", dark=True,
     primary=OKABE_ITO["sky_blue"], secondary=OKABE_ITO["blue"], accent=OKABE_ITO["orange"],
     success=OKABE_ITO["bluish_green"], warning=OKABE_ITO["yellow"], error=OKABE_ITO["vermillion"],
     foreground="#E8E6E1", background="#1B1D1F", surface="#232628", panel="#2C3033",
@@ -33,7 +33,7 @@ class DeskApp(App):
     """The terminal coding desk for one coder on one question."""
 
     CSS_PATH = "desk.tcss"
-    TITLE = "opencode desk"
+    TITLE = "oecode desk"
     BINDINGS = [
         Binding("f1,question_mark", "help", "keys", key_display="F1"),
         Binding("f2", "show('desk')", "desk", show=False),
@@ -54,7 +54,7 @@ class DeskApp(App):
 
     def on_mount(self) -> None:
         self.register_theme(CALM)
-        self.theme = "opencode-calm"
+        self.theme = "oecode-calm"
         self.push_screen(self.make_screen("desk"))
         if self.first_screen != "desk":
             self.action_show(self.first_screen)

@@ -19,7 +19,7 @@ from textual.containers import Horizontal
 from textual.widgets import DataTable, Footer, Static
 from textual.worker import get_current_worker
 
-from opencode.analysis import study_drivers
+from opencode.analysis.drivers import study as study_drivers
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.text.kwic import kwic

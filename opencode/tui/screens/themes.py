@@ -12,8 +12,8 @@ from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Footer, Static
 
-from opencode.analysis.study_themes import promote_theme, theme_rule
-from opencode.analysis.theme_summary import propose_code_label
+from opencode.analysis.themes.study import promote_theme, theme_rule
+from opencode.analysis.themes.summary import propose_code_label
 from opencode.errors import OpenCodeError
 from opencode.study import theme_runs_store
 from opencode.text.study_text import analyzer_for

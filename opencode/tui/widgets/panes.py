@@ -10,7 +10,7 @@ from textual.widgets import Static
 
 from opencode.coding.assignments import AssignedCode
 from opencode.coding.frames import Code
-from opencode.palette import OKABE_ITO
+from opencode.files.palette import OKABE_ITO
 from opencode.study.desk_queries import VerbatimCard
 
 #: Words a code rule uses: underlined and bold, so they stand out with or without colour (NO_COLOR).

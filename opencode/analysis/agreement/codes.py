@@ -10,8 +10,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from opencode.analysis.agreement_matrix import CodingMatrix
-from opencode.analysis.agreement_stats import (
+from opencode.analysis.agreement.matrix import CodingMatrix
+from opencode.analysis.agreement.stats import (
     cohen_kappa_table,
     fleiss_kappa_totals,
     gwet_ac1_totals,

@@ -6,9 +6,9 @@ import textwrap
 
 import pandas as pd
 
-from opencode.analysis.theme_search import KSearch
-from opencode.analysis.theme_summary import ThemeRun
-from opencode.textout import format_table
+from opencode.analysis.themes.search import KSearch
+from opencode.analysis.themes.summary import ThemeRun
+from opencode.files.textout import format_table
 
 
 def _shorten(text: str | None, width: int) -> str:

@@ -16,10 +16,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Sequence, Union
 
-from opencode.analysis.tables import BannerTable, FrequencyTable
+from opencode.analysis.tables.crosstab import BannerTable, FrequencyTable
 from opencode.errors import OpenCodeError
-from opencode.export.cell_guard import guard_cell
-from opencode.export.safe_write import atomic_open, atomic_path
+from opencode.files.cell_guard import guard_cell
+from opencode.files.safe_write import atomic_open, atomic_path
 
 Table = Union[FrequencyTable, BannerTable]
 EMPTY = "-"

@@ -1,7 +1,7 @@
 """Code frequencies and banner tables (codes and nets by closed-ended variables) with significance tests.
 
 Pure arrays in, result objects out: the study supplies who got which code, who answered, the banner
-variables and an optional survey weight; opencode.analysis.table_output renders the results.
+variables and an optional survey weight; opencode.analysis.tables.output renders the results.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ import numpy as np
 from scipy import sparse
 
 from opencode.analysis.multiple_testing import bh_adjust
-from opencode.analysis.significance import chi_square_rows, effective_bases, two_proportion_z
+from opencode.analysis.tables.significance import chi_square_rows, effective_bases, two_proportion_z
 from opencode.errors import OpenCodeError
 
 MIN_BASE = 30  # common practice (no published source): flag bases under 30 and do not test them

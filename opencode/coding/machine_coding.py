@@ -89,7 +89,7 @@ def train(study: Study, question: str, coder: str | None = None, analyzer: Any =
     meta, blob = model.to_state()
     question_id = survey_data.get_question(study, question).id
     meta.update({"question": question, "train_ids": ids.tolist(), "train_coders": owners, "n_train": len(ids),
-                 "n_codes": len(model.codes_), "trained_by": coder or "opencode",
+                 "n_codes": len(model.codes_), "trained_by": coder or "oecode",
                  "analyzer": analyzer.to_dict() if hasattr(analyzer, "to_dict") else None})
     model_id = models_store.save_model(study, question_id, meta, blob)
     trained = TrainedModel(model_id, question, question_id, now(), model, analyzer, ids, owners, meta)
@@ -119,7 +119,7 @@ def _load(study: Study, question_id: int, question: str | None) -> TrainedModel:
         return cached
     if model_id is None:
         raise OpenCodeError(f"question {question or question_id!r}: no machine coder trained yet "
-                            "(oecode autocode STUDY train --question Q)")
+                            "(oecode model STUDY train --question Q)")
     meta, blob, created = models_store.load_model_row(study, model_id)
     model = MachineCoder.from_state(meta, blob)
     question = question or meta.get("question")

@@ -13,10 +13,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from opencode.analysis.agreement_bands import krippendorff_band, landis_koch_band
-from opencode.analysis.agreement_bootstrap import bootstrap_totals, percentile_interval
-from opencode.analysis.agreement_codes import CodeFeatures, statistic_names
-from opencode.analysis.agreement_disagreement import (
+from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
+from opencode.analysis.agreement.bootstrap import bootstrap_totals, percentile_interval
+from opencode.analysis.agreement.codes import CodeFeatures, statistic_names
+from opencode.analysis.agreement.disagreement import (
     ConfusedPair,
     DisputedUnit,
     PairTables,
@@ -24,8 +24,8 @@ from opencode.analysis.agreement_disagreement import (
     disputed_units,
     pair_tables,
 )
-from opencode.analysis.agreement_matrix import CodingMatrix
-from opencode.analysis.agreement_sets import DISTANCES, SetAlphaParts, alpha_from_totals
+from opencode.analysis.agreement.matrix import CodingMatrix
+from opencode.analysis.agreement.sets import DISTANCES, SetAlphaParts, alpha_from_totals
 from opencode.errors import OpenCodeError
 
 __all__ = ["AgreementResult", "CodeAgreement", "CodingMatrix", "Estimate", "STATISTIC_LABELS", "measure_agreement"]

@@ -18,12 +18,12 @@ import numpy as np
 import pandas as pd
 from sklearn.model_selection import train_test_split
 
-from opencode.analysis import coded_data
-from opencode.analysis.driver_chart import write_driver_chart
-from opencode.analysis.drivers import DriverRanker, format_ranking_table, term_indicators
-from opencode.analysis.outcome import Outcome, make_outcome, one_vs_rest as outcome_per_category
+from opencode.analysis.tables import coded_data
+from opencode.analysis.drivers.chart import write_driver_chart
+from opencode.analysis.drivers.ranker import DriverRanker, format_ranking_table, term_indicators
+from opencode.analysis.drivers.outcome import Outcome, make_outcome, one_vs_rest as outcome_per_category
 from opencode.errors import OpenCodeError
-from opencode.export.html_embed import png_img
+from opencode.files.html_embed import png_img
 from opencode.study import survey_data
 from opencode.study.store import Study
 from opencode.text.matrix import TermMatrix
@@ -250,7 +250,7 @@ def format_drivers(result: StudyDrivers, *, sort_by: str = "stability", ascendin
 
 # -- the question's remembered choice ------------------------------------------------------------------------------
 def remember_choice(study: Study, question: str, outcome: str, *, split: str | None = None,
-                    one_vs_rest: bool = False, actor: str = "opencode") -> None:
+                    one_vs_rest: bool = False, actor: str = "oecode") -> None:
     """Store the outcome and split used for a question's drivers, so the desk shows the same ranking."""
     survey_data.get_question(study, question)
     study.set_setting(SETTING_PREFIX + question, {"outcome": outcome, "split": split, "one_vs_rest": one_vs_rest},
@@ -302,7 +302,7 @@ def indicator_name(question: str, term: str) -> str:
 
 
 def write_indicators(study: Study, question: str, result: StudyDrivers | None, terms: list[str],
-                     actor: str = "opencode") -> list[str]:
+                     actor: str = "oecode") -> list[str]:
     """Store 0/1 variables '<question>_t_<term>' (1 = the respondent's verbatim contains the term); their names.
 
     Terms are found by their stem, label or any word form. With no drivers result the question's full term

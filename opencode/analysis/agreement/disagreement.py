@@ -8,8 +8,8 @@ from itertools import combinations
 import numpy as np
 import scipy.sparse as sp
 
-from opencode.analysis.agreement_matrix import CodingMatrix
-from opencode.analysis.agreement_stats import cohen_kappa_table
+from opencode.analysis.agreement.matrix import CodingMatrix
+from opencode.analysis.agreement.stats import cohen_kappa_table
 
 
 @dataclass(frozen=True)

@@ -11,10 +11,10 @@ import matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 
-from opencode.analysis.theme_search import KSearch  # noqa: E402
-from opencode.analysis.theme_summary import ThemeRun  # noqa: E402
-from opencode.export.safe_write import atomic_path  # noqa: E402
-from opencode.palette import OKABE_ITO, SERIES  # noqa: E402
+from opencode.analysis.themes.search import KSearch  # noqa: E402
+from opencode.analysis.themes.summary import ThemeRun  # noqa: E402
+from opencode.files.safe_write import atomic_path  # noqa: E402
+from opencode.files.palette import OKABE_ITO, SERIES  # noqa: E402
 
 
 def _save(figure, path: str | os.PathLike) -> Path:

@@ -15,11 +15,11 @@ import numpy as np
 import pandas as pd
 from scipy import sparse
 
-from opencode.analysis import tables
+from opencode.analysis.tables import crosstab as tables
 from opencode.coding.assignments import FINAL, SUGGESTED, assignments
 from opencode.coding.frames import Code, load_frame
 from opencode.errors import OpenCodeError
-from opencode.export import dataset as export
+from opencode.analysis.tables import dataset as export
 from opencode.study import assignments_store as astore
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data

@@ -17,7 +17,7 @@ import numpy as np
 from nltk.metrics import edit_distance
 
 from opencode.text.matrix import TermMatrix
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 
 @dataclass

@@ -6,13 +6,13 @@ import html
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from opencode.analysis import coded_data
-from opencode.analysis.table_output import TABLE_CSS, to_html, write_csv, write_xlsx
-from opencode.analysis.tables import (BannerTable, BannerVariable, FrequencyTable, SurveyWeight, banner_table,
+from opencode.analysis.tables import coded_data
+from opencode.analysis.tables.output import TABLE_CSS, to_html, write_csv, write_xlsx
+from opencode.analysis.tables.crosstab import (BannerTable, BannerVariable, FrequencyTable, SurveyWeight, banner_table,
                                       code_frequencies)
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
-from opencode.export.safe_write import atomic_open
+from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
 
 TABLE_SUFFIXES = (".csv", ".xlsx", ".html")

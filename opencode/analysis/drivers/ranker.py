@@ -26,10 +26,10 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import log_loss, roc_auc_score
 from sklearn.model_selection import StratifiedKFold
 
-from opencode.analysis.outcome import small_group_warning
-from opencode.analysis.univariate import presence, two_by_two, univariate_table
+from opencode.analysis.drivers.outcome import small_group_warning
+from opencode.analysis.drivers.univariate import presence, two_by_two, univariate_table
 from opencode.errors import OpenCodeError
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 #: Below this cross-validated AUC (or when its 95% CI covers 0.5) the text is said not to predict the outcome.
 MIN_USEFUL_AUC = 0.55
@@ -68,7 +68,7 @@ def _check_inputs(X, y, sample_weight, terms):
     if X.shape[0] != y.shape[0]:
         raise OpenCodeError(f"the term matrix has {X.shape[0]} verbatims but the outcome has {y.shape[0]} rows")
     if y.size and not np.isin(y, (0, 1)).all():
-        raise OpenCodeError("the outcome must be coded 0/1 (build it with opencode.analysis.outcome.make_outcome)")
+        raise OpenCodeError("the outcome must be coded 0/1 (build it with opencode.analysis.drivers.outcome.make_outcome)")
     y = y.astype(np.int8)
     if y.size == 0 or y.min() == y.max():
         raise OpenCodeError(f"the outcome has one class only ({y.size} rows); nothing can predict it")

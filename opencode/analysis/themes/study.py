@@ -19,23 +19,23 @@ from typing import Any, Callable, Sequence
 import numpy as np
 import pandas as pd
 
-from opencode.analysis.theme_charts import plot_theme_terms
-from opencode.analysis.theme_format import format_k_search, format_prevalence, format_themes
-from opencode.analysis.theme_search import DEFAULT_K_RANGE, KSearch, choose_k, parse_k_range
-from opencode.analysis.theme_summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
+from opencode.analysis.themes.charts import plot_theme_terms
+from opencode.analysis.themes.format import format_k_search, format_prevalence, format_themes
+from opencode.analysis.themes.search import DEFAULT_K_RANGE, KSearch, choose_k, parse_k_range
+from opencode.analysis.themes.summary import (ThemeRun, compare_runs, find_themes, propose_code_label,
                                              unexplained_verbatims)
-from opencode.analysis.themes import LOSSES
+from opencode.analysis.themes.finder import LOSSES
 from opencode.coding import rules as coding_rules
 from opencode.coding.frames import Code, add_code, load_frame
 from opencode.errors import OpenCodeError
-from opencode.export.html_embed import png_img
-from opencode.export.masking import mask_identifiers
+from opencode.files.html_embed import png_img
+from opencode.files.masking import mask_identifiers
 from opencode.study import theme_runs_store as store
 from opencode.study.store import Study
 from opencode.study.survey_data import analysis_values, get_question, get_variable, respondent_keys, verbatims
 from opencode.text.matrix import TermMatrix
 from opencode.text.study_text import analyzer_for, get_lexicon, term_matrix
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 KIND_THEMES, KIND_K_SEARCH = "themes", "k-search"
 DEFAULT_MIN_DF = 2  # common practice (no published source): drop one-off words and typos before finding themes
@@ -240,7 +240,7 @@ def fit_question_themes(study: Study, question: str, *, k: int = 10, method: str
                         by: str | None = None, seed_terms: Sequence[Sequence[str]] | str | None = None,
                         seed_from_frame: bool | Sequence[int] = False, min_df: float | int = DEFAULT_MIN_DF,
                         max_df: float | int = 1.0, random_state: int | None = 0, n_top: int = 10,
-                        n_representatives: int = 5, save: bool = True, actor: str = "opencode",
+                        n_representatives: int = 5, save: bool = True, actor: str = "oecode",
                         progress: Callable[[int, int], None] | None = None, **finder_params: Any) -> QuestionThemes:
     """Fit k themes on a question's verbatims, optionally split by `by` and seeded; keep the run when `save`.
 
@@ -287,7 +287,7 @@ def search_question_k(study: Study, question: str, k_range: str | Sequence[int] 
                       method: str = "nmf", loss: str = "frobenius", min_df: float | int = DEFAULT_MIN_DF,
                       max_df: float | int = 1.0, random_state: int | None = 0,
                       progress: Callable[[int, int, int], None] | None = None, save: bool = True,
-                      actor: str = "opencode", **search_params: Any) -> QuestionKSearch:
+                      actor: str = "oecode", **search_params: Any) -> QuestionKSearch:
     """Score each k of a range on the question's verbatims (coherence and stability) and keep the search."""
     _check_method(method, loss)
     ks = parse_k_range(k_range)
@@ -348,7 +348,7 @@ def list_theme_runs(study: Study, question: str | None = None) -> pd.DataFrame:
     return pd.DataFrame(records, columns=columns)
 
 
-def delete_theme_run(study: Study, run_id: int, actor: str = "opencode") -> None:
+def delete_theme_run(study: Study, run_id: int, actor: str = "oecode") -> None:
     """Delete a stored run or k search (audited)."""
     store.delete_run(study, run_id, actor=actor)
 
@@ -398,7 +398,7 @@ def theme_rule(top_terms: Sequence[str], analyzer: Any, n_terms: int = RULE_TERM
 
 def promote_theme(study: Study, run_id: int, theme: int, *, question: str | None = None, label: str | None = None,
                   number: int | None = None, hotkey: str | None = None, n_rule_terms: int = RULE_TERMS,
-                  actor: str = "opencode") -> Code:
+                  actor: str = "oecode") -> Code:
     """Add a theme (numbered from 1, as shown) as a draft code of the question's frame, its top terms as its rule.
 
     The label is proposed from the top terms unless given; the code's description says where it came from.

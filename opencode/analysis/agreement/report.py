@@ -8,10 +8,10 @@ import os
 from collections.abc import Sequence
 from pathlib import Path
 
-from opencode.analysis.agreement import STATISTIC_LABELS, AgreementResult, Estimate
-from opencode.export.cell_guard import guard_cell
-from opencode.export.safe_write import atomic_open
-from opencode.textout import format_table
+from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult, Estimate
+from opencode.files.cell_guard import guard_cell
+from opencode.files.safe_write import atomic_open
+from opencode.files.textout import format_table
 
 UNDEFINED = "undefined"
 _PERCENT = {"percent"}

@@ -13,8 +13,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from opencode.errors import OpenCodeError  # noqa: E402
-from opencode.export.safe_write import atomic_path  # noqa: E402
-from opencode.palette import SIDE_A, SIDE_B  # noqa: E402
+from opencode.files.safe_write import atomic_path  # noqa: E402
+from opencode.files.palette import SIDE_A, SIDE_B  # noqa: E402
 
 
 @dataclass(frozen=True)

@@ -23,9 +23,9 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.exceptions import ConvergenceWarning
 
-from opencode.analysis.coherence import coherence, top_term_indices
-from opencode.analysis.theme_stability import stability
-from opencode.analysis.themes import ThemeFinder, as_count_matrix, check_corpus, leading_svd, nndsvd_start
+from opencode.analysis.themes.coherence import coherence, top_term_indices
+from opencode.analysis.themes.stability import stability
+from opencode.analysis.themes.finder import ThemeFinder, as_count_matrix, check_corpus, leading_svd, nndsvd_start
 from opencode.errors import OpenCodeError
 
 DEFAULT_K_RANGE = "4:20"

@@ -2,7 +2,7 @@
 suggestion for one verbatim. Reference measured in the same run: scikit-learn OneVsRestClassifier(
 LogisticRegression) fit / predict_proba on the same term matrix. Data are invented (seeded word lists).
 
-    /work/venv/bin/python bench/bench_autocode.py [--quick]
+    /work/venv/bin/python bench/bench_model.py [--quick]
 """
 
 from __future__ import annotations

@@ -16,10 +16,10 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency
 from sklearn.preprocessing import normalize
 
-from opencode.analysis.coherence import coherence, top_term_indices
+from opencode.analysis.themes.coherence import coherence, top_term_indices
 from opencode.analysis.multiple_testing import bh_adjust
-from opencode.analysis.theme_stability import depth_jaccard, match_themes
-from opencode.analysis.themes import ThemeFinder, as_count_matrix
+from opencode.analysis.themes.stability import depth_jaccard, match_themes
+from opencode.analysis.themes.finder import ThemeFinder, as_count_matrix
 from opencode.errors import OpenCodeError
 
 RECORD_FORMAT = "opencode.themes/1"

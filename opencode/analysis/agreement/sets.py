@@ -12,8 +12,8 @@ from itertools import combinations
 import numpy as np
 import scipy.sparse as sp
 
-from opencode.analysis.agreement_bootstrap import one_blas_thread
-from opencode.analysis.agreement_matrix import CodingMatrix
+from opencode.analysis.agreement.bootstrap import one_blas_thread
+from opencode.analysis.agreement.matrix import CodingMatrix
 from opencode.errors import OpenCodeError
 
 DISTANCES = ("masi", "jaccard")

@@ -1,4 +1,4 @@
-"""`oecode autocode STUDY ACTION --question Q`: keyword-rule pre-coding and the machine coder.
+"""`oecode model STUDY ACTION --question Q`: keyword-rule pre-coding and the machine coder.
 
 Machine and rule codes are suggestions until a person accepts them at the desk.
 """
@@ -7,17 +7,18 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.coding import autocode, rules
+from opencode.coding import rules
+from opencode.coding import machine_coding
 from opencode.commands.common import progress_line
 from opencode.study.store import Study
-from opencode.textout import format_table
+from opencode.files.textout import format_table
 
 ACTIONS = ("train", "report", "curve", "suggest", "apply", "queue", "rules")
 SUGGESTION_NOTE = "machine codes are suggestions: they count only once a person accepts them at the desk"
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    p = subparsers.add_parser("autocode", help="pre-code by keyword rules; train and use the machine coder")
+    p = subparsers.add_parser("model", help="pre-code by keyword rules; train and use the machine coder")
     p.add_argument("study")
     p.add_argument("action", choices=ACTIONS)
     p.add_argument("--question", required=True)
@@ -38,12 +39,12 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _coder(args: argparse.Namespace) -> str:
-    return args.coder or autocode.FINAL
+    return args.coder or machine_coding.FINAL
 
 
 def _train(study: Study, args: argparse.Namespace) -> None:
     progress_line("analysing verbatims and cross-validating each code")
-    trained = autocode.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
+    trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
     print(f"model {trained.id}: {len(trained.model.codes_)} codes from {len(trained.train_ids)} hand-coded verbatims")
     for code, n in trained.model.skipped_:
         print(f"  skipped code {code}: {n} coded examples (needs {args.min_examples}, and as many without it)")
@@ -51,7 +52,7 @@ def _train(study: Study, args: argparse.Namespace) -> None:
 
 
 def _report(study: Study, args: argparse.Namespace) -> None:
-    rows = autocode.code_report(study, args.question)
+    rows = machine_coding.code_report(study, args.question)
     print("cross-validated, machine versus human:")
     print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
                        [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
@@ -59,16 +60,16 @@ def _report(study: Study, args: argparse.Namespace) -> None:
 
 
 def _curve(study: Study, args: argparse.Namespace) -> None:
-    rows = autocode.curve(study, args.question)
+    rows = machine_coding.curve(study, args.question)
     print("semi-automatic coding: the model codes a verbatim only when sure of every code")
     print(format_table(["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"],
                        [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
                         for r in rows]))
-    print("pick a threshold whose accuracy you accept; then: autocode apply --threshold T")
+    print("pick a threshold whose accuracy you accept; then: oecode model STUDY apply --question Q --threshold T")
 
 
 def _suggest(study: Study, args: argparse.Namespace) -> None:
-    proba = autocode.suggest(study, args.question, coder=_coder(args))
+    proba = machine_coding.suggest(study, args.question, coder=_coder(args))
     rows = []
     for verbatim_id, values in proba.head(args.limit).iterrows():
         best = values.sort_values(ascending=False).head(3)
@@ -79,7 +80,7 @@ def _suggest(study: Study, args: argparse.Namespace) -> None:
 
 
 def _apply(study: Study, args: argparse.Namespace) -> None:
-    report = autocode.apply_machine(study, args.question, args.threshold, args.target_accuracy, coder=_coder(args))
+    report = machine_coding.apply_machine(study, args.question, args.threshold, args.target_accuracy, coder=_coder(args))
     print(f"threshold {report.threshold:.2f}: {report.assignments} machine codes on {report.verbatims} of "
           f"{report.candidates} verbatims not yet coded by {_coder(args)} ({report.replaced} earlier machine "
           "suggestions replaced)")
@@ -88,13 +89,13 @@ def _apply(study: Study, args: argparse.Namespace) -> None:
 
 def _queue(study: Study, args: argparse.Namespace) -> None:
     if args.kind == "learn":
-        items = autocode.learning_queue(study, args.question, _coder(args), n=args.limit)
+        items = machine_coding.learning_queue(study, args.question, _coder(args), n=args.limit)
         print("code these next (the model is least sure about them):")
         print(format_table(["verbatim", "doubt", "code", "p", "text"],
                            [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
                             for i in items]))
     else:
-        items = autocode.second_look_queue(study, args.question, args.coder, n=args.limit)
+        items = machine_coding.second_look_queue(study, args.question, args.coder, n=args.limit)
         print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
         print(format_table(["verbatim", "coder", "code", "p", "why", "text"],
                            [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]

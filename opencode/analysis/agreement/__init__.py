@@ -1,0 +1,1 @@
+"""Agreement between coders: statistics, study-level functions and rendering."""

@@ -1,0 +1,1 @@
+"""Tables: codes by banners, weights, significance tests, study-level functions and rendering."""

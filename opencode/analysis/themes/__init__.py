@@ -1,0 +1,1 @@
+"""Themes: NMF/LDA, coherence, stability, k search, study-level functions and rendering."""

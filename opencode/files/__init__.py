@@ -1,0 +1,1 @@
+"""Bottom layer: atomic writes, the cell guard, masking, embedding, text tables, palette."""
