@@ -170,3 +170,33 @@ def make_app(path: Path, coder: str = "ash") -> DeskApp:
 def file_digest(path: Path) -> str:
     """A digest of a file's bytes (or 'absent'), to prove a failed command changed nothing."""
     return hashlib.sha256(path.read_bytes()).hexdigest() if path.exists() else "absent"
+
+
+# -- real client programs (PSPP, Chromium, PostgreSQL, tmux) ------------------------------------------------
+#: Install hints for the real programs some tests drive; .ci/run installs them all.
+PROGRAM_HINTS = {
+    "pspp": "apt-get install -y pspp",
+    "chromium": "apt-get install -y chromium",
+    "tmux": "apt-get install -y tmux",
+    "pg_ctl": "apt-get install -y postgresql",
+    "initdb": "apt-get install -y postgresql",
+}
+
+
+def require_program(name: str, *candidates: str) -> str:
+    """The path of a real program a test drives; skip with an install hint when it is absent.
+
+    Under CI (`OECODE_CI=1`, set by .ci/run) a missing program is a failure, never a skip.
+    """
+    import os
+    import pytest
+
+    for candidate in (name, *candidates):
+        found = shutil.which(candidate) or (candidate if Path(candidate).is_absolute() and Path(candidate).exists()
+                                            else None)
+        if found:
+            return found
+    message = f"{name} is not installed; install it with: {PROGRAM_HINTS.get(name, name)}"
+    if os.environ.get("OECODE_CI") == "1":
+        pytest.fail(message + " (OECODE_CI=1: CI must run this test)")
+    pytest.skip(message)

@@ -17,7 +17,7 @@ from opencode.analysis.agreement.study import question_agreement
 from opencode.errors import OpenCodeError
 from opencode.export.report import CAUTIONS, ReportSection, build_report, example_verbatims
 from opencode.study.store import Study
-from helpers import MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, build_fixture_study
+from helpers import require_program, MACHINE_SUGGESTIONS, RULE_SUGGESTIONS, build_fixture_study
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 OUTSIDE = re.compile(r"""(?:src|href)\s*=\s*["']?\s*(?:https?:)?//|url\(\s*["']?(?:https?:)?//|@import""", re.I)
@@ -113,18 +113,8 @@ def test_report_command(study_path, tmp_path, capsys):
     assert "Coder agreement on why" in out.read_text(encoding="utf-8")
 
 
-def _chromium() -> str | None:
-    for name in ("chromium", "chromium-browser"):
-        found = shutil.which(name)
-        if found:
-            return found
-    return "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None
-
-
 def test_report_renders_in_headless_chromium(report, tmp_path):
-    browser = _chromium()
-    if browser is None:
-        pytest.skip("no chromium on this machine")
+    browser = require_program("chromium", "chromium-browser", "/usr/bin/chromium")
     path, _ = report
     shot = tmp_path / "report.png"
     subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu", "--window-size=1280,2000",
