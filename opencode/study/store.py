@@ -11,7 +11,7 @@ from pathlib import Path
 from typing import Any, Iterator
 
 from opencode import __version__
-from opencode.errors import OpenCodeError
+from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 SUFFIX = ".study"
@@ -41,11 +41,11 @@ class Study:
         """Create a new empty study file at `path` (must end in .study)."""
         target = Path(path)
         if target.suffix != SUFFIX:
-            raise OpenCodeError(f"{target}: a study file name must end in {SUFFIX}")
+            raise BadInput(f"{target}: a study file name must end in {SUFFIX}")
         if target.exists() and not overwrite:
-            raise OpenCodeError(f"{target}: already exists (choose another name, or import into it to merge)")
+            raise BadInput(f"{target}: already exists (choose another name, or import into it to merge)")
         if not target.parent.exists():
-            raise OpenCodeError(f"{target}: the folder {target.parent} does not exist")
+            raise BadInput(f"{target}: the folder {target.parent} does not exist")
         if overwrite:
             for extra in ("", "-wal", "-shm"):
                 with contextlib.suppress(FileNotFoundError):
@@ -63,17 +63,17 @@ class Study:
         """Open an existing study, migrating it forward if it was written by an older opencode."""
         target = Path(path)
         if not target.is_file():
-            raise OpenCodeError(f"{target}: no such study file")
+            raise StudyNotFound(f"{target}: no such study file")
         with open(target, "rb") as handle:
             header = handle.read(16)
         if header != b"SQLite format 3\x00":
-            raise OpenCodeError(f"{target}: is not a study file (not an SQLite database)")
+            raise NotAStudy(f"{target}: is not a study file (not an SQLite database)")
         connection = _connect(target)
         study = cls(target, connection)
         try:
             app_id = connection.execute("PRAGMA application_id").fetchone()[0]
             if app_id != APPLICATION_ID:
-                raise OpenCodeError(f"{target}: is an SQLite database but not an opencode study")
+                raise NotAStudy(f"{target}: is an SQLite database but not an oecode study")
             version = study.schema_version()
             if version > SCHEMA_VERSION:
                 raise OpenCodeError(
@@ -143,7 +143,7 @@ class Study:
             self.db.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as error:
             if _is_locked(error):
-                raise OpenCodeError(
+                raise StudyBusy(
                     f"{self.path}: another program is writing to this study (the file is locked); "
                     "try again in a moment") from error
             raise
@@ -158,7 +158,7 @@ class Study:
             except sqlite3.OperationalError as error:
                 self.db.rollback()
                 if _is_locked(error):
-                    raise OpenCodeError(f"{self.path}: the study is locked by another program; try again") from error
+                    raise StudyBusy(f"{self.path}: the study is locked by another program; try again") from error
                 raise
 
     def audit(self, actor: str, action: str, entity: str, entity_id: int | None = None,
@@ -194,10 +194,10 @@ def _connect(path: Path) -> sqlite3.Connection:
         connection.execute("PRAGMA synchronous = NORMAL")
     except sqlite3.OperationalError as error:
         if _is_locked(error):
-            raise OpenCodeError(f"{path}: the study is locked by another program; try again") from error
+            raise StudyBusy(f"{path}: the study is locked by another program; try again") from error
         raise OpenCodeError(f"{path}: cannot open the study ({error})") from error
     except sqlite3.DatabaseError as error:
-        raise OpenCodeError(f"{path}: is not a study file ({error})") from error
+        raise NotAStudy(f"{path}: is not a study file ({error})") from error
     if mode.lower() != "wal":
         connection.close()
         raise OpenCodeError(f"{path}: could not switch the study to WAL journaling (got {mode})")

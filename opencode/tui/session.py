@@ -16,7 +16,7 @@ import numpy as np
 from opencode.coding import assignments as coding
 from opencode.coding import frames, history, reliability
 from opencode.coding.frames import Code, Frame
-from opencode.errors import OpenCodeError
+from opencode.errors import OpenCodeError, StudyBusy, WriteFailed
 from opencode.study import assignments_store as astore
 from opencode.study import desk_queries as dq
 from opencode.study import survey_data
@@ -39,8 +39,8 @@ class Counts:
 
 
 def is_locked(error: Exception) -> bool:
-    """Whether an error says the study file is locked by another program (worth a retry)."""
-    return isinstance(error, OpenCodeError) and "locked" in str(error).lower()
+    """Whether a change failed for a reason worth a retry: the study is busy, or the write could not complete."""
+    return isinstance(error, (StudyBusy, WriteFailed))
 
 
 class DeskSession:
