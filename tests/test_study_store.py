@@ -35,7 +35,7 @@ def test_file_that_is_not_sqlite_is_refused(tmp_path):
 def test_sqlite_file_from_elsewhere_is_refused(tmp_path):
     path = tmp_path / "other.study"
     sqlite3.connect(path).execute("CREATE TABLE t (x)").connection.commit()
-    with pytest.raises(OpenCodeError, match="not an opencode study"):
+    with pytest.raises(OpenCodeError, match="not an oecode study"):
         Study.open(path)
 
 
