@@ -200,3 +200,20 @@ def require_program(name: str, *candidates: str) -> str:
     if os.environ.get("OECODE_CI") == "1":
         pytest.fail(message + " (OECODE_CI=1: CI must run this test)")
     pytest.skip(message)
+
+
+def screen_text(app) -> str:
+    """The app's screen as plain text lines (what a terminal would show, without colour)."""
+    strips = app.screen._compositor.render_strips()
+    return "\n".join("".join(segment.text for segment in strip).rstrip() for strip in strips)
+
+
+async def wait_for(pilot, condition, timeout: float = 60.0) -> None:
+    """Let the app run until `condition()` holds (background jobs report through the app's queue)."""
+    import time
+
+    end = time.monotonic() + timeout
+    while not condition():
+        if time.monotonic() > end:
+            raise AssertionError(f"timed out after {timeout:.0f} s waiting for the desk")
+        await pilot.pause(0.05)

@@ -96,18 +96,19 @@ def test_enter_marks_done_and_moves_to_next_uncoded(study_path):
             await pilot.press("enter")  # A1 reviewed with no code
             assert on_disk(study_path, "SELECT COUNT(*) FROM coded_marks WHERE coder = 'ash'") == [(1,)]
             assert app.session.card().respondent == "A2"
-            await pilot.press("right", "h")  # code A3 by hand: it is coded now
+            await pilot.press("right", "h")  # A3 is a non-answer, not served: code A4 by hand
+            assert app.session.card().respondent == "A4"
             await pilot.press("left")
             assert app.session.card().respondent == "A2"
             await pilot.press("enter")
-            assert app.session.card().respondent == "A4"  # A3 is coded, so it is skipped
+            assert app.session.card().respondent == "A5"  # A4 is coded, so it is skipped
             await pilot.press("space")
-            assert app.session.card().respondent == "A5"
+            assert app.session.card().respondent == "A5"  # the only uncoded one left
             await pilot.press("home")
             assert app.session.card().respondent == "A1"
             await pilot.press("end")
             assert app.session.card().respondent == "A5"
-            assert app.session.counts.coded == 3
+            assert (app.session.counts.coded, app.session.total) == (3, 4)  # progress over answered verbatims
     run(scenario)
 
 
@@ -126,7 +127,7 @@ def test_search_text_code_and_closed_ended_value(study_path):
             await pilot.press("right")  # stays inside the results
             assert app.session.card().respondent == "A4"
             await pilot.press("escape")
-            assert app.session.view.size == 5 and app.session.card().respondent == "A4"
+            assert app.session.view.size == 4 and app.session.card().respondent == "A4"  # A3 is a non-answer
 
             await pilot.press("ctrl+f")
             await type_text(pilot, "support=5")
@@ -148,7 +149,7 @@ def test_search_text_code_and_closed_ended_value(study_path):
             await pilot.press("slash")
             await type_text(pilot, "zebra")
             await pilot.press("enter")
-            assert "nothing matches" in status(app) and app.session.view.size == 5
+            assert "nothing matches" in status(app) and app.session.view.size == 4
     run(scenario)
 
 
@@ -239,7 +240,7 @@ def test_two_coders_on_one_file_see_each_other(study_path):
             assert hand_codes(study_path, "A1", "bryn") == [3]
             await pb.press("ctrl+r")
             assert bryn.session.others() == [("ash", 1, "hand")]
-            assert "ash 1" in str(bryn.screen.query_one("#note").render())
+            assert "ash s 1 Not safe withou…" in str(bryn.screen.query_one("#note").render())
             await pa.press("ctrl+z")  # undo is per coder: bryn's code stays
             assert hand_codes(study_path, "A1", "bryn") == [3]
             assert hand_codes(study_path, "A1", "ash") == []
@@ -354,15 +355,17 @@ def test_compare_takes_left_right_and_union_into_final(study_path):
         async with app.run_test(size=(100, 30)) as pilot:
             await pilot.press("f6")
             assert app.screen.name == "compare"
-            assert app.screen.ids == [1, 4]  # they agree on A2
-            await pilot.press("l")
+            assert [d.verbatim_id for d in app.screen.shown()] == [1, 4]  # they agree on A2
+            await pilot.press("l")  # settles A1, then moves on to the next unsettled difference
             assert hand_codes(study_path, "A1", "final") == [1]
+            assert app.screen.current().respondent == "A4"
             await pilot.press("r")
+            assert hand_codes(study_path, "A4", "final") == [1]
+            assert "every difference shown is settled" in status(app)
+            await pilot.press("left", "u")  # back to A1: take both
             assert hand_codes(study_path, "A1", "final") == [1, 2]
-            await pilot.press("right", "u")
-            assert hand_codes(study_path, "A4", "final") == [1, 2]
             await pilot.press("ctrl+z")
-            assert hand_codes(study_path, "A4", "final") == []
+            assert hand_codes(study_path, "A1", "final") == [1]
     run(scenario)
 
 

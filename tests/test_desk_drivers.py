@@ -8,6 +8,8 @@ from opencode.ingest.importer import ImportOptions, import_survey
 from opencode.tui.app import DeskApp
 from opencode.tui.session import DeskSession
 
+from helpers import wait_for
+
 OPPOSE = ["Not safe without staff at night", "Staff cut and nobody to help", "Unsafe at night without staff"]
 SUPPORT = ["Great for study after work", "Evening study after my work shift", "Work late so evening study helps"]
 
@@ -29,9 +31,7 @@ def test_terms_screen_shows_drivers_for_the_outcome(tmp_path):
         app = DeskApp(DeskSession(path, "why", "ash", clock=lambda: 0.0), refresh_seconds=0, show_pace=False)
         async with app.run_test(size=(120, 40)) as pilot:
             await pilot.press("f4")
-            await pilot.pause()
-            await app.workers.wait_for_complete()
-            await pilot.pause()
+            await wait_for(pilot, lambda: app.screen.drivers_done)
             shown = str(app.screen.query_one("#drivers").render())
             assert "cross-validated AUC" in shown, shown
             assert "small groups" not in shown

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from opencode.coding.history import Change
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
+from opencode.study import desk_queries as dq
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
@@ -154,6 +155,69 @@ def reject(study: Study, verbatim_id: int, code_number: int, coder: str) -> bool
         change.remove_assignment(verbatim_id, code_id, coder)
         change.commit(coder, "reject", "verbatim", verbatim_id, number=int(code_number))
     return True
+
+
+@dataclass(frozen=True)
+class Suggestion:
+    """A rule or machine suggestion of a code on a verbatim, whoever's run put it there (`owner`)."""
+
+    number: int
+    source: str
+    confidence: float | None
+    owner: str
+
+
+def question_suggestions(study: Study, verbatim_id: int, coder: str, own_only: bool = False) -> list[Suggestion]:
+    """The rule and machine suggestions a coder sees on a verbatim, most confident first.
+
+    Suggestions belong to the question: the coder's own and those filed under any other name (the machine
+    coder and keyword rules usually write them for `final`) count alike, one per code (the most confident),
+    leaving out codes the coder already holds by hand. `own_only` keeps only the coder's own (the desk asks
+    for that on verbatims the coder codes blind).
+    """
+    coder = _check_coder(coder)
+    mine = codes_of(study, verbatim_id, coder)
+    hand = {a.number for a in mine if a.source == "hand"}
+    found: dict[int, Suggestion] = {}
+
+    def offer(number: int, source: str, confidence: float | None, owner: str) -> None:
+        if number in hand:
+            return
+        known = found.get(number)
+        if known is None or (confidence or 0.0) > (known.confidence or 0.0):
+            found[number] = Suggestion(number, source, confidence, owner)
+
+    for a in mine:
+        if a.source != "hand":
+            offer(a.number, a.source, a.confidence, coder)
+    if not own_only:
+        owners = dict.fromkeys(other for other, _, source in dq.other_coders_codes(study, verbatim_id, coder)
+                               if source != "hand")
+        for owner in owners:
+            for a in codes_of(study, verbatim_id, owner):
+                if a.source != "hand":
+                    offer(a.number, a.source, a.confidence, owner)
+    return sorted(found.values(), key=lambda s: (-(s.confidence if s.confidence is not None else 0.0), s.number))
+
+
+def reject_suggestion(study: Study, verbatim_id: int, code_number: int, coder: str) -> int:
+    """Drop every rule or machine suggestion of one code on a verbatim, whoever's name it is filed under, as ONE
+    change filed under `coder` (so their undo brings it back); hand codes are never touched. How many went."""
+    coder = _check_coder(coder)
+    with study.transaction():
+        code_id = _resolve(study, verbatim_id, code_number, assignable=False)
+        owners = [coder] + list(dict.fromkeys(
+            other for other, number, source in dq.other_coders_codes(study, verbatim_id, coder)
+            if number == int(code_number) and source != "hand"))
+        change = Change(study)
+        removed = 0
+        for owner in owners:
+            existing = astore.get_assignment(study, verbatim_id, code_id, owner)
+            if existing is not None and existing["source"] != "hand":
+                removed += change.remove_assignment(verbatim_id, code_id, owner)
+        if removed:
+            change.commit(coder, "reject", "verbatim", verbatim_id, number=int(code_number))
+    return removed
 
 
 def codes_of(study: Study, verbatim_id: int, coder: str, sources: tuple[str, ...] | None = None) -> list[AssignedCode]:

@@ -8,6 +8,7 @@ states: 0 live, 1 undone (on the actor's redo stack), 2 undone for good (a new c
 from __future__ import annotations
 
 import sqlite3
+from dataclasses import dataclass
 from typing import Any
 
 from opencode.errors import OpenCodeError
@@ -164,6 +165,41 @@ def _last_live(study: Study, actor: str) -> tuple[int, str] | None:
         if action in UNDOABLE and undone == LIVE:
             return audit_id, action
     return None
+
+
+@dataclass(frozen=True)
+class ChangeSummary:
+    """What one audited change touched, for messages such as "undone: assign of code 10 on respondent A12"."""
+
+    action: str
+    verbatim_ids: tuple[int, ...]
+    numbers: tuple[int, ...]
+
+
+def _summary(study: Study, audit_id: int, action: str) -> ChangeSummary:
+    payload = astore.audit_payload(study, audit_id)
+    verbatims: dict[int, None] = {}
+    for op in payload.get("ops", []):
+        if op.get("t") == "a":
+            row = op.get("after") or op.get("before") or {}
+            if "verbatim_id" in row:
+                verbatims[int(row["verbatim_id"])] = None
+        elif op.get("t") in ("m", "n"):
+            verbatims[int(op["key"][0])] = None
+    numbers = payload.get("numbers", [payload["number"]] if "number" in payload else [])
+    return ChangeSummary(action, tuple(verbatims), tuple(int(n) for n in numbers))
+
+
+def next_undo(study: Study, actor: str) -> ChangeSummary | None:
+    """What `undo` would reverse now for the actor (None when nothing), without changing anything."""
+    found = _last_live(study, actor)
+    return None if found is None else _summary(study, *found)
+
+
+def next_redo(study: Study, actor: str) -> ChangeSummary | None:
+    """What `redo` would re-apply now for the actor (None when nothing), without changing anything."""
+    stack = _redo_stack(study, actor)
+    return _summary(study, *stack[-1]) if stack else None
 
 
 def undo(study: Study, actor: str) -> str | None:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import re
-import threading
 from functools import lru_cache
 from typing import Any, Iterable
 
@@ -12,10 +11,6 @@ from opencode.coding.rules import parse_rule
 from opencode.errors import OpenCodeError
 
 _WORD = re.compile(r"[\w'’\-]+")
-
-#: Held while the text analyzer is first imported in a worker thread, so the main thread never imports the
-#: same modules at the same moment (a screen opened during start-up waits for it instead of failing).
-IMPORTING = threading.Lock()
 
 
 class RuleHighlighter:

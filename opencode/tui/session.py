@@ -3,6 +3,10 @@
 Screens call these methods and redraw from the result; every method that changes codes goes through
 opencode.coding (one committed transaction each) before it returns, so a killed terminal loses nothing.
 Tests and the kill test drive a DeskSession directly, exactly as the screens do.
+
+Non-answers (flagged at import) are not served unless asked for, and progress counts answered verbatims.
+Rule and machine suggestions belong to the question: every coder sees them, whoever's name they are filed
+under, except on verbatims the coder codes blind (a reliability sample), where only their own show.
 """
 
 from __future__ import annotations
@@ -31,11 +35,45 @@ DEFAULT_CONFIDENCE_BAR = 0.6
 
 @dataclass
 class Counts:
-    """The coder's counts: hand codes per code number, verbatims per net, verbatims coded."""
+    """The coder's counts: hand codes per code number, verbatims per net, answered verbatims coded."""
 
     codes: dict[int, int] = field(default_factory=dict)
     nets: dict[int, int] = field(default_factory=dict)
     coded: int = 0
+
+
+@dataclass(frozen=True)
+class Shown:
+    """Everything the desk draws about the verbatim on it, read together (one consistent picture)."""
+
+    card: dq.VerbatimCard | None
+    held: dict[int, coding.AssignedCode]
+    suggestions: list[coding.Suggestion]
+    done: bool
+    note: str | None
+    others: list[tuple[str, int, str]]
+    blind: bool
+
+
+@dataclass(frozen=True)
+class Undone:
+    """What an undo or redo changed: the action and the codes and verbatims it touched, in words."""
+
+    action: str
+    codes: list[str]
+    verbatims: list[str]
+    count: int
+
+    def describe(self) -> str:
+        """E.g. "assign of 10 Good for children on respondent A12"."""
+        what = self.action
+        if self.codes:
+            what += " of " + ", ".join(self.codes)
+        if self.count == 1 and self.verbatims:
+            what += f" on respondent {self.verbatims[0]}"
+        elif self.count > 1:
+            what += f" on {self.count:,} verbatims"
+        return what
 
 
 def is_locked(error: Exception) -> bool:
@@ -46,7 +84,8 @@ def is_locked(error: Exception) -> bool:
 class DeskSession:
     """One coder at one question of one study: navigation, filters and coding actions."""
 
-    def __init__(self, study_path: str | Path, question: str, coder: str, clock=time.monotonic):
+    def __init__(self, study_path: str | Path, question: str, coder: str, clock=time.monotonic,
+                 show_nonanswers: bool = False):
         if not coder or not coder.strip():
             raise OpenCodeError("a coder name is needed (--coder, e.g. your initials)")
         self.study = Study.open(study_path)
@@ -60,7 +99,8 @@ class DeskSession:
         self.started = clock()
         self.session_coded: set[int] = set()
         self.confidence_bar = DEFAULT_CONFIDENCE_BAR
-        self.all_ids = dq.question_verbatim_ids(self.study, self.question.id)
+        self.show_nonanswers = show_nonanswers
+        self._read_ids()
         self.view = self.all_ids
         self.search: str | None = None  # what the view is limited to, in words (None: every verbatim)
         self.position = 0
@@ -75,6 +115,26 @@ class DeskSession:
     def close(self) -> None:
         """Close the study file (everything was committed already)."""
         self.study.close()
+
+    def _read_ids(self) -> None:
+        """The question's verbatim ids: every one, the answered ones, and those served (`all_ids`)."""
+        every = dq.question_verbatim_ids(self.study, self.question.id)
+        flagged = dq.search_ids(self.study, self.question.id, nonanswer=True)
+        self.every_ids = every
+        self.answered_ids = every if flagged.size == 0 else every[~np.isin(every, flagged)]
+        self.all_ids = every if self.show_nonanswers else self.answered_ids
+
+    def set_show_nonanswers(self, show: bool) -> None:
+        """Serve non-answers too (True) or only answered verbatims (False), staying near the verbatim shown."""
+        if show == self.show_nonanswers:
+            return
+        self.show_nonanswers = show
+        current = self.current_id
+        self._read_ids()
+        if self.search is None:
+            self.view = self.all_ids
+            if current is not None and self.view.size:
+                self.position = int(np.searchsorted(self.view, current))
 
     # -- the frame and counts --------------------------------------------------------------------------------
     def reload_frame(self) -> None:
@@ -116,7 +176,8 @@ class DeskSession:
             for net in (c for c in self.codes if c.is_net):
                 leaves = [c.number for c in self.frame.leaves_under(net.number)]
                 nets[net.number] = self._verbatims_holding(leaves)
-        self.counts = Counts(codes, nets, int(astore.coded_verbatim_ids(self.study, self.question.id, self.coder).size))
+        coded = astore.coded_verbatim_ids(self.study, self.question.id, self.coder)
+        self.counts = Counts(codes, nets, int(np.isin(coded, self.answered_ids).sum()))
 
     def _verbatims_holding(self, numbers: list[int]) -> int:
         ids = [c.id for c in self.codes if c.number in numbers]
@@ -125,8 +186,8 @@ class DeskSession:
     # -- where we are ----------------------------------------------------------------------------------------
     @property
     def total(self) -> int:
-        """Verbatims of the question."""
-        return int(self.all_ids.size)
+        """Answered verbatims of the question (what progress counts against)."""
+        return int(self.answered_ids.size)
 
     @property
     def current_id(self) -> int | None:
@@ -142,14 +203,22 @@ class DeskSession:
         return None if vid is None else dq.verbatim_card(self.study, vid)
 
     def held(self) -> list[coding.AssignedCode]:
-        """Codes this coder holds on the current verbatim (hand codes and suggestions)."""
+        """Codes this coder holds on the current verbatim (hand codes and their own suggestions)."""
         vid = self.current_id
         return [] if vid is None else coding.codes_of(self.study, vid, self.coder)
 
-    def suggestions(self) -> list[coding.AssignedCode]:
-        """Rule and machine suggestions on the current verbatim, most confident first."""
-        found = [a for a in self.held() if a.source != "hand"]
-        return sorted(found, key=lambda a: (-(a.confidence if a.confidence is not None else 0.0), a.number))
+    def is_blind(self) -> bool:
+        """Whether the current verbatim is in one of this coder's reliability samples (coded blind)."""
+        vid = self.current_id
+        return vid is not None and reliability.is_blind(self.study, self.question.name, self.coder, vid)
+
+    def suggestions(self) -> list[coding.Suggestion]:
+        """Rule and machine suggestions on the current verbatim (the question's, or only this coder's own while
+        coding blind), most confident first; codes this coder holds by hand are left out."""
+        vid = self.current_id
+        if vid is None:
+            return []
+        return coding.question_suggestions(self.study, vid, self.coder, own_only=self.is_blind())
 
     def is_done(self) -> bool:
         """Whether this coder marked the current verbatim done."""
@@ -165,9 +234,20 @@ class DeskSession:
         """Other coders' codes on the current verbatim (seen after a refresh); hidden while it is in one of
         this coder's reliability samples, so double coding stays blind."""
         vid = self.current_id
-        if vid is None or reliability.is_blind(self.study, self.question.name, self.coder, vid):
+        if vid is None or self.is_blind():
             return []
         return dq.other_coders_codes(self.study, vid, self.coder)
+
+    def shown(self) -> Shown:
+        """The current verbatim with its codes, suggestions, mark, note and other coders' codes."""
+        vid = self.current_id
+        if vid is None:
+            return Shown(None, {}, [], False, None, [], False)
+        blind = reliability.is_blind(self.study, self.question.name, self.coder, vid)
+        return Shown(dq.verbatim_card(self.study, vid), {a.number: a for a in coding.codes_of(self.study, vid, self.coder)},
+                     coding.question_suggestions(self.study, vid, self.coder, own_only=blind),
+                     coding.is_done(self.study, vid, self.coder), coding.note_of(self.study, vid, self.coder),
+                     [] if blind else dq.other_coders_codes(self.study, vid, self.coder), blind)
 
     def context(self) -> list[tuple[str, str]]:
         """(variable name, answer label) of the respondent's closed-ended answers."""
@@ -206,15 +286,22 @@ class DeskSession:
         """The last verbatim of the view."""
         self.position = max(self.view.size - 1, 0)
 
-    def go_to_id(self, verbatim_id: int) -> None:
-        """Show a verbatim; leaves a filter that does not hold it."""
+    def go_to_id(self, verbatim_id: int) -> bool:
+        """Show a verbatim; leaves a filter that does not hold it, and serves non-answers when it is one (True
+        then, so the screen can say so)."""
         if not _holds(self.view, verbatim_id):
             self.clear_search()
+        opened = False
+        if not _holds(self.view, verbatim_id) and not self.show_nonanswers:
+            self.set_show_nonanswers(True)
+            opened = True
         self.position = int(np.searchsorted(self.view, verbatim_id))
+        return opened
 
     def first_uncoded(self) -> bool:
         """Go to this coder's first uncoded verbatim (leaving any search); False if every one is coded."""
-        first = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1)
+        first = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1,
+                                   include_nonanswers=self.show_nonanswers)
         if first:
             self.go_to_id(first[0])
         return bool(first)
@@ -223,29 +310,45 @@ class DeskSession:
         """Go to the next verbatim this coder has not coded (wrapping to the start); False if none is left."""
         current = self.current_id
         if self.search is not None:
-            uncoded = np.array(coding.uncoded_ids(self.study, self.question.name, self.coder), dtype=np.int64)
+            uncoded = np.array(coding.uncoded_ids(self.study, self.question.name, self.coder,
+                                                  include_nonanswers=self.show_nonanswers), dtype=np.int64)
             left = self.view[np.isin(self.view, uncoded)]
             if left.size == 0:
                 return False
             later = left[left > (current if current is not None else -1)]
             self.go_to_id(int(later[0] if later.size else left[0]))
             return True
-        after = coding.uncoded_ids(self.study, self.question.name, self.coder, after=current, limit=1)
+        served = self.show_nonanswers
+        after = coding.uncoded_ids(self.study, self.question.name, self.coder, after=current, limit=1,
+                                   include_nonanswers=served)
         if not after:
-            after = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1)
+            after = coding.uncoded_ids(self.study, self.question.name, self.coder, limit=1, include_nonanswers=served)
         if not after:
             return False
         self.go_to_id(after[0])
         return True
 
     def next_low_confidence(self, forward: bool = True) -> bool:
-        """Go to the next verbatim with a suggestion below the confidence bar; False if there is none."""
-        current = self.current_id if self.current_id is not None else (-1 if forward else 2**62)
-        found = dq.suggestion_below(self.study, self.question.id, self.coder, self.confidence_bar, current, forward)
-        if found is None:
-            return False
-        self.go_to_id(found)
-        return True
+        """Go to the next verbatim (in the view) with a suggestion this coder sees below the confidence bar;
+        False if there is none."""
+        at = self.current_id if self.current_id is not None else (-1 if forward else 2**62)
+        owners = dq.question_coders(self.study, self.question.id)
+        if self.coder not in owners:
+            owners.append(self.coder)
+        for _ in range(10_000):  # skip verbatims whose low suggestions this coder cannot see or has settled
+            found = [v for v in (dq.suggestion_below(self.study, self.question.id, owner, self.confidence_bar, at,
+                                                     forward) for owner in owners) if v is not None]
+            if not found:
+                return False
+            at = min(found) if forward else max(found)
+            if not _holds(self.view, at):
+                continue
+            blind = reliability.is_blind(self.study, self.question.name, self.coder, at)
+            seen = coding.question_suggestions(self.study, at, self.coder, own_only=blind)
+            if any((s.confidence or 0.0) < self.confidence_bar for s in seen):
+                self.position = int(np.searchsorted(self.view, at))
+                return True
+        return False
 
     def go_to_respondent(self, key: str) -> bool:
         """Show a respondent's verbatim by the survey's respondent id; False if they gave none."""
@@ -269,9 +372,10 @@ class DeskSession:
         for name, value in spec.values:
             chosen = _respondents_with(self.study, self._respondents, name, value)
             respondents = chosen if respondents is None else np.intersect1d(respondents, chosen)
+        nonanswer = spec.nonanswer if spec.nonanswer is not None or self.show_nonanswers else False
         found = dq.search_ids(self.study, self.question.id, text=spec.text or None, code_id=code_id,
                               coder=self.coder, uncoded=spec.uncoded, respondent_ids=respondents,
-                              nonanswer=spec.nonanswer)
+                              nonanswer=nonanswer)
         if found.size == 0:
             return 0
         self.show_ids(found, spec.describe())
@@ -295,6 +399,9 @@ class DeskSession:
         return coding.is_done(self.study, vid, self.coder) or any(
             a.source == "hand" for a in coding.codes_of(self.study, vid, self.coder))
 
+    def _counts_towards_progress(self, vid: int) -> bool:
+        return _holds(self.answered_ids, vid)
+
     def _track(self, vid: int, before_numbers: set[int], was_coded: bool) -> None:
         """Update counts for one verbatim after a change (no full recount on every key)."""
         after = {a.number for a in coding.codes_of(self.study, vid, self.coder, sources=("hand",))}
@@ -308,7 +415,7 @@ class DeskSession:
         for net in nets_after - nets_before:
             self.counts.nets[net] = self.counts.nets.get(net, 0) + 1
         coded = self._coded_now(vid)
-        if coded != was_coded:
+        if coded != was_coded and self._counts_towards_progress(vid):
             self.counts.coded += 1 if coded else -1
         if coded and not was_coded:
             self.session_coded.add(vid)
@@ -339,15 +446,15 @@ class DeskSession:
         return bool(self._change(lambda vid: coding.mark_done(self.study, vid, self.coder, done)))
 
     def accept_top(self) -> int | None:
-        """Accept the most confident suggestion here; its code number, or None when there is none."""
+        """Make the most confident suggestion here this coder's hand code; its number, or None when none."""
         found = self.suggestions()
         if not found:
             return None
-        self._change(lambda vid: coding.accept(self.study, vid, found[0].number, self.coder))
+        self._change(lambda vid: coding.assign(self.study, vid, found[0].number, self.coder))
         return found[0].number
 
     def accept_all(self) -> list[int]:
-        """Accept every suggestion on the current verbatim in one undoable step; the code numbers."""
+        """Make every suggestion here this coder's hand code in one undoable step; the code numbers."""
         found = self.suggestions()
         if not found:
             return []
@@ -356,11 +463,11 @@ class DeskSession:
         return [a.number for a in found]
 
     def reject_top(self) -> int | None:
-        """Reject the most confident suggestion here; its code number, or None when there is none."""
+        """Reject the most confident suggestion here (for the question: whoever's run made it); its number."""
         found = self.suggestions()
         if not found:
             return None
-        self._change(lambda vid: coding.reject(self.study, vid, found[0].number, self.coder))
+        self._change(lambda vid: coding.reject_suggestion(self.study, vid, found[0].number, self.coder))
         return found[0].number
 
     def set_note(self, text: str) -> bool:
@@ -386,27 +493,40 @@ class DeskSession:
         self.refresh_counts()
         return given
 
-    def undo(self) -> str | None:
-        """Undo this coder's newest change; the action undone, or None."""
-        return self._history(history.undo)
+    def undo(self) -> Undone | None:
+        """Undo this coder's newest change and show the verbatim it touched; what was undone, or None."""
+        return self._history(history.next_undo, history.undo)
 
-    def redo(self) -> str | None:
-        """Redo the change this coder undid last; the action redone, or None."""
-        return self._history(history.redo)
+    def redo(self) -> Undone | None:
+        """Redo the change this coder undid last and show the verbatim it touched; what was redone, or None."""
+        return self._history(history.next_redo, history.redo)
 
-    def _history(self, step) -> str | None:
+    def _history(self, peek, step) -> Undone | None:
+        summary = peek(self.study, self.coder)
         action = step(self.study, self.coder)
-        if action is not None:
-            self.reload_frame()
-            self.refresh_counts()
-        return action
+        if action is None:
+            return None
+        self.reload_frame()
+        self.refresh_counts()
+        verbatims = list(summary.verbatim_ids) if summary is not None else []
+        if len(verbatims) == 1 and _holds(self.every_ids, verbatims[0]):
+            self.go_to_id(verbatims[0])
+        codes = []
+        for number in (summary.numbers if summary is not None else ()):
+            code = self.code(number)
+            codes.append(f"{number} {code.label}" if code is not None else str(number))
+        keys = []
+        if len(verbatims) == 1:
+            card = dq.verbatim_card(self.study, verbatims[0])
+            keys = [card.respondent] if card is not None else []
+        return Undone(action, codes, keys, len(verbatims))
 
     def refresh(self) -> None:
         """See everyone's latest changes: the frame, counts and the verbatim list."""
         self.reload_frame()
         self.refresh_counts()
         current = self.current_id
-        self.all_ids = dq.question_verbatim_ids(self.study, self.question.id)
+        self._read_ids()
         if self.search is None:
             self.view = self.all_ids
             if current is not None:

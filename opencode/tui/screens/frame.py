@@ -1,7 +1,8 @@
 """The frame screen: edit the question's code frame (labels, descriptions, hotkeys, nets, merge, retire) with counts.
 
 Letters are free here (no hotkeys are live), so edits sit on plain letters; every edit is one undoable change
-filed under the coder's name.
+filed under the coder's name. Labels wrap in their column (rows grow), so the table fits 80 columns; kind,
+net, description, include and exclude notes and the rule of the code under the cursor show below it.
 """
 
 from __future__ import annotations
@@ -9,6 +10,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
+from textual import events
 from textual.widgets import DataTable, Footer, Static
 
 from opencode.coding import frames
@@ -18,7 +20,8 @@ from opencode.study import assignments_store as astore
 from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import AddCodeModal, ConfirmModal, PromptModal
 
-COLUMNS = ("key", "no.", "label", "kind", "net", "mine", "uses", "state", "description")
+#: (title, width) of the columns beside the label, which takes the rest of the width.
+COLUMNS = (("key", 3), ("no.", 4), ("label", 0), ("mine", 6), ("uses", 6), ("state", 7))
 
 
 class FrameScreen(StudyScreen):
@@ -27,10 +30,12 @@ class FrameScreen(StudyScreen):
     BINDINGS = [
         Binding("enter,e", "edit('label')", "label", key_display="e"),
         Binding("d", "edit('description')", "description"),
+        Binding("i", "edit('include')", "include note", show=False),
+        Binding("x", "edit('exclude')", "exclude note", show=False),
         Binding("k", "edit('hotkey')", "hotkey"),
-        Binding("n", "net", "net"),
-        Binding("m", "merge", "merge"),
-        Binding("r", "retire", "retire/restore"),
+        Binding("n", "net", "net", show=False),
+        Binding("m", "merge", "merge", show=False),
+        Binding("r", "retire", "retire/restore", show=False),
         Binding("a", "add", "add"),
         Binding("ctrl+z", "undo", "undo", show=False),
         Binding("ctrl+y", "redo", "redo", show=False),
@@ -38,17 +43,32 @@ class FrameScreen(StudyScreen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield Static(id="frame-title", classes="screen-title")
+        yield Static(id="frame-title", classes="screen-title", markup=False)
         yield DataTable(id="frame-table", cursor_type="row", zebra_stripes=True)
-        yield Static(id="frame-detail", classes="detail")
-        yield Static(id="status")
-        yield Footer()
+        yield Static(id="frame-detail", classes="detail", markup=False)
+        yield Static(id="status", markup=False)
+        yield Footer(compact=True)
 
     def on_mount(self) -> None:
-        table = self.query_one(DataTable)
-        table.add_columns(*COLUMNS)
-        self.reload()
-        table.focus()
+        self._label_width = 0
+        self._shown = False
+        self.query_one(DataTable).focus()
+
+    def on_screen_resume(self) -> None:
+        if not self._shown:  # read the frame once per visit (Textual can resume a new screen twice)
+            self._shown = True
+            self.reload()
+
+    def on_screen_suspend(self) -> None:
+        self._shown = False
+
+    def on_resize(self, event: events.Resize) -> None:
+        if self._shown and self._wanted_label_width() != self._label_width:
+            self.reload(keep=self.current().number if self.current() else None)
+
+    def _wanted_label_width(self) -> int:
+        others = sum(width + 2 for _, width in COLUMNS if width)
+        return max(self.size.width - others - 3, 12)
 
     def reload(self, keep: int | None = None) -> None:
         """Read the frame and counts again and redraw the table, staying on code `keep` if given."""
@@ -57,14 +77,19 @@ class FrameScreen(StudyScreen):
         s.refresh_counts()
         table = self.query_one(DataTable)
         row = table.cursor_row
+        width = self._wanted_label_width()
+        if width != self._label_width:
+            self._label_width = width
+            table.clear(columns=True)
+            for title, column_width in COLUMNS:
+                table.add_column(title, width=column_width or width)
         table.clear()
         for code in s.codes:
             uses = astore.count_of_code(s.study, code.id)
             mine = s.counts.nets.get(code.number, 0) if code.is_net else s.counts.codes.get(code.number, 0)
-            net = s.code(code.net) if code.net is not None else None
-            table.add_row(code.hotkey or "", code.number, Text(code.label, style="bold" if code.is_net else ""),
-                          code.kind, f"{net.number} {net.label}"[:24] if net else "", mine, uses,
-                          "in use" if code.active else "retired", (code.description or "")[:60], key=str(code.number))
+            label = Text(code.label + (" (net)" if code.is_net else ""), style="bold" if code.is_net else "")
+            table.add_row(Text(code.hotkey or ""), code.number, label, mine, uses,
+                          "in use" if code.active else "retired", key=str(code.number), height=None)
         numbers = [c.number for c in s.codes]
         if keep in numbers:
             row = numbers.index(keep)
@@ -91,6 +116,8 @@ class FrameScreen(StudyScreen):
         text = Text()
         if code is not None:
             text.append(f"{code.number} {code.label}", style="bold")
+            net = self.session.code(code.net) if code.net is not None else None
+            text.append(f"  ·  {code.kind}" + (f" in net {net.number} {net.label}" if net else ""), style="dim")
             for name, value in (("description", code.description), ("include", code.include),
                                 ("exclude", code.exclude), ("rule", code.rule)):
                 if value:

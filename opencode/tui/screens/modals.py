@@ -1,4 +1,8 @@
-"""Small dialogs over the desk: one-line prompts, the add-code form, confirmations, the locked-file retry, help."""
+"""Small dialogs over the desk: one-line prompts, the add-code form, confirmations, the locked-file retry, help.
+
+Titles, hints and bodies often hold user text (labels, coder names, file names): they are drawn as plain text,
+never as markup.
+"""
 
 from __future__ import annotations
 
@@ -23,10 +27,10 @@ class PromptModal(ModalScreen[str | None]):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
-            yield Label(self.title_text, classes="dialog-title")
+            yield Label(self.title_text, classes="dialog-title", markup=False)
             yield Input(value=self.value, placeholder=self.placeholder, id="prompt-input")
             if self.hint:
-                yield Static(self.hint, classes="dialog-hint")
+                yield Static(self.hint, classes="dialog-hint", markup=False)
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         self.dismiss(event.value)
@@ -48,7 +52,7 @@ class AddCodeModal(ModalScreen[dict | None]):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
-            yield Label(self.title_text, classes="dialog-title")
+            yield Label(self.title_text, classes="dialog-title", markup=False)
             yield Input(value=self.label, placeholder="label, e.g. Wants Sunday opening", id="code-label")
             yield Input(placeholder=f"hotkey (one character; free: {self.free_keys[:24]})", id="code-hotkey",
                         max_length=1)
@@ -56,23 +60,23 @@ class AddCodeModal(ModalScreen[dict | None]):
             yield Input(placeholder=f"net number (optional; {nets})"[:120], id="code-net")
             if self.offer_net:
                 yield Input(placeholder="kind: code (default) or net", id="code-kind")
-            yield Static("Tab moves between fields · Enter adds · Esc cancels", classes="dialog-hint")
+            yield Static("Tab moves between fields · Enter adds · Esc cancels", classes="dialog-hint", markup=False)
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         label = self.query_one("#code-label", Input).value.strip()
         if not label:
             self.query_one("#code-label", Input).focus()
-            self.notify("the label is empty", severity="warning")
+            self.notify("the label is empty", severity="warning", markup=False)
             return
         net_text = self.query_one("#code-net", Input).value.strip()
         if net_text and not net_text.isdigit():
-            self.notify(f"net {net_text!r}: give the net's number", severity="warning")
+            self.notify(f"net {net_text!r}: give the net's number", severity="warning", markup=False)
             return
         kind = "code"
         if self.offer_net:
             kind = self.query_one("#code-kind", Input).value.strip().lower() or "code"
             if kind not in ("code", "net"):
-                self.notify(f"kind {kind!r}: write code or net", severity="warning")
+                self.notify(f"kind {kind!r}: write code or net", severity="warning", markup=False)
                 return
         self.dismiss({"label": label, "hotkey": self.query_one("#code-hotkey", Input).value or None,
                       "net": int(net_text) if net_text else None, "kind": kind})
@@ -92,10 +96,10 @@ class ConfirmModal(ModalScreen[bool]):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog wide"):
-            yield Label(self.title_text, classes="dialog-title")
+            yield Label(self.title_text, classes="dialog-title", markup=False)
             with VerticalScroll(classes="dialog-body"):
-                yield Static(self.body)
-            yield Static("Enter: go ahead · Esc: cancel", classes="dialog-hint")
+                yield Static(self.body, markup=False)
+            yield Static("Enter: go ahead · Esc: cancel", classes="dialog-hint", markup=False)
 
     def action_answer(self, answer: bool) -> None:
         self.dismiss(answer)
@@ -113,8 +117,9 @@ class LockedModal(ModalScreen[bool]):
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog warn"):
             yield Label("The study file is busy", classes="dialog-title")
-            yield Static(self.message)
-            yield Static("This change is not saved yet. Enter or r: try again · Esc: leave it", classes="dialog-hint")
+            yield Static(self.message, markup=False)
+            yield Static("This change is not saved yet. Enter or r: try again · Esc: leave it", classes="dialog-hint",
+                         markup=False)
 
     def action_answer(self, answer: bool) -> None:
         self.dismiss(answer)
@@ -141,12 +146,12 @@ class HelpModal(ModalScreen[None]):
             text.append(keys.ljust(width), style="bold")
             text.append(what)
         with Vertical(classes="dialog wide help"):
-            yield Label(self.title_text, classes="dialog-title")
+            yield Label(self.title_text, classes="dialog-title", markup=False)
             with VerticalScroll(classes="dialog-body"):
                 yield Static(text)
                 if self.notes:
-                    yield Static(self.notes, classes="dialog-hint")
-            yield Static("Esc closes", classes="dialog-hint")
+                    yield Static(self.notes, classes="dialog-hint", markup=False)
+            yield Static("Esc closes", classes="dialog-hint", markup=False)
 
     def action_close(self) -> None:
         self.dismiss(None)

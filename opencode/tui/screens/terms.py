@@ -1,74 +1,36 @@
 """The terms screen: the question's terms, kwic lines for the one selected, drivers when an outcome is set,
 and bulk coding of the verbatims containing a term after a review step.
 
-The term matrix and the drivers are computed in threads (the screen stays responsive, drivers show their
-progress). Drivers come from `drivers_source`, a pluggable function: it returns rows to show and a line about
-them (model quality), or no rows and a sentence saying why there are none.
+The term matrix comes from the study's cache, read in a background thread. The drivers are fitted in a child
+process (opencode.tui.drivers_job) on that cached matrix, with their progress and time shown; the process is
+killed when the coder leaves the screen or quits, so Ctrl+Q exits at once and the desk never waits for it.
 """
 
 from __future__ import annotations
 
-from typing import Callable
+import time
 
 import numpy as np
 from rich.text import Text
-from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
+from textual.timer import Timer
 from textual.widgets import DataTable, Footer, Static
-from textual.worker import get_current_worker
 
-from opencode.analysis.drivers import study as study_drivers
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.text.kwic import kwic
 from opencode.text.matrix import TermMatrix
 from opencode.text.study_text import term_matrix
 from opencode.text.words import top_terms
+from opencode.tui.background import ProcessJob, ThreadJob
 from opencode.tui.screens.base import StudyScreen
 from opencode.tui.screens.modals import ConfirmModal, PromptModal
 from opencode.tui.widgets.panes import Pane
 
 MAX_TERMS = 300
 KWIC_LINES = 40
-#: Driver terms shown per side on the terms screen.
-DRIVERS_PER_SIDE = 8
-NO_OUTCOME = "drivers: set a closed-ended outcome first (oecode drivers / a variable with role outcome)"
-
-Progress = Callable[[int, int], None]
-DriverRows = tuple[list[tuple[str, str]], str]
-
-
-def ranked_drivers(study: Study, question: str, progress: Progress | None = None) -> DriverRows:
-    """Drivers for the question's outcome (the choice `oecode drivers` stored, else the role-outcome variable).
-
-    Rows are (term, figure) for the top terms of each side; the note is the model's quality line, or why
-    there is no ranking (no outcome, the text barely predicts it, or a problem with the data).
-    """
-    choice = study_drivers.drivers_choice(study, question)
-    if choice is None:
-        return [], NO_OUTCOME
-    try:
-        result = study_drivers.question_drivers(study, question, choice["outcome"], split=choice.get("split"),
-                                                one_vs_rest=bool(choice.get("one_vs_rest")), progress=progress)
-    except OpenCodeError as error:
-        return [], f"drivers against {choice['outcome']}: {error}"
-    comparison = result.first
-    note = "  ".join(study_drivers.quality_lines(comparison))
-    if comparison.ranker.quality_note_:
-        return [], f"{note}\n{comparison.ranker.quality_note_}"
-    rows = []
-    labels = dict(zip(comparison.table["term"], comparison.table["label"]))
-    for side in (1, 0):
-        arrow = "+" if side == 1 else "-"
-        for _, row in comparison.ranker.top_terms(side, DRIVERS_PER_SIDE).iterrows():
-            rows.append((labels[row["term"]], f"{arrow} OR {row['odds_ratio']:.2f}"))
-    return rows, note
-
-
-#: (study, question, progress) -> ([(term, figure text)], note). Replace to show another drivers ranking.
-drivers_source: Callable[..., DriverRows] = ranked_drivers
 
 
 class TermsScreen(StudyScreen):
@@ -81,14 +43,14 @@ class TermsScreen(StudyScreen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield Static(" terms: reading the verbatims…", id="terms-title", classes="screen-title")
+        yield Static(" terms: reading the verbatims…", id="terms-title", classes="screen-title", markup=False)
         with Horizontal(classes="split"):
             yield DataTable(id="terms-table", cursor_type="row", zebra_stripes=True)
-            with Pane(classes="side"):
-                yield Static(id="kwic")
-        yield Static(id="drivers", classes="detail")
-        yield Static(id="status")
-        yield Footer()
+            with Pane(classes="side", id="kwic-pane"):
+                yield Static(id="kwic", markup=False)
+        yield Static(id="drivers", classes="detail", markup=False)
+        yield Static(id="status", markup=False)
+        yield Footer(compact=True)
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
@@ -96,28 +58,72 @@ class TermsScreen(StudyScreen):
         table.focus()
         self.tm: TermMatrix | None = None
         self.rows = []
-        self.run_worker(self._build, thread=True, group="terms", exclusive=True)
-        self.query_one("#drivers", Static).update(Text("drivers: reading the outcome…", style="italic"))
-        self._drivers()
+        self.drivers_job: ProcessJob | None = None
+        self.drivers_done = False
+        self._drivers_started = 0.0
+        self._drivers_step = ""
+        self._ticker: Timer | None = None
+        ThreadJob(self.app, self._read_matrix, self._ready, self._failed).start()
 
-    @work(thread=True, group="drivers", exclusive=True)
-    def _drivers(self) -> None:
-        """Fit the drivers off the UI thread on a connection of its own, showing the steps as they finish."""
+    def on_screen_resume(self) -> None:
+        if not self.drivers_done and (self.drivers_job is None or not self.drivers_job.running):
+            self.start_drivers()
+
+    def on_screen_suspend(self) -> None:
+        self.stop_drivers("drivers: stopped when you left the screen; they start again when you come back")
+
+    def on_unmount(self) -> None:
+        self.stop_drivers("")
+
+    # -- drivers in a child process --------------------------------------------------------------------------
+    def start_drivers(self) -> None:
         s = self.session
+        self._drivers_started = time.monotonic()
+        self._drivers_step = "starting"
+        self.drivers_job = ProcessJob(self.app, "opencode.tui.drivers_job", [str(s.study.path), s.question.name],
+                                      self._drivers_line, self._drivers_ended).start()
+        if self._ticker is None:
+            self._ticker = self.set_interval(1.0, self._show_progress)
+        self._show_progress()
 
-        worker = get_current_worker()
+    def stop_drivers(self, note: str) -> None:
+        if self.drivers_job is not None and self.drivers_job.running:
+            self.drivers_job.cancel()
+            if note and self.is_attached:
+                self.query_one("#drivers", Static).update(Text(note, style="italic"))
+        self._stop_ticker()
 
-        def show(found: list[tuple[str, str]], note: str) -> None:
-            if not worker.is_cancelled:
-                self.app.call_from_thread(self._show_drivers, found, note)
+    def _stop_ticker(self) -> None:
+        if self._ticker is not None:
+            self._ticker.stop()
+            self._ticker = None
 
-        try:
-            with Study.open(s.study.path) as study:
-                found, note = drivers_source(study, s.question.name,
-                                             lambda done, total: show([], f"drivers: fitting… step {done} of {total}"))
-        except OpenCodeError as error:
-            found, note = [], f"drivers: {error}"
-        show(found, note)
+    def _show_progress(self) -> None:
+        if self.drivers_done or not self.is_attached:
+            return
+        seconds = time.monotonic() - self._drivers_started
+        self.query_one("#drivers", Static).update(Text(
+            f"drivers: fitting on the cached term matrix… {self._drivers_step} · {seconds:.0f} s "
+            "(leave the screen to stop)", style="italic"))
+
+    def _drivers_line(self, message: dict) -> None:
+        if "progress" in message:
+            done, total = message["progress"]
+            self._drivers_step = f"step {done} of {total} done"
+            self._show_progress()
+            return
+        self.drivers_done = True
+        self._stop_ticker()
+        if "error" in message:
+            self._show_drivers([], f"drivers: {message['error']}")
+        else:
+            self._show_drivers([tuple(row) for row in message.get("rows", [])], message.get("note", ""))
+
+    def _drivers_ended(self, code: int) -> None:
+        if not self.drivers_done:
+            self.drivers_done = True
+            self._stop_ticker()
+            self._show_drivers([], f"drivers: the fit stopped unexpectedly (exit {code})")
 
     def _show_drivers(self, found: list[tuple[str, str]], note: str) -> None:
         if not self.is_attached:
@@ -130,24 +136,27 @@ class TermsScreen(StudyScreen):
                 text.append(f"{figure}   ")
         self.query_one("#drivers", Static).update(text)
 
-    def _build(self) -> None:
+    # -- the term matrix in a thread -------------------------------------------------------------------------
+    def _read_matrix(self):
         s = self.session
-        try:  # the study's cached matrix, read on this worker's own connection
-            with Study.open(s.study.path) as own:
-                tm, frame = term_matrix(own, s.question.name)
-            rows = top_terms(tm, n=MAX_TERMS)
-        except OpenCodeError as error:
-            self.app.call_from_thread(self.say, str(error), True)
-            return
-        self.app.call_from_thread(self._ready, tm, frame, rows)
+        with Study.open(s.study.path) as own:  # the study's cached matrix, read on this thread's own connection
+            tm, frame = term_matrix(own, s.question.name)
+        return tm, frame, top_terms(tm, n=MAX_TERMS)
 
-    def _ready(self, tm: TermMatrix, frame, rows) -> None:
+    def _failed(self, error: BaseException) -> None:
+        if self.is_attached:
+            self.say(str(error) if isinstance(error, OpenCodeError) else f"terms: {error!r}", True)
+
+    def _ready(self, found) -> None:
+        if not self.is_attached:
+            return
+        tm, frame, rows = found
         self.tm, self.texts, self.rows = tm, frame["text"].tolist(), rows
         self.row_verbatim_ids = frame["verbatim_id"].to_numpy()[tm.rows_source]
         table = self.query_one(DataTable)
         for row in rows:
-            table.add_row(row.label, row.verbatims, f"{row.percent:.1f}",
-                          ", ".join(form for form, _ in row.surfaces[:3]))
+            table.add_row(Text(row.label), row.verbatims, f"{row.percent:.1f}",
+                          Text(", ".join(form for form, _ in row.surfaces[:3])))
         self.query_one("#terms-title", Static).update(
             Text(f" terms of {self.session.question.name}  ·  {len(rows)} shown  ·  "
                  f"{tm.counts.shape[0]:,} verbatims with terms", style="bold"))
@@ -166,13 +175,15 @@ class TermsScreen(StudyScreen):
         row = self.selected()
         if row is None or self.tm is None:
             return
+        room = self.query_one("#kwic-pane", Pane).scrollable_content_region.width or 60
+        side = max((room - len(row.label) - 2) // 2, 8)
         text = Text()
-        for line in kwic(self.tm, self.texts, row.term, width=30, limit=KWIC_LINES):
+        for line in kwic(self.tm, self.texts, row.term, width=side, limit=KWIC_LINES):
             if text:
                 text.append("\n")
-            text.append(line.left.rjust(30), style="dim")
+            text.append(line.left[-side:].rjust(side), style="dim")
             text.append(f" {line.match} ", style="bold underline")
-            text.append(line.right, style="dim")
+            text.append(line.right[:side], style="dim")
         self.query_one("#kwic", Static).update(text)
 
     def term_ids(self, term: str) -> list[int]:

@@ -40,13 +40,13 @@ class ThemesScreen(StudyScreen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield Static(id="themes-title", classes="screen-title")
+        yield Static(id="themes-title", classes="screen-title", markup=False)
         with Horizontal(classes="split"):
             yield DataTable(id="runs-table", cursor_type="row")
             yield DataTable(id="themes-table", cursor_type="row", zebra_stripes=True)
-        yield Static(id="theme-detail", classes="detail")
-        yield Static(id="status")
-        yield Footer()
+        yield Static(id="theme-detail", classes="detail", markup=False)
+        yield Static(id="status", markup=False)
+        yield Footer(compact=True)
 
     def on_mount(self) -> None:
         s = self.session
@@ -55,7 +55,7 @@ class ThemesScreen(StudyScreen):
         runs = self.query_one("#runs-table", DataTable)
         runs.add_columns("run", "method", "k", "saved")
         for run in self.runs:
-            runs.add_row(run["id"], run["method"], run["k"], run["created_at"][:16].replace("T", " "))
+            runs.add_row(run["id"], Text(str(run["method"])), run["k"], run["created_at"][:16].replace("T", " "))
         self.query_one("#themes-table", DataTable).add_columns("theme", "draft label", "verbatims", "top terms")
         title = Text(f" theme runs of {s.question.name}  ·  {len(self.runs)} saved", style="bold")
         if not self.runs:
@@ -87,8 +87,8 @@ class ThemesScreen(StudyScreen):
         table.clear()
         for theme in self.current_themes():
             terms = [str(t) for t in theme["top_terms"]]
-            table.add_row(theme["number"], theme.get("label") or propose_code_label(terms),
-                          theme.get("n_dominant", ""), ", ".join(terms[:6]))
+            table.add_row(theme["number"], Text(str(theme.get("label") or propose_code_label(terms))),
+                          theme.get("n_dominant", ""), Text(", ".join(terms[:6])))
         self.show_theme()
 
     def selected_theme(self) -> dict | None:
