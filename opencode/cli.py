@@ -20,14 +20,14 @@ VERBS = {
 }
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser with every available verb."""
+def build_parser(verb: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser with every available verb (or only `verb`'s module, so a command starts at once)."""
     parser = argparse.ArgumentParser(prog="oecode", description="Code open-ended survey answers: from the survey "
                                      "file to a code frame, coded data, agreement and tables.")
     parser.add_argument("--version", action="version", version=f"oecode {__version__}")
     subparsers = parser.add_subparsers(dest="verb", metavar="VERB")
     registered = set()
-    for module_name in dict.fromkeys(VERBS.values()):
+    for module_name in [VERBS[verb]] if verb in VERBS else dict.fromkeys(VERBS.values()):
         try:
             module = importlib.import_module(f"opencode.commands.{module_name}")
         except ModuleNotFoundError as error:
@@ -41,7 +41,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     """Run one verb; user-fixable problems print one clear line and exit 1."""
-    parser = build_parser()
+    words = sys.argv[1:] if argv is None else argv
+    parser = build_parser(next((w for w in words if not w.startswith("-")), None))
     args = parser.parse_args(argv)
     if not getattr(args, "handler", None):
         parser.print_help()

@@ -21,7 +21,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from opencode.coding import assignments as coding
 from opencode.coding.assignments import FINAL
@@ -94,6 +93,7 @@ def _stratum_labels(study: Study, variable_name: str, respondent_ids: np.ndarray
 
 def _allocation(labels: list[str | None], chosen: np.ndarray) -> list[list[Any]]:
     """[[stratum, verbatims, drawn], ...] in order of first appearance."""
+    import pandas as pd  # imported here so the desk starts without pandas
     series = pd.Series([MISSING_STRATUM if x is None else x for x in labels], dtype=object)
     population = series.value_counts(sort=False)
     drawn = series[chosen].value_counts(sort=False).reindex(population.index, fill_value=0)

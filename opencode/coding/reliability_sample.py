@@ -6,7 +6,6 @@ import math
 from collections.abc import Hashable, Sequence
 
 import numpy as np
-import pandas as pd
 
 from opencode.errors import OpenCodeError
 
@@ -41,6 +40,7 @@ def proportional_allocation(stratum_sizes: Sequence[int], n: int) -> np.ndarray:
 
 def _stratum_keys(strata: Sequence) -> np.ndarray:
     """Stratum codes per id; missing values (None, NaN) form their own stratum."""
+    import pandas as pd  # imported here so the desk starts without pandas
     values = pd.Series(list(strata), dtype=object)
     values = values.where(values.notna(), MISSING_STRATUM)
     codes, _ = pd.factorize(values, sort=False)
@@ -64,6 +64,7 @@ def draw_reliability_sample(
     if not ids:
         raise OpenCodeError("reliability sample: there are no verbatims to draw from")
     if len(set(ids)) != len(ids):
+        import pandas as pd  # imported here so the desk starts without pandas
         duplicate = pd.Series(ids, dtype=object)
         first = duplicate[duplicate.duplicated()].iloc[0]
         raise OpenCodeError(f"reliability sample: verbatim id {first!r} appears more than once")

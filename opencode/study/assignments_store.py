@@ -7,12 +7,14 @@ Writers expect to run inside study.transaction(); readers use the indexes on (co
 from __future__ import annotations
 
 import json
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Iterator
 
 import numpy as np
-import pandas as pd
 
 from opencode.study.store import Study
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 #: The columns of an assignment row as ops and readers carry it.
 ASSIGNMENT_COLUMNS = ("verbatim_id", "code_id", "coder", "source", "confidence", "created_at")
@@ -80,6 +82,7 @@ def assignments_table(study: Study, question_id: int, coders: list[str] | None =
     if sources:
         query += f" AND a.source IN ({', '.join('?' for _ in sources)})"
         params += list(sources)
+    import pandas as pd  # imported here so the desk starts without pandas
     return pd.read_sql_query(query + " ORDER BY a.verbatim_id, c.number", study.db, params=params)
 
 

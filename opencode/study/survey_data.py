@@ -5,12 +5,15 @@ from __future__ import annotations
 import io
 import json
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 KINDS = ("text", "single", "multiple", "numeric", "date")
 ROLES = ("id", "question", "outcome", "banner", "weight", "other")
@@ -157,6 +160,7 @@ def verbatims(study: Study, question: str, include_nonanswers: bool = True) -> p
              "FROM verbatims v JOIN respondents r ON r.id = v.respondent_id WHERE v.question_id = ?")
     if not include_nonanswers:
         query += " AND v.nonanswer = 0"
+    import pandas as pd  # imported here so the desk starts without pandas
     frame = pd.read_sql_query(query + " ORDER BY v.respondent_id", study.db, params=(variable.id,))
     frame["nonanswer"] = frame["nonanswer"].astype(bool)
     return frame
