@@ -160,6 +160,15 @@ class TmuxTerminal:
             time.sleep(0.02)
         return time.perf_counter() - start
 
+    def settle(self, quiet: float = 0.3, timeout: float = 30.0) -> str:
+        """The screen once the program has written nothing for `quiet` seconds (a whole frame drawn)."""
+        end = time.perf_counter() + timeout
+        while time.perf_counter() < end:
+            seen = self.outputs()
+            if not self.wait_output(seen, quiet):
+                break
+        return self.screen()[0]
+
     def pane_pid(self) -> int:
         return int(self.command("display-message -p -t main '#{pane_pid}'").lines[0])
 
