@@ -9,7 +9,7 @@ from opencode.coding import assignments as coding
 from opencode.study import theme_runs_store
 from opencode.study.store import Study
 from opencode.study.survey_data import get_question
-from helpers import make_app, make_desk_study
+from helpers import make_app, make_desk_study, wait_for
 
 SIZE = (100, 30)
 
@@ -59,6 +59,7 @@ def test_terms_screen(tmp_path, snap_compare):
     async def load(pilot) -> None:
         await settle(pilot)
         await pilot.press("f4")
+        await wait_for(pilot, lambda: pilot.app.screen.drivers_done and pilot.app.screen.rows)
         await settle(pilot)
     assert snap_compare(make_app(make_desk_study(tmp_path)), press=["down"], terminal_size=SIZE, run_before=load)
 

@@ -33,12 +33,17 @@ def terminal():
     term.close()
 
 
-def open_desk(terminal: TmuxTerminal, path, coder: str = "ash") -> str:
-    terminal.send(f"exec {sys.executable} -m opencode code {path} --question why --coder {coder} --refresh 0",
+def open_desk(terminal: TmuxTerminal, path, ready=lambda screen: True) -> str:
+    terminal.send(f"exec {sys.executable} -m opencode code {path} --question why --coder ash --refresh 0",
                   literal=True)
     terminal.send("Enter")
-    terminal.wait_for(lambda s: "coded (" in s and "palette" in s, timeout=90)
+    terminal.wait_for(lambda s: "coded (" in s and "palette" in s and ready(s), timeout=90)
     return terminal.settle()
+
+
+def panel(screen: str) -> str:
+    """The frame panel's words (right of the desk's left column at 80 columns)."""
+    return words(" ".join(line[48:] for line in screen.splitlines()))
 
 
 def words(text: str) -> str:
@@ -52,11 +57,10 @@ def test_a_coders_day_in_a_real_terminal(terminal, tmp_path):
         coding.assign(study, 2, 3, "final", source="machine", confidence=0.42)
         coding.set_codes(study, 4, [1], "bryn")
         coding.set_codes(study, 4, [2], "cai")
-    screen = open_desk(terminal, path)
+    screen = open_desk(terminal, path, lambda s: LONG in panel(s) and "others: bryn" in s)  # 1: labels in full
     lines = screen.splitlines()
     assert len(lines) == 24 and all(len(line) <= 80 for line in lines)
-    panel = words(" ".join(line[48:] for line in lines))
-    assert LONG in panel and "Not safe without staff" in panel  # 1: every label in full, wrapped
+    assert "Not safe without staff" in panel(screen) and "Convenient hours" in panel(screen)
     top = next(i for i, line in enumerate(lines) if "╭" in line)
     assert "╰" in lines[top + 2] and "Not safe without staff at night" in lines[top + 1]  # 1: box fits its text
     assert "1 of 4" in screen and "0/4 coded" in screen  # 3: the non-answer A3 is not served
@@ -69,9 +73,10 @@ def test_a_coders_day_in_a_real_terminal(terminal, tmp_path):
                  "exclude: staff losing jobs (code 2)"):
         assert note in text  # 2: the pressed code's notes
     terminal.send("Right")
-    screen, _ = terminal.wait_for(lambda s: "respondent A2" in s)
+    terminal.wait_for(lambda s: "respondent A2" in s and "machine 42%" in s)
+    screen = terminal.settle()
     assert "+ 1 Not safe" not in screen  # 5: the message went with A1
-    assert "→ h 3 Convenient hours" in screen and "machine 42%" in screen  # 4: final's suggestion reaches ash
+    assert "→ h 3 Convenient hours" in screen  # 4: final's suggestion reaches ash
     terminal.send("C-k")
     terminal.wait_for(lambda s: "accepted 3 Convenient hours" in s)
     assert hand(path, "A2") == [3]
@@ -80,19 +85,17 @@ def test_a_coders_day_in_a_real_terminal(terminal, tmp_path):
     assert hand(path, "A2") == [] and hand(path, "A2", "final", "machine") == [3]
 
     terminal.send("F3")
-    screen, _ = terminal.wait_for(lambda s: "code frame of why" in s)
+    screen, _ = terminal.wait_for(lambda s: "code frame of why" in s and "esc desk" in s.splitlines()[-1])
     header = screen.splitlines()[1]
     assert all(title in header for title in ("key", "no.", "label", "mine", "uses", "state"))  # 1: 80x24 frame
-    assert "esc desk" in screen.splitlines()[-1]
     terminal.send("Escape")
     terminal.wait_for(lambda s: "respondent A2" in s)
     terminal.send("F6")  # 7: compare the two most active coders, ash and bryn, who differ on A1
-    screen, _ = terminal.wait_for(lambda s: "compare" in s and "settled" in s)
+    screen, _ = terminal.wait_for(lambda s: "compare" in s and "settled" in s and "esc desk" in s.splitlines()[-1])
     assert "compare ash with bryn" in screen and "0 of 1 settled" in screen
-    assert "esc desk" in terminal.settle().splitlines()[-1]
     terminal.send("u", literal=True)
-    screen, _ = terminal.wait_for(lambda s: "1 of 1 settled" in s)
-    assert "A1: final now holds 1 Not safe without staff, 2 Staff jobs" in words(screen)
+    terminal.wait_for(lambda s: "1 of 1 settled" in s and "✓ settled" in s and
+                      "A1: final now holds 1 Not safe without staff, 2 Staff jobs" in words(s))
     assert hand(path, "A1", "final") == [1, 2]
     terminal.send("C-q")
     assert terminal.wait_exit(30) >= 0

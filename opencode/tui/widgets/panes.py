@@ -174,7 +174,7 @@ class FrameRows:
     wrapped to the panel's width, so every label shows in full however narrow the panel."""
 
     #: Below this panel width the coder's counts are left out, so labels keep the room (the frame screen has them).
-    COUNTS_FROM = 40
+    COUNTS_FROM = 34
 
     def __init__(self, rows: list[tuple[Text, Text, int, int]]):
         self.rows = rows
