@@ -127,7 +127,9 @@ def _explore(study: Study, folder: Path, outputs: DemoOutputs, say) -> list[Repo
         outputs.files[f"themes chart ({question})"] = chart
         outputs.lines.append(f"{question}: {k} themes (recommended by coherence and stability; reading them is the "
                              "final test): " + "; ".join(t.label for t in themes.run.themes))
-        sections.append(ReportSection(f"Themes in {question}", themes_html(themes, chart)))
+        sections.append(ReportSection(f"Themes in {question}", themes_html(themes, chart),
+                                      summary=f"Themes in {question} ({k}): " +
+                                      "; ".join(t.label for t in themes.run.themes)))
     say("why: drivers of support (support or strong support against oppose or strong oppose)")
     remember_choice(study, "why", DEMO_OUTCOME, split=DEMO_SPLIT, actor=ACTOR)
     drivers = question_drivers(study, "why", DEMO_OUTCOME, split=DEMO_SPLIT, n_subsamples=20)
@@ -138,7 +140,10 @@ def _explore(study: Study, folder: Path, outputs: DemoOutputs, say) -> list[Repo
     sides = [", ".join(label[t] for t in comparison.ranker.top_terms(side, 6)["term"]) for side in (1, 0)]
     outputs.lines.append(f"why: drivers of {DEMO_OUTCOME}: cross-validated AUC {comparison.ranker.cv_auc_:.2f}; "
                          f"{comparison.outcome.labels[1]}: {sides[0]}; {comparison.outcome.labels[0]}: {sides[1]}")
-    sections.append(ReportSection(f"Drivers of {DEMO_OUTCOME} in why", drivers_html(drivers, chart, heading=False)))
+    sections.append(ReportSection(f"Drivers of {DEMO_OUTCOME} in why", drivers_html(drivers, chart, heading=False),
+                                  summary=f"Drivers of {DEMO_OUTCOME} in why (cross-validated AUC "
+                                  f"{comparison.ranker.cv_auc_:.2f}): {comparison.outcome.labels[1]}: {sides[0]}; "
+                                  f"{comparison.outcome.labels[0]}: {sides[1]}"))
     return sections
 
 

@@ -1,13 +1,16 @@
-"""The HTML report: one self-contained file (styles and charts inside) with the study, its codes and tables.
+"""The HTML report: one self-contained file (styles and charts inside) a client can read in five minutes.
 
-Sections: cautions, the study at a glance, then per question the code frame with example verbatims (masked
-by default), the code frequencies with a bar chart, banner tables, coder agreement when given, and any
-sections the caller adds (e.g. drivers or themes). Nothing refers to outside resources, so the file opens
-offline and prints cleanly.
+It opens on one screen of summary: respondents and bases, each question's top codes as a chart, coder
+agreement per code with its interval as a chart (codes under the bar marked by shape and named in words),
+and themes and drivers in one line each. Cautions follow; every long part (frequencies, the frame with
+example verbatims masked by default, banner tables split so none is wider than the page, agreement detail,
+sections the caller adds such as themes or drivers) sits in a collapsible <details>. Nothing refers to
+outside resources, so the file opens offline and prints cleanly (collapsed parts print open).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import html
 import os
@@ -20,7 +23,7 @@ import numpy as np
 
 from opencode import __version__
 from opencode.analysis.tables import coded_data
-from opencode.analysis.agreement.core import AgreementResult
+from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
@@ -29,13 +32,20 @@ from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.files.html_embed import png_img
 from opencode.files.masking import mask_identifiers
-from opencode.export.report_charts import frequency_chart_png
+from opencode.export.report_charts import agreement_chart_png, frequency_chart_png
 from opencode.files.safe_write import atomic_open, check_writable_target
 from opencode.files.palette import OKABE_ITO
+from opencode.study import survey_data, theme_runs_store
 from opencode.study.store import Study
 from opencode.study.summary import summarise
 
 QUOTE_LENGTH = (15, 280)  # example verbatims of a readable length are preferred (characters)
+#: Per-code agreement under this is flagged: the lower edge of "substantial" in Landis & Koch (1977), Biometrics 33.
+AGREEMENT_BAR = 0.61
+#: Codes in the summary chart of each question.
+TOP_CODES = 6
+#: Banner columns (Total included) per table, so a banner table fits an 800-pixel page.
+BANNER_COLUMNS = 5
 
 CAUTIONS = (
     "Verbatims can identify respondents. Quoted verbatims here have e-mail addresses, phone numbers and web "
@@ -52,8 +62,9 @@ REPORT_CSS = f"""\
 * {{ box-sizing: border-box; }}
 body {{ font-family: system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif;
        color: var(--ink); background: #fbfbf9; margin: 0; line-height: 1.45; }}
-main {{ max-width: 72rem; margin: 0 auto; padding: 1.5rem 2rem 3rem; background: #fff; }}
-header.oc-head {{ border-bottom: 3px solid var(--accent); margin-bottom: 1rem; }}
+main {{ max-width: 72rem; margin: 0 auto; padding: 1rem 1.5rem 3rem; background: #fff; }}
+@media (max-width: 900px) {{ main {{ padding: 0.8rem 0.8rem 2rem; }} }}
+header.oc-head {{ margin-bottom: 0.4rem; }}
 header.oc-head h1 {{ margin: 0 0 0.2rem; font-size: 1.7rem; }}
 header.oc-head p {{ margin: 0 0 0.8rem; color: var(--muted); font-size: 0.9rem; }}
 h2 {{ font-size: 1.3rem; border-left: 5px solid var(--accent); padding-left: 0.5rem; margin-top: 2.2rem; }}
@@ -73,6 +84,29 @@ table.oc-plain {{ border-collapse: collapse; font-size: 0.9em; }}
 table.oc-plain th, table.oc-plain td {{ padding: 0.2em 0.5em; border-bottom: 1px solid var(--rule); text-align: left;
                                        vertical-align: top; }}
 .oc-scroll {{ overflow-x: auto; }}
+section.oc-summary {{ border-bottom: 3px solid var(--accent); padding-bottom: 0.6rem; }}
+section.oc-summary h2 {{ margin-top: 0.6rem; }}
+ul.oc-facts {{ margin: 0.3rem 0; padding-left: 1.2rem; font-size: 0.95rem; }}
+div.oc-pair {{ display: grid; grid-template-columns: repeat(2, minmax(0, 1fr)); gap: 0 1.2rem; align-items: start; }}
+@media (max-width: 900px) {{ div.oc-pair {{ grid-template-columns: minmax(0, 1fr); }} }}
+div.oc-pair figure {{ margin: 0.4rem 0; min-width: 0; }}
+div.oc-pair img {{ width: 100%; }}
+div.oc-pair h3 {{ grid-column: 1 / -1; margin: 0.8rem 0 0; }}
+p.oc-flag {{ margin: 0.2rem 0; font-size: 0.9rem; }}
+p.oc-flag strong {{ border-bottom: 2px dotted var(--warm); }}
+ul.oc-lines {{ list-style: none; padding: 0; margin: 0.5rem 0; font-size: 0.92rem; }}
+ul.oc-lines li {{ margin: 0.15rem 0; }}
+details {{ margin: 0.6rem 0; border: 1px solid var(--rule); border-radius: 4px; padding: 0.2rem 0.8rem; }}
+details > summary {{ cursor: pointer; font-weight: 600; padding: 0.3rem 0; }}
+details[open] > summary {{ border-bottom: 1px solid var(--rule); margin-bottom: 0.4rem; }}
+table {{ max-width: 100%; }}
+img {{ max-width: 100%; height: auto; }}
+table.oc-table td.oc-num, table.oc-table td.oc-mark {{ white-space: nowrap; }}
+table.oc-table th {{ font-weight: 600; vertical-align: bottom; }}
+table td, table th {{ overflow-wrap: anywhere; }}
+section.oc-agreement table {{ font-size: 0.78em; }}
+section.oc-agreement table td.oc-num {{ white-space: normal; }}
+section.oc-agreement table th, section.oc-agreement table td {{ padding: 0.2em 0.3em; }}
 td.oc-undefined {{ color: var(--muted); font-style: italic; }}
 footer.oc-foot {{ margin-top: 3rem; font-size: 0.8rem; color: var(--muted); border-top: 1px solid var(--rule); }}
 @media print {{
@@ -82,6 +116,8 @@ footer.oc-foot {{ margin-top: 3rem; font-size: 0.8rem; color: var(--muted); bord
   section.oc-question {{ break-before: page; }}
   table, figure, aside {{ break-inside: avoid; }}
   .oc-scroll {{ overflow: visible; }}
+  details {{ border: 0; padding: 0; }}
+  details > summary {{ list-style: none; }}
   a {{ color: inherit; text-decoration: none; }}
   @page {{ margin: 15mm 12mm; }}
 }}
@@ -93,10 +129,24 @@ _OUTSIDE = re.compile(r"""(?:\bsrc\s*=\s*["']?|<link\b[^>]*\bhref\s*=\s*["']?|ur
 
 @dataclass(frozen=True)
 class ReportSection:
-    """A section the caller adds: a title and an HTML fragment (trusted, must not load outside resources)."""
+    """A section the caller adds: a title, an HTML fragment (trusted, must not load outside resources) and
+    optionally one line for the summary (e.g. "Themes in why: ...")."""
 
     title: str
     html: str
+    summary: str = ""
+
+
+@dataclass
+class _Part:
+    """One question's pieces: its summary figures and its collapsible detail."""
+
+    anchor: str
+    title: str
+    facts: str
+    charts: str
+    flags: str
+    body: str
 
 
 def build_report(
@@ -115,11 +165,13 @@ def build_report(
     mask_verbatims: bool = True,
     title: str | None = None,
     notes: list[str] | None = None,
+    agreement_bar: float = AGREEMENT_BAR,
 ) -> Path:
     """Write the report for `questions` (default: every question with a code frame) and return its path.
 
-    `agreement` maps a question to its coder-agreement result; `notes` (if given) collects the warnings the
-    report states (suggestions included, verbatims not yet coded, small bases) for the caller to show.
+    `agreement` maps a question to its coder-agreement result; per-code agreement under `agreement_bar` is
+    flagged. `notes` (if given) collects the warnings the report states (suggestions included, verbatims not
+    yet coded, small bases) for the caller to show.
     """
     target = check_writable_target(path)
     for section in extra_sections:
@@ -128,17 +180,20 @@ def build_report(
     survey_weight = None if unweighted else coded_data.survey_weight(study, weight)
     banners = [coded_data.banner_variable(study, name) for name in dict.fromkeys(banner)]
     said: list[str] = []
-    sections: list[tuple[str, str, str]] = []  # (anchor, title, html)
+    parts: list[_Part] = []
     for index, question in enumerate(coded_data.coded_questions(study, questions)):
         coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
-        body, question_notes = _question_section(coding, banners, survey_weight, agreement, quotes_per_code,
-                                                 mask_verbatims)
+        part, question_notes = _question_part(f"q{index + 1}", coding, banners, survey_weight,
+                                              (agreement or {}).get(question), agreement_bar, quotes_per_code,
+                                              mask_verbatims)
         said += question_notes
-        sections.append((f"q{index + 1}", f"{question}: {coding.label}", body))
-    for index, section in enumerate(extra_sections):
-        sections.append((f"extra{index + 1}", section.title, section.html))
-    summary = _summary_section(study, survey_weight.name if survey_weight else None)
-    page = _page(title or f"Coded results: {study.path.stem}", coder, include_suggestions, summary, sections, said)
+        parts.append(part)
+    lines = [section.summary for section in extra_sections if section.summary]
+    lines += _theme_lines(study, [p.title.split(":")[0] for p in parts], extra_sections)
+    extras = [(f"extra{i + 1}", section.title, section.html) for i, section in enumerate(extra_sections)]
+    summary = summarise(study)
+    page = _page(title or f"Coded results: {study.path.stem}", coder, include_suggestions, summary,
+                 survey_weight.name if survey_weight else None, parts, lines, extras, said)
     with atomic_open(target, "w") as handle:
         handle.write(page)
     if notes is not None:
@@ -146,27 +201,126 @@ def build_report(
     return target
 
 
-def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreement, quotes_per_code: int,
-                      mask: bool) -> tuple[str, list[str]]:
-    """One question: notes, frame with example verbatims, frequencies and chart, banner table, agreement."""
+def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weight, agreement: AgreementResult | None,
+                   bar: float, quotes_per_code: int, mask: bool) -> tuple[_Part, list[str]]:
+    """One question: its summary (facts, top codes chart, agreement chart, flagged codes) and its detail."""
     made = coding_tables(coding, banners, weight)
     frequencies, notes = made.frequencies, made.warnings
-    parts = [f'<p class="oc-lead">Coder: <strong>{html.escape(coding.coder)}</strong>; base: '
-             f"{frequencies.base.n:,} coded verbatims that are not non-answers; "
-             f"{frequencies.non_answer.n:,} non-answers shown apart.</p>"]
-    parts += [f'<p class="oc-note">{html.escape(n)}</p>' for n in notes]
-    parts.append('<div class="oc-scroll">' + to_html(frequencies) + "</div>")
-    img = png_img(frequency_chart_png(frequencies), f"Bar chart: % of respondents per code and net of {coding.question}",
+    answered, non_answers = frequencies.base.n, frequencies.non_answer.n
+    share = frequencies.non_answer_share
+    facts = (f"<strong>{html.escape(coding.question)}</strong> ({html.escape(coding.label)}): base {answered:,} "
+             f"answered verbatims coded by {html.escape(coding.coder)}; {non_answers:,} non-answers "
+             f"({'-' if share != share else f'{share:.0%}'}) shown apart")
+    if frequencies.small_base:
+        facts += f" <strong>(small base: under {MIN_BASE}, read with caution)</strong>"
+    top = png_img(frequency_chart_png(frequencies, top=TOP_CODES),
+                  f"Bar chart: the {TOP_CODES} codes of {coding.question} most respondents got, as % of the base",
                   css_class="oc-chart-image")
-    parts.append(f'<figure class="oc-chart">{img}'
-                 "<figcaption>% of respondents in the base per code; nets count a respondent once.</figcaption></figure>")
-    parts.append("<h3>Code frame with example verbatims</h3>" + _frame_table(coding, quotes_per_code, mask))
+    charts = [f'<figure class="oc-chart">{top}<figcaption>Top codes of {html.escape(coding.question)}: % of '
+              "respondents in the base.</figcaption></figure>"]
+    flags = ""
+    if agreement is not None:
+        chart, flagged, statistic = _agreement_chart(agreement, bar)
+        charts.append(f'<figure class="oc-chart">{chart}<figcaption>{html.escape(statistic)} per code between '
+                      f"{html.escape(', '.join(agreement.coders))}, with its interval; dashed line: the bar "
+                      f"{bar:.2f} (Landis &amp; Koch: substantial).</figcaption></figure>")
+        if flagged:
+            flags = (f'<p class="oc-flag">▽ <strong>Under the bar ({bar:.2f})</strong> in {html.escape(coding.question)}: '
+                     + "; ".join(html.escape(f) for f in flagged) + ". Review these codes' definitions.</p>")
+        else:
+            flags = f'<p class="oc-flag">Every code of {html.escape(coding.question)} is at or above the bar ({bar:.2f}).</p>'
+    else:
+        charts.append('<p class="oc-note">No coder agreement measured for this question (oecode agree, or '
+                      "--coders with oecode report).</p>")
+    body = [f'<p class="oc-lead">Coder: <strong>{html.escape(coding.coder)}</strong>; base: '
+            f"{answered:,} coded verbatims that are not non-answers; {non_answers:,} non-answers shown apart.</p>"]
+    body += [f'<p class="oc-note">{html.escape(n)}</p>' for n in notes]
+    freq_img = png_img(frequency_chart_png(frequencies), f"Bar chart: % of respondents per code and net of "
+                       f"{coding.question}", css_class="oc-chart-image")
+    body.append(_details("Code frequencies, every code and net", to_html(frequencies) +
+                         f'<figure class="oc-chart">{freq_img}<figcaption>% of respondents in the base per code; '
+                         "nets count a respondent once.</figcaption></figure>"))
+    body.append(_details("Code frame with example verbatims", _frame_table(coding, quotes_per_code, mask)))
     if made.banner is not None:
-        parts.append('<div class="oc-scroll">' + to_html(made.banner) + "</div>")
-    if agreement and coding.question in agreement:
-        parts.append('<div class="oc-scroll">' + format_agreement_html(
-            agreement[coding.question], title=f"Coder agreement on {coding.question}") + "</div>")
-    return "\n".join(parts), notes
+        parts = _banner_parts(made.banner)
+        body.append(_details(f"Banner tables ({len(parts)})", "".join(to_html(t) for t in parts)))
+    if agreement is not None:
+        body.append(_details("Coder agreement in detail", format_agreement_html(
+            agreement, title=f"Coder agreement on {coding.question}")))
+    part = _Part(anchor, f"{coding.question}: {coding.label}", facts, "".join(charts), flags, "\n".join(body))
+    return part, notes
+
+
+def _details(summary: str, inner: str, opened: bool = False) -> str:
+    return f"<details{' open' if opened else ''}><summary>{html.escape(summary)}</summary>{inner}</details>"
+
+
+def _agreement_chart(result: AgreementResult, bar: float) -> tuple[str, list[str], str]:
+    """The per-code agreement chart, the codes under the bar in words, and the statistic's name."""
+    name = "cohen_kappa" if "cohen_kappa" in result.statistic_names else (
+        "fleiss_kappa" if "fleiss_kappa" in result.statistic_names else result.statistic_names[0])
+    statistic = STATISTIC_LABELS.get(name, name)
+    labels, values, lows, highs, flagged = [], [], [], [], []
+    for code in result.per_code:
+        estimate = code.statistics.get(name)
+        value = None if estimate is None else estimate.value
+        labels.append(f"{code.code} {code.label}")
+        values.append(value)
+        lows.append(None if estimate is None else estimate.low)
+        highs.append(None if estimate is None else estimate.high)
+        if value is not None and value < bar:
+            interval = (f" [{estimate.low:.3f}, {estimate.high:.3f}]" if estimate.low is not None and
+                        estimate.high is not None else "")
+            flagged.append(f"{code.code} {code.label} ({value:.3f}{interval})")
+    under = ", ".join(flagged) or "none"
+    img = png_img(agreement_chart_png(labels, values, lows, highs, bar, statistic),
+                  f"Chart: {statistic} per code with intervals; under the bar {bar:.2f}: {under}",
+                  css_class="oc-chart-image")
+    return img, flagged, statistic
+
+
+def _banner_parts(table) -> list:
+    """A banner table split into tables of at most BANNER_COLUMNS columns, one banner variable (or a slice of
+    one) each with the Total column repeated, so no table is wider than the page. Letters keep their meaning:
+    they name columns of the same variable, shown in the same or a neighbouring table."""
+    total = [i for i, c in enumerate(table.columns) if c.variable is None]
+    parts = []
+    for v, (name, label) in enumerate(table.variables):
+        columns = [i for i, c in enumerate(table.columns) if c.variable == name]
+        step = max(BANNER_COLUMNS - len(total), 1)
+        chunks = [columns[i:i + step] for i in range(0, len(columns), step)]
+        for k, chunk in enumerate(chunks):
+            keep = total + chunk
+            named = f"{table.question_label} by {label}" + (f" ({k + 1} of {len(chunks)})" if len(chunks) > 1 else "")
+            parts.append(dataclasses.replace(
+                table, question_label=named, columns=tuple(table.columns[i] for i in keep),
+                variables=((name, label),), count=table.count[:, keep], weighted_count=table.weighted_count[:, keep],
+                column_share=table.column_share[:, keep], base_n=table.base_n[keep],
+                base_weighted=table.base_weighted[keep], base_effective=table.base_effective[keep],
+                higher=table.higher[:, keep][:, :, keep], row_stat=table.row_stat[:, [v]],
+                row_df=table.row_df[:, [v]], row_p=table.row_p[:, [v]], row_q=table.row_q[:, [v]]))
+    return parts
+
+
+def _theme_lines(study: Study, questions: list[str], sections: Sequence[ReportSection]) -> list[str]:
+    """One line per question from its newest saved theme run, unless a section already sums its themes up."""
+    given = " ".join(s.summary for s in sections)
+    lines = []
+    for question in questions:
+        if f"Themes in {question}" in given:
+            continue
+        try:
+            runs = theme_runs_store.run_rows(study, survey_data.get_question(study, question).id)
+        except OpenCodeError:
+            continue
+        for run in reversed(runs):
+            themes = theme_runs_store.load_run(study, run["id"]).summary.get("themes", [])
+            named = [str(t.get("label") or ", ".join(map(str, t.get("top_terms", [])[:3])))
+                     for t in themes if isinstance(t, dict)]
+            if named:
+                lines.append(f"Themes in {question} ({run['method']}, k = {run['k']}): " + "; ".join(named))
+                break
+    return lines
 
 
 def example_verbatims(coding: coded_data.QuestionCoding, per_code: int, mask: bool = True) -> dict[int, list[str]]:
@@ -196,40 +350,33 @@ def _frame_table(coding: coded_data.QuestionCoding, per_code: int, mask: bool) -
             f"<td>{'net' if code.is_net else (code.special or 'code')}</td><td>{code.net or ''}</td>"
             f"<td>{html.escape(code.description)}</td><td class=\"oc-quote\">{said}</td></tr>")
     caption = "masked" if mask else "as given (not masked)"
-    return ('<div class="oc-scroll"><table class="oc-plain oc-frame"><thead><tr><th>Code</th><th>Label</th>'
+    return ('<table class="oc-plain oc-frame"><thead><tr><th>Code</th><th>Label</th>'
             "<th>Kind</th><th>Net</th><th>Description</th>"
-            f"<th>Example verbatims ({caption})</th></tr></thead><tbody>" + "".join(rows) + "</tbody></table></div>")
+            f"<th>Example verbatims ({caption})</th></tr></thead><tbody>" + "".join(rows) + "</tbody></table>")
 
 
-def _summary_section(study: Study, weight_name: str | None) -> str:
-    """The study at a glance: respondents, open questions and closed-ended variables."""
-    summary = summarise(study)
-    questions = "".join(
-        f"<tr><td>{html.escape(q.name)}</td><td>{html.escape(q.label)}</td><td>{q.verbatims:,}</td>"
-        f"<td>{q.nonanswers:,}</td><td>{q.coded:,}</td></tr>" for q in summary.questions)
-    variables = "".join(
-        f"<tr><td>{html.escape(v.name)}</td><td>{html.escape(v.label)}</td><td>{v.kind}</td><td>{v.role}</td>"
-        f"<td>{html.escape('; '.join(v.value_labels.values()))}</td></tr>" for v in summary.variables)
-    weighting = f"weighted by <strong>{html.escape(weight_name)}</strong>" if weight_name else "unweighted"
-    return (f"<p>{summary.respondents:,} respondents; tables {weighting}.</p>"
-            '<h3>Open questions</h3><div class="oc-scroll"><table class="oc-plain"><thead><tr><th>Question</th>'
-            "<th>Text</th><th>Verbatims</th><th>Non-answers</th><th>Coded by anyone</th></tr></thead><tbody>"
-            f"{questions}</tbody></table></div>"
-            '<h3>Closed-ended variables</h3><div class="oc-scroll"><table class="oc-plain"><thead><tr><th>Variable</th>'
-            "<th>Label</th><th>Kind</th><th>Role</th><th>Values</th></tr></thead><tbody>"
-            f"{variables}</tbody></table></div>")
-
-
-def _page(title: str, coder: str, include_suggestions: bool, summary: str, sections, notes: list[str]) -> str:
-    """The whole HTML document."""
+def _page(title: str, coder: str, include_suggestions: bool, summary, weight_name: str | None, parts: list[_Part],
+          lines: list[str], extras, notes: list[str]) -> str:
+    """The whole HTML document: the summary screen, cautions, then the collapsible detail."""
     stamp = dt.datetime.now().strftime("%Y-%m-%d %H:%M")
     counted = "confirmed codes and machine/rule suggestions" if include_suggestions else "confirmed (hand) codes only"
-    contents = "".join(f'<li><a href="#{a}">{html.escape(t)}</a></li>' for a, t, _ in sections)
+    weighting = f"weighted by <strong>{html.escape(weight_name)}</strong>" if weight_name else "unweighted"
+    facts = [f"<li><strong>{summary.respondents:,}</strong> respondents; tables {weighting}; counting {counted}.</li>"]
+    facts += [f"<li>{p.facts}.</li>" for p in parts]
+    charts = "".join(f'<div class="oc-pair"><h3>{html.escape(p.title)}</h3>{p.charts}</div>{p.flags}' for p in parts)
+    if not lines:
+        lines = ["Themes and drivers: none in this report (oecode themes, oecode drivers)."]
+    said = "".join(f"<li>{html.escape(line)}</li>" for line in lines)
     cautions = "".join(f"<li>{html.escape(c)}</li>" for c in CAUTIONS)
-    body = "".join(
-        f'<section class="oc-question" id="{a}"><h2>{html.escape(t)}</h2>\n{b}\n</section>\n' for a, t, b in sections)
     warnings = "".join(f"<li>{html.escape(n)}</li>" for n in notes)
     warning_block = f'<aside class="oc-caution"><h2>Read first</h2><ul>{warnings}</ul></aside>' if notes else ""
+    contents = "".join(f'<li><a href="#{p.anchor}">{html.escape(p.title)}</a></li>' for p in parts)
+    contents += "".join(f'<li><a href="#{a}">{html.escape(t)}</a></li>' for a, t, _ in extras)
+    body = "".join(f'<section class="oc-question" id="{p.anchor}"><h2>{html.escape(p.title)}</h2>\n{p.body}\n'
+                   "</section>\n" for p in parts)
+    body += "".join(f'<section class="oc-extra" id="{a}"><h2>{html.escape(t)}</h2>{_details(t, h)}</section>\n'
+                    for a, t, h in extras)
+    study_html = _details("Questions and closed-ended variables", _study_tables(summary))
     return f"""<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -244,12 +391,18 @@ def _page(title: str, coder: str, include_suggestions: bool, summary: str, secti
 <body>
 <main>
 <header class="oc-head"><h1>{html.escape(title)}</h1>
-<p>Coder {html.escape(coder)}; counting {counted}. Made {stamp} by opencode {html.escape(__version__)}.</p></header>
+<p>Coder {html.escape(coder)}; counting {counted}. Made {stamp} by oecode {html.escape(__version__)}.</p></header>
+<section class="oc-summary" id="summary"><h2>Summary</h2>
+<ul class="oc-facts">{"".join(facts)}</ul>
+{charts}
+<ul class="oc-lines">{said}</ul>
+</section>
 <aside class="oc-caution"><h2>Cautions</h2><ul>{cautions}</ul></aside>
 {warning_block}
-<nav class="oc-contents"><h2>Contents</h2><ol><li><a href="#study">The study</a></li>{contents}</ol></nav>
+<nav class="oc-contents"><h2>Contents</h2><ol><li><a href="#summary">Summary</a></li><li><a href="#study">The study</a></li>{contents}</ol></nav>
 <section id="study"><h2>The study</h2>
-{summary}
+<p>{summary.respondents:,} respondents; tables {weighting}.</p>
+{study_html}
 </section>
 {body}
 <footer class="oc-foot"><p>Significance letters and bases as explained under each table.
@@ -258,3 +411,19 @@ Percentages of respondents can add past 100 because a verbatim can have several 
 </body>
 </html>
 """
+
+
+def _study_tables(summary) -> str:
+    """The open questions and closed-ended variables of the study."""
+    questions = "".join(
+        f"<tr><td>{html.escape(q.name)}</td><td>{html.escape(q.label)}</td><td>{q.verbatims:,}</td>"
+        f"<td>{q.nonanswers:,}</td><td>{q.coded:,}</td></tr>" for q in summary.questions)
+    variables = "".join(
+        f"<tr><td>{html.escape(v.name)}</td><td>{html.escape(v.label)}</td><td>{v.kind}</td><td>{v.role}</td>"
+        f"<td>{html.escape('; '.join(v.value_labels.values()))}</td></tr>" for v in summary.variables)
+    return ('<h3>Open questions</h3><table class="oc-plain"><thead><tr><th>Question</th>'
+            "<th>Text</th><th>Verbatims</th><th>Non-answers</th><th>Coded by anyone</th></tr></thead><tbody>"
+            f"{questions}</tbody></table>"
+            '<h3>Closed-ended variables</h3><table class="oc-plain"><thead><tr><th>Variable</th>'
+            "<th>Label</th><th>Kind</th><th>Role</th><th>Values</th></tr></thead><tbody>"
+            f"{variables}</tbody></table>")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import textwrap
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -51,13 +52,15 @@ def write_driver_chart(table: pd.DataFrame, path: str | os.PathLike, labels: tup
         ax.barh(positions, bars.values, color=bars.colours, edgecolor="#000000", linewidth=0.4)
         ax.set_yticks(list(positions), bars.terms)
         ax.axvline(0, color="#000000", linewidth=0.8)
-        ax.set_xlabel(f"{value} (log-odds, penalized model): left leans to {labels[0]}, right to {labels[1]}")
+        # Labels wrap and the figure is saved around everything drawn, so no label is cut at an edge.
+        ax.set_xlabel("\n".join(textwrap.wrap(f"{value} (log-odds, penalized model): left leans to {labels[0]}, "
+                                               f"right to {labels[1]}", 80)))
         handles = [plt.Rectangle((0, 0), 1, 1, color=SIDE_A), plt.Rectangle((0, 0), 1, 1, color=SIDE_B)]
-        ax.legend(handles, [labels[0], labels[1]], loc="lower right", frameon=False)
-        ax.set_title(title or f"Terms that predict {labels[1]} vs {labels[0]}")
+        ax.legend(handles, [labels[0], labels[1]], loc="lower right", frameon=False)  # empty: side 0 bars point left
+        ax.set_title("\n".join(textwrap.wrap(title or f"Terms that predict {labels[1]} vs {labels[0]}", 70)))
         fig.tight_layout()
         with atomic_path(path, suffix=".png") as tmp:
-            fig.savefig(tmp, format="png")
+            fig.savefig(tmp, format="png", bbox_inches="tight", pad_inches=0.1)
     finally:
         plt.close(fig)
     return Path(path)
