@@ -85,12 +85,12 @@ def test_undo_redo_per_coder_and_new_change_clears_redo(study):
 
 def everything(study) -> list[tuple]:
     """Every assignment row of every coder, all columns, in a fixed order."""
-    return study.db.execute("SELECT verbatim_id, code_id, coder, source, confidence, created_at FROM assignments "
+    return study._db.execute("SELECT verbatim_id, code_id, coder, source, confidence, created_at FROM assignments "
                             "ORDER BY verbatim_id, code_id, coder").fetchall()
 
 
 def audit_rows(study) -> int:
-    return study.db.execute("SELECT COUNT(*) FROM audit").fetchone()[0]
+    return study._db.execute("SELECT COUNT(*) FROM audit").fetchone()[0]
 
 
 def test_assign_many_is_one_undoable_change(study):
@@ -159,7 +159,7 @@ def test_single_verbatim_calls_are_fast(tmp_path):
         frames.add_code(study, "why", f"code {number}", number)
     v = A.uncoded_ids(study, "why", "ash")
     for i in range(0, 20_000, 2):  # half of them coded: realistic index sizes
-        study.db.execute("INSERT INTO assignments (verbatim_id, code_id, coder, source, created_at) "
+        study._db.execute("INSERT INTO assignments (verbatim_id, code_id, coder, source, created_at) "
                          "VALUES (?, ?, 'ash', 'hand', 'x')", (v[i], 1 + i % 10))
     timings = {}
     for name, call in [("assign", lambda: A.assign(study, v[1], 3, "ash")),

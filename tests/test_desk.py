@@ -250,7 +250,7 @@ def test_locked_study_offers_retry_and_loses_nothing(study_path):
     async def scenario():
         app = make_app(study_path)
         async with app.run_test(size=(100, 30)) as pilot:
-            app.session.study.db.execute("PRAGMA busy_timeout = 50")
+            app.session.study._db.execute("PRAGMA busy_timeout = 50")
             blocker = sqlite3.connect(study_path, isolation_level=None)
             blocker.execute("BEGIN IMMEDIATE")
             await pilot.press("s")

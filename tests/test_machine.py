@@ -117,7 +117,7 @@ def test_train_store_reload_and_fast_single_suggestion(coded_study):
         trained = autocode.train(study, "why")
         assert trained.model.skipped_ == [(3, 3)]
         assert trained.model.codes_.tolist() == [1, 2]
-        blob = study.db.execute("SELECT arrays FROM models WHERE id = ?", (trained.id,)).fetchone()[0]
+        blob = study._db.execute("SELECT arrays FROM models WHERE id = ?", (trained.id,)).fetchone()[0]
         with np.load(io.BytesIO(blob), allow_pickle=False) as arrays:  # loads without pickle: no code can run
             assert all(arrays[name].dtype != object for name in arrays.files)
         before = autocode.suggest(study, "why", verbatim_ids=ids[500:520])

@@ -48,7 +48,7 @@ def stream_calls(monkeypatch):
 
 def audit_rows(study):
     return [(actor, action, entity, entity_id, json.loads(payload)) for actor, action, entity, entity_id, payload in
-            study.db.execute("SELECT actor, action, entity, entity_id, payload FROM audit WHERE entity = 'lexicon' "
+            study._db.execute("SELECT actor, action, entity, entity_id, payload FROM audit WHERE entity = 'lexicon' "
                              "ORDER BY id")]
 
 
@@ -213,7 +213,7 @@ def test_lexicon_change_invalidates(study, stream_calls):
 def test_verbatim_change_invalidates(study, stream_calls):
     before, _ = st.term_matrix(study, "why")
     with study.transaction():  # edit one verbatim's text in place (as a correction would)
-        study.db.execute("UPDATE verbatims SET text = 'quokka quokka' WHERE id = "
+        study._db.execute("UPDATE verbatims SET text = 'quokka quokka' WHERE id = "
                          "(SELECT MIN(id) FROM verbatims WHERE question_id = ? AND nonanswer = 0)",
                          (get_question(study, "why").id,))
     calls = len(stream_calls)

@@ -190,7 +190,7 @@ def test_promote_adds_a_draft_code_with_the_rule(study, fitted):
     dominated = set(fitted.run.doc_ids[fitted.run.dominant == 1].tolist())
     frame = verbatims(study, "why").set_index("verbatim_id")
     assert dominated & set(frame.loc[hits.verbatim_ids, "respondent"])
-    audit = study.db.execute("SELECT payload FROM audit WHERE action = 'promote-theme' AND entity_id = ?",
+    audit = study._db.execute("SELECT payload FROM audit WHERE action = 'promote-theme' AND entity_id = ?",
                              (code.id,)).fetchone()
     assert json.loads(audit[0])["run"] == fitted.run_id and json.loads(audit[0])["theme"] == 2
     assert undo(study, "ash") == "add-code"  # the code is an ordinary undoable change

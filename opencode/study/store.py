@@ -31,9 +31,12 @@ def _is_locked(error: sqlite3.OperationalError) -> bool:
 class Study:
     """One open study file. Use `Study.open` / `Study.create`; close it (or use `with`) when done."""
 
+    #: Which SQL the connection speaks; store modules branch on it only where the two stores differ.
+    dialect = "sqlite"
+
     def __init__(self, path: Path, connection: sqlite3.Connection):
         self.path = path
-        self.db = connection
+        self._db = connection
 
     # -- opening ---------------------------------------------------------------------------------------------
     @classmethod
@@ -54,7 +57,7 @@ class Study:
         study = cls(target, connection)
         study._migrate(from_version=0)
         with study.transaction():
-            study.db.execute("INSERT INTO meta (key, value) VALUES ('created_at', ?), ('created_by', ?)",
+            study._db.execute("INSERT INTO meta (key, value) VALUES ('created_at', ?), ('created_by', ?)",
                              (now(), f"opencode {__version__}"))
         return study
 
@@ -88,7 +91,7 @@ class Study:
 
     def close(self) -> None:
         """Close the connection (the study stays consistent whether or not this runs)."""
-        self.db.close()
+        self._db.close()
 
     def __enter__(self) -> "Study":
         return self
@@ -102,19 +105,19 @@ class Study:
 
         Only for a file that is thrown away if anything fails: without a journal a failed write is not undone.
         """
-        self.db.execute("PRAGMA journal_mode = OFF")
-        self.db.execute("PRAGMA synchronous = OFF")
+        self._db.execute("PRAGMA journal_mode = OFF")
+        self._db.execute("PRAGMA synchronous = OFF")
         try:
             yield self
         finally:
-            self.db.execute("PRAGMA journal_mode = WAL")
-            self.db.execute("PRAGMA synchronous = NORMAL")
+            self._db.execute("PRAGMA journal_mode = WAL")
+            self._db.execute("PRAGMA synchronous = NORMAL")
 
     # -- schema ----------------------------------------------------------------------------------------------
     def schema_version(self) -> int:
         """The schema version this file is at."""
         try:
-            row = self.db.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
+            row = self._db.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
         except sqlite3.DatabaseError as error:
             raise OpenCodeError(f"{self.path}: is not a readable study ({error})") from error
         return int(row[0]) if row else 0
@@ -123,9 +126,9 @@ class Study:
         with self.transaction():
             for version in range(from_version, SCHEMA_VERSION):
                 for statement in _split_sql(MIGRATIONS[version]):
-                    self.db.execute(statement)
-            self.db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-            self.db.execute("INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
+                    self._db.execute(statement)
+            self._db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+            self._db.execute("INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
                             (str(SCHEMA_VERSION),))
 
     # -- transactions and audit ------------------------------------------------------------------------------
@@ -136,11 +139,11 @@ class Study:
         Takes the write lock up front (BEGIN IMMEDIATE) so a second writer waits up to the busy timeout and
         then gets a clear message instead of failing half-way.
         """
-        if self.db.in_transaction:
-            yield self.db  # nested: the outer transaction decides
+        if self._db.in_transaction:
+            yield self._db  # nested: the outer transaction decides
             return
         try:
-            self.db.execute("BEGIN IMMEDIATE")
+            self._db.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as error:
             if _is_locked(error):
                 raise StudyBusy(
@@ -148,15 +151,15 @@ class Study:
                     "try again in a moment") from error
             raise
         try:
-            yield self.db
+            yield self._db
         except BaseException:
-            self.db.rollback()
+            self._db.rollback()
             raise
         else:
             try:
-                self.db.commit()
+                self._db.commit()
             except sqlite3.OperationalError as error:
-                self.db.rollback()
+                self._db.rollback()
                 if _is_locked(error):
                     raise StudyBusy(f"{self.path}: the study is locked by another program; try again") from error
                 raise
@@ -164,7 +167,7 @@ class Study:
     def audit(self, actor: str, action: str, entity: str, entity_id: int | None = None,
               payload: dict[str, Any] | None = None) -> int:
         """Record one change in the audit trail (call inside the transaction making the change)."""
-        cursor = self.db.execute(
+        cursor = self._db.execute(
             "INSERT INTO audit (at, actor, action, entity, entity_id, payload) VALUES (?, ?, ?, ?, ?, ?)",
             (now(), actor, action, entity, entity_id, json.dumps(payload or {}, ensure_ascii=False)))
         return int(cursor.lastrowid)
@@ -172,14 +175,14 @@ class Study:
     # -- settings --------------------------------------------------------------------------------------------
     def get_setting(self, key: str, default: Any = None) -> Any:
         """A study setting (JSON value), or `default`."""
-        row = self.db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
+        row = self._db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
         return json.loads(row[0]) if row else default
 
     def set_setting(self, key: str, value: Any, actor: str = "oecode") -> None:
         """Store a study setting (JSON-serialisable) and audit the change."""
         with self.transaction():
             old = self.get_setting(key)
-            self.db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
+            self._db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
                             (key, json.dumps(value, ensure_ascii=False)))
             self.audit(actor, "set", "setting", None, {"key": key, "before": old, "after": value})
 
