@@ -27,7 +27,8 @@ from opencode.ingest.nonanswers import flag_nonanswers
 from opencode.ingest.readers import RawTable, read_survey_file
 from opencode.ingest.text_cells import as_text
 from opencode.study import survey_data
-from opencode.study.store import Study
+from opencode.study.address import ServerAddress
+from opencode.study.store import Study, as_study_target, study_exists
 
 #: The largest single answer accepted (characters); a bigger cell is almost always a broken export.
 MAX_CELL_CHARS = 1_000_000
@@ -65,7 +66,7 @@ class ChangedVerbatim:
 class ImportReport:
     """What an import did."""
 
-    study_path: Path
+    study_path: Path | ServerAddress
     source: Path
     created: bool
     respondents_added: int = 0
@@ -160,7 +161,7 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
                   progress: Callable[[str], None] | None = None) -> ImportReport:
     """Import `source` into the study at `study_path` (created if missing, else merged by respondent id)."""
     say = progress or (lambda message: None)
-    study_path = Path(study_path)
+    study_path = as_study_target(study_path)
     say(f"reading {source}")
     table = read_survey_file(source, sheet=options.sheet, encoding=options.encoding, delimiter=options.delimiter,
                              text_columns=(options.id_column, *options.questions))
@@ -170,14 +171,16 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
         raise OpenCodeError(f"{table.path}: name at least one open question column (--question)")
     _check_columns(table, options)
     _check_cell_sizes(table, options)
-    report = ImportReport(study_path, Path(source), created=not study_path.exists(), encoding=table.encoding)
+    report = ImportReport(study_path, Path(source), created=not study_exists(study_path), encoding=table.encoding)
     say("writing the study")
     # Columns are converted on the second core while this thread checks the ids and SQLite writes the
     # respondents (SQLite and the Arrow string kernels release the GIL).
     with ThreadPoolExecutor(max_workers=1) as pool:
         plans = pool.submit(plan_columns, table, options)
         keys = _respondent_keys(table, options.id_column)
-        if report.created:
+        if report.created and isinstance(study_path, ServerAddress):  # created and filled in one transaction
+            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report)).close()
+        elif report.created:
             _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
         else:
             with Study.open(study_path) as study, study.transaction():

@@ -12,7 +12,7 @@ from typing import Any, Iterator
 import numpy as np
 import pandas as pd
 
-from opencode.study.store import Study
+from opencode.study.store import Study, read_frame
 
 #: The columns of an assignment row as ops and readers carry it.
 ASSIGNMENT_COLUMNS = ("verbatim_id", "code_id", "coder", "source", "confidence", "created_at")
@@ -80,7 +80,7 @@ def assignments_table(study: Study, question_id: int, coders: list[str] | None =
     if sources:
         query += f" AND a.source IN ({', '.join('?' for _ in sources)})"
         params += list(sources)
-    return pd.read_sql_query(query + " ORDER BY a.verbatim_id, c.number", study._db, params=params)
+    return read_frame(study, query + " ORDER BY a.verbatim_id, c.number", params)
 
 
 def code_counts(study: Study, question_id: int, coder: str, sources: tuple[str, ...]) -> dict[int, int]:
@@ -218,10 +218,11 @@ def set_undone(study: Study, audit_ids: list[int], state: int) -> None:
 
 def code_texts(study: Study, question_id: int, code_id: int, coder: str | None, limit: int) -> list[str]:
     """Texts of verbatims holding a hand code (any coder when None), shortest first, for codebook examples."""
-    query = ("SELECT DISTINCT v.text FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
+    query = ("SELECT v.text FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
              "WHERE a.code_id = ? AND v.question_id = ? AND a.source = 'hand' AND v.nonanswer = 0")
     params: list[Any] = [code_id, question_id]
     if coder is not None:
         query += " AND a.coder = ?"
         params.append(coder)
-    return [r[0] for r in study._db.execute(query + " ORDER BY length(v.text), v.id LIMIT ?", (*params, limit))]
+    return [r[0] for r in study._db.execute(query + " GROUP BY v.text ORDER BY length(v.text), MIN(v.id) LIMIT ?",
+                                            (*params, limit))]

@@ -80,8 +80,13 @@ def search_ids(study: Study, question_id: int, *, text: str | None = None, code_
                   " AND a.source = 'hand')")
         params += [coder, coder]
     if respondent_ids is not None:
-        query += " AND v.respondent_id IN (SELECT value FROM json_each(?))"
-        params.append(json.dumps([int(i) for i in np.asarray(respondent_ids).tolist()]))
+        wanted = [int(i) for i in np.asarray(respondent_ids).tolist()]
+        if study.on_server:
+            query += " AND v.respondent_id = ANY(?)"
+            params.append(wanted)
+        else:
+            query += " AND v.respondent_id IN (SELECT value FROM json_each(?))"
+            params.append(json.dumps(wanted))
     if nonanswer is not None:
         query += " AND v.nonanswer = ?"
         params.append(int(nonanswer))

@@ -22,16 +22,24 @@ def store_matrix_blob(study: Study, question_id: int, cache_key: str, blob: byte
         study._db.execute("INSERT OR REPLACE INTO matrix_cache (cache_key, question_id, created_at, data) "
                          "VALUES (?, ?, ?, ?)", (cache_key, question_id, now(), blob))
         cursor = study._db.execute(
-            "DELETE FROM matrix_cache WHERE question_id = ? AND rowid NOT IN "
-            "(SELECT rowid FROM matrix_cache WHERE question_id = ? ORDER BY rowid DESC LIMIT ?)",
+            f"DELETE FROM matrix_cache WHERE question_id = ? AND {_ROW} NOT IN "
+            f"(SELECT {_ROW} FROM matrix_cache WHERE question_id = ? ORDER BY {_newest(study)} LIMIT ?)",
             (question_id, question_id, max(1, keep)))
     return cursor.rowcount
+
+
+_ROW = "cache_key"
+
+
+def _newest(study: Study) -> str:
+    """Newest first: by insertion (rowid) in a file; by time, then key, on a server (which has no rowid)."""
+    return "created_at DESC, cache_key DESC" if study.on_server else "rowid DESC"
 
 
 def cached_keys(study: Study, question_id: int) -> list[str]:
     """Cache keys held for a question, newest first."""
     return [row[0] for row in study._db.execute(
-        "SELECT cache_key FROM matrix_cache WHERE question_id = ? ORDER BY rowid DESC", (question_id,))]
+        f"SELECT cache_key FROM matrix_cache WHERE question_id = ? ORDER BY {_newest(study)}", (question_id,))]
 
 
 def clear_matrix_cache(study: Study, question_id: int | None = None) -> int:

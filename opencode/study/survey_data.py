@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.study.store import Study
+from opencode.study.store import Study, read_frame
 
 KINDS = ("text", "single", "multiple", "numeric", "date")
 ROLES = ("id", "question", "outcome", "banner", "weight", "other")
@@ -157,7 +157,7 @@ def verbatims(study: Study, question: str, include_nonanswers: bool = True) -> p
              "FROM verbatims v JOIN respondents r ON r.id = v.respondent_id WHERE v.question_id = ?")
     if not include_nonanswers:
         query += " AND v.nonanswer = 0"
-    frame = pd.read_sql_query(query + " ORDER BY v.respondent_id", study._db, params=(variable.id,))
+    frame = read_frame(study, query + " ORDER BY v.respondent_id", (variable.id,))
     frame["nonanswer"] = frame["nonanswer"].astype(bool)
     return frame
 
