@@ -60,3 +60,6 @@ def csv_sets() -> dict[str, dict[str, frozenset[int]]]:
     for rid, coder, codes in table[["respondent_id", "coder", "codes"]].itertuples(index=False):
         sets.setdefault(coder, {})[rid] = frozenset(int(c) for c in codes.split(";") if c.strip())
     return sets
+
+
+from team_server import pg_server  # noqa: E402,F401  (the session's PostgreSQL cluster, for tests/test_team_*.py)

@@ -97,9 +97,20 @@ class PgConnection:
     def __init__(self, address: ServerAddress):
         self.address = address
         self.schema = address.study
-        self._conn = connect_raw(address)
-        self._conn.execute("SELECT set_config('search_path', %s, false), set_config('lock_timeout', %s, false)",
+        self._conn = self._connect()
+
+    def _connect(self):
+        connection = connect_raw(self.address)
+        connection.execute("SELECT set_config('search_path', %s, false), set_config('lock_timeout', %s, false)",
                            (_quote_ident(self.schema) + ", pg_catalog", LOCK_TIMEOUT))
+        return connection
+
+    def _ensure(self) -> None:
+        """Connect again after a lost connection (a server restart), between transactions only."""
+        if self._conn.closed and not self._closed_by_us:
+            self._conn = self._connect()
+
+    _closed_by_us = False
 
     @property
     def raw(self):
@@ -118,6 +129,7 @@ class PgConnection:
         return self._conn.info.transaction_status != TransactionStatus.IDLE
 
     def execute(self, sql: str, params: Iterable[Any] = ()) -> _Cursor:
+        self._ensure()
         params = tuple(params) if params else None
         text = translate(sql, True)
         try:
@@ -127,6 +139,7 @@ class PgConnection:
         return _Cursor(cursor, text.endswith("RETURNING id"))
 
     def executemany(self, sql: str, rows: Iterable[Iterable[Any]]) -> _Cursor:
+        self._ensure()
         rows = [tuple(r) for r in rows]
         if not rows:
             return _Cursor(self._conn.cursor(), False)
@@ -138,6 +151,7 @@ class PgConnection:
         return _Cursor(cursor, False)
 
     def begin(self) -> None:
+        self._ensure()
         self._run("BEGIN")
 
     def commit(self) -> None:
@@ -152,6 +166,7 @@ class PgConnection:
             pass
 
     def close(self) -> None:
+        self._closed_by_us = True
         self._conn.close()
 
     def _run(self, statement: str) -> None:
