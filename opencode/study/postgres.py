@@ -150,6 +150,14 @@ class PgConnection:
             raise self._mapped(error, sql) from error
         return _Cursor(cursor, False)
 
+    def admin(self, sql: str, params: Iterable[Any] | None = None):
+        """Run PostgreSQL's own SQL as written (schemas, roles, policies, COPY set-up): no translation."""
+        self._ensure()
+        try:
+            return self._conn.execute(sql, params)
+        except Exception as error:
+            raise self._mapped(error, sql) from error
+
     def begin(self) -> None:
         self._ensure()
         self._run("BEGIN")
@@ -183,8 +191,9 @@ class PgConnection:
         message = (str(error).strip().splitlines() or [type(error).__name__])[0]
         where = f"{self.address}"
         if isinstance(error, (pg.InsufficientPrivilege,)):
-            return NotPermitted(f"{where}: {self.user} may not make this change ({message}); a coder writes only "
-                                "their own codes, notes and done marks, and the lead edits frames and samples")
+            return NotPermitted(f"{where}: {self.user} may not do this ({message}); a coder writes only their own "
+                                "codes, notes and done marks, the lead edits frames and samples, and the server's "
+                                "admin sets up roles")
         if isinstance(error, (pg.LockNotAvailable, pg.DeadlockDetected, pg.SerializationFailure,
                               pg.QueryCanceled)):
             return StudyBusy(f"{where}: another coder is changing the same rows; nothing was written, try again "

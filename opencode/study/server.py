@@ -95,9 +95,9 @@ def create_study(cls, address: ServerAddress, *, overwrite: bool = False, with_m
         study = cls(address, connection, dialect="postgresql")
         with study.transaction():
             if state == "study":
-                connection.raw.execute(f"DROP SCHEMA {quote_ident(address.study)} CASCADE")
-            connection.raw.execute(f"CREATE SCHEMA {quote_ident(address.study)}")
-            connection.raw.execute(f"COMMENT ON SCHEMA {quote_ident(address.study)} IS "
+                connection.admin(f"DROP SCHEMA {quote_ident(address.study)} CASCADE")
+            connection.admin(f"CREATE SCHEMA {quote_ident(address.study)}")
+            connection.admin(f"COMMENT ON SCHEMA {quote_ident(address.study)} IS "
                                    f"'{MARK} (oecode {__version__})'")
             _build(study, 0)
             if with_meta:
@@ -120,11 +120,11 @@ def migrate(study: "Study", from_version: int) -> None:
 
 
 def _build(study: "Study", from_version: int) -> None:
-    raw = study._db.raw
+    db = study._db
     for version in range(from_version, SCHEMA_VERSION):
         for statement in pg_migration(version):
-            raw.execute(statement)
-    raw.execute("INSERT INTO meta (key, value) VALUES ('schema_version', %s) "
+            db.admin(statement)
+    db.admin("INSERT INTO meta (key, value) VALUES ('schema_version', %s) "
                 "ON CONFLICT (key) DO UPDATE SET value = EXCLUDED.value", (str(SCHEMA_VERSION),))
     install_change_triggers(study)
     from opencode.study import team
@@ -135,9 +135,9 @@ def _build(study: "Study", from_version: int) -> None:
 
 def install_change_triggers(study: "Study") -> None:
     """The triggers that announce changes on the study's channel (idempotent)."""
-    raw = study._db.raw
+    db = study._db
     schema = quote_ident(study._db.schema)
-    raw.execute(f"""
+    db.admin(f"""
         CREATE OR REPLACE FUNCTION {schema}.oecode_announce() RETURNS trigger LANGUAGE plpgsql AS $fn$
         DECLARE row_json jsonb;
         BEGIN
@@ -148,8 +148,8 @@ def install_change_triggers(study: "Study") -> None:
             RETURN NULL;
         END $fn$""")
     for table in ANNOUNCED:
-        raw.execute(f"DROP TRIGGER IF EXISTS oecode_announce ON {schema}.{table}")
-        raw.execute(f"CREATE TRIGGER oecode_announce AFTER INSERT OR UPDATE OR DELETE ON {schema}.{table} "
+        db.admin(f"DROP TRIGGER IF EXISTS oecode_announce ON {schema}.{table}")
+        db.admin(f"CREATE TRIGGER oecode_announce AFTER INSERT OR UPDATE OR DELETE ON {schema}.{table} "
                     f"FOR EACH ROW EXECUTE FUNCTION {schema}.oecode_announce('{channel(study._db.schema)}')")
 
 

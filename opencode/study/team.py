@@ -54,7 +54,7 @@ def group_roles(study: "Study") -> tuple[str, str]:
 def roles_exist(study: "Study") -> bool:
     """Whether the study's group roles were set up (by a first grant)."""
     lead, coder = group_roles(study)
-    count = study._db.raw.execute("SELECT COUNT(*) FROM pg_roles WHERE rolname IN (%s, %s)", (lead, coder)).fetchone()
+    count = study._db.admin("SELECT COUNT(*) FROM pg_roles WHERE rolname IN (%s, %s)", (lead, coder)).fetchone()
     return int(count[0]) == 2
 
 
@@ -78,23 +78,23 @@ def grant(study: "Study", name: str, role: str, password: str | None = None) -> 
         raise BadInput(f"role {role!r}: choose coder or lead")
     if role == "coder" and name == "final":
         raise BadInput("'final' is the adjudicated coder, written by the lead; it cannot be a coder's name")
-    raw = study._db.raw
+    db = study._db
     lead_group, coder_group = group_roles(study)
     with study.transaction():
         _ensure_groups(study)
-        exists = raw.execute("SELECT 1 FROM pg_roles WHERE rolname = %s", (name,)).fetchone() is not None
+        exists = db.admin("SELECT 1 FROM pg_roles WHERE rolname = %s", (name,)).fetchone() is not None
         if not exists:
-            raw.execute(f"CREATE ROLE {quote_ident(name)} LOGIN")
+            db.admin(f"CREATE ROLE {quote_ident(name)} LOGIN")
         if password:
-            hashed = raw.pgconn.encrypt_password(password.encode(), name.encode(), b"scram-sha-256").decode()
-            raw.execute(f"ALTER ROLE {quote_ident(name)} PASSWORD '{hashed}'")
+            hashed = db.raw.pgconn.encrypt_password(password.encode(), name.encode(), b"scram-sha-256").decode()
+            db.admin(f"ALTER ROLE {quote_ident(name)} PASSWORD '{hashed}'")
         group = lead_group if role == "lead" else coder_group
-        already = raw.execute(
+        already = db.admin(
             "SELECT 1 FROM pg_auth_members m JOIN pg_roles g ON g.oid = m.roleid JOIN pg_roles u ON u.oid = m.member "
             "WHERE g.rolname = %s AND u.rolname = %s", (group, name)).fetchone() is not None
         if not already:
-            raw.execute(f"GRANT {quote_ident(group)} TO {quote_ident(name)}")
-        raw.execute(f"GRANT CONNECT ON DATABASE {quote_ident(raw.info.dbname)} TO {quote_ident(group)}")
+            db.admin(f"GRANT {quote_ident(group)} TO {quote_ident(name)}")
+        db.admin(f"GRANT CONNECT ON DATABASE {quote_ident(db.raw.info.dbname)} TO {quote_ident(group)}")
         apply_policies(study)
         if not already:
             study.audit(study._db.user, "grant", "team", None, {"member": name, "role": role})
@@ -105,15 +105,15 @@ def revoke(study: "Study", name: str) -> bool:
     """Take a member out of both of the study's groups (their login stays); True if they were in one."""
     _require_server(study)
     check_member_name(name)
-    raw = study._db.raw
+    db = study._db
     removed = False
     with study.transaction():
         for group in group_roles(study):
-            held = raw.execute(
+            held = db.admin(
                 "SELECT 1 FROM pg_auth_members m JOIN pg_roles g ON g.oid = m.roleid JOIN pg_roles u "
                 "ON u.oid = m.member WHERE g.rolname = %s AND u.rolname = %s", (group, name)).fetchone()
             if held:
-                raw.execute(f"REVOKE {quote_ident(group)} FROM {quote_ident(name)}")
+                db.admin(f"REVOKE {quote_ident(group)} FROM {quote_ident(name)}")
                 removed = True
         if removed:
             study.audit(study._db.user, "revoke", "team", None, {"member": name})
@@ -125,7 +125,7 @@ def members(study: "Study") -> Members:
     _require_server(study)
     lead_group, coder_group = group_roles(study)
     found: dict[str, list[str]] = {lead_group: [], coder_group: []}
-    for group, member in study._db.raw.execute(
+    for group, member in study._db.admin(
             "SELECT g.rolname, u.rolname FROM pg_auth_members m JOIN pg_roles g ON g.oid = m.roleid "
             "JOIN pg_roles u ON u.oid = m.member WHERE g.rolname IN (%s, %s) ORDER BY u.rolname",
             (lead_group, coder_group)):
@@ -137,8 +137,8 @@ def role_of(study: "Study") -> str:
     """What the connected user may do here: 'owner' (the study's owner or a superuser), 'lead', 'coder' or 'none'."""
     if not study.on_server:
         return "owner"
-    raw = study._db.raw
-    owner = raw.execute(
+    db = study._db
+    owner = db.admin(
         "SELECT pg_has_role(current_user, n.nspowner, 'USAGE') OR r.rolsuper FROM pg_namespace n, pg_roles r "
         "WHERE n.nspname = %s AND r.rolname = current_user", (study._db.schema,)).fetchone()
     if owner and owner[0]:
@@ -147,21 +147,21 @@ def role_of(study: "Study") -> str:
         return "none"
     lead_group, coder_group = group_roles(study)
     for group, name in ((lead_group, "lead"), (coder_group, "coder")):
-        if raw.execute("SELECT pg_has_role(current_user, %s, 'MEMBER')", (group,)).fetchone()[0]:
+        if db.admin("SELECT pg_has_role(current_user, %s, 'MEMBER')", (group,)).fetchone()[0]:
             return name
     return "none"
 
 
 def _ensure_groups(study: "Study") -> None:
-    raw = study._db.raw
+    db = study._db
     for group in group_roles(study):
-        if raw.execute("SELECT 1 FROM pg_roles WHERE rolname = %s", (group,)).fetchone() is None:
-            raw.execute(f"CREATE ROLE {quote_ident(group)} NOLOGIN")
+        if db.admin("SELECT 1 FROM pg_roles WHERE rolname = %s", (group,)).fetchone() is None:
+            db.admin(f"CREATE ROLE {quote_ident(group)} NOLOGIN")
 
 
 def apply_policies(study: "Study") -> None:
     """Grants, the blind-sample test and row-level security policies of both groups (idempotent)."""
-    raw = study._db.raw
+    db = study._db
     schema = quote_ident(study._db.schema)
     lead_group, coder_group = (quote_ident(g) for g in group_roles(study))
     statements = [
@@ -206,7 +206,7 @@ def apply_policies(study: "Study") -> None:
             statements.append(text)
     with study.transaction():
         for statement in statements:
-            raw.execute(statement)
+            db.admin(statement)
 
 
 def check_coder_identity(study: "Study", coder: str) -> None:

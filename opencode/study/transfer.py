@@ -15,7 +15,7 @@ from pathlib import Path
 
 from opencode.errors import BadInput, NotPermitted, OpenCodeError
 from opencode.files.safe_write import normal_file_mode
-from opencode.study.address import ServerAddress
+from opencode.study.address import ServerAddress, is_server_address, parse_address
 from opencode.study.store import SUFFIX, Study
 
 #: Row order for copying and comparing where the primary key is not the order that matters.
@@ -54,9 +54,13 @@ def table_rows(study: Study, table: str) -> list[tuple]:
     return [tuple(bytes(v) if isinstance(v, memoryview) else v for v in row) for row in rows]
 
 
-def push(source: str | os.PathLike, address: ServerAddress, *, replace: bool = False) -> dict[str, int]:
+def push(source: str | os.PathLike, address: "str | ServerAddress", *, replace: bool = False) -> dict[str, int]:
     """Copy a study file into a new study on a server; returns rows copied per table."""
     from opencode.study import server
+
+    if not is_server_address(address):
+        raise BadInput(f"{address}: not a server address (postgresql://USER@HOST/DATABASE?study=NAME)")
+    address = parse_address(address)
 
     copied: dict[str, int] = {}
     with Study.open(source) as original:
@@ -157,8 +161,10 @@ def save_copy(study: Study, target: str | os.PathLike, *, overwrite: bool = Fals
     return copied
 
 
-def pull(address: ServerAddress, target: str | os.PathLike, *, overwrite: bool = False) -> dict[str, int]:
+def pull(address: "str | ServerAddress", target: str | os.PathLike, *, overwrite: bool = False) -> dict[str, int]:
     """Copy a server study into a new study file; returns rows copied per table."""
+    if not is_server_address(address):
+        raise BadInput(f"{address}: not a server address (postgresql://USER@HOST/DATABASE?study=NAME)")
     with Study.open(address) as study:
         return save_copy(study, target, overwrite=overwrite)
 
