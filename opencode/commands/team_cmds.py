@@ -150,7 +150,8 @@ def run_server(args: argparse.Namespace) -> int:
     server = pg_local.start_local_server(args.folder, port=args.port, run_as=args.run_as)
     print(f"a local server runs from {server.folder} (stop it with: oecode team server {args.folder} --stop)")
     print(f"its database: {server.address()}")
-    print(f"push a study:  oecode push NAME.study '{server.address(study='NAME')}'")
+    print(f"or by service name, after: export PGSERVICEFILE={server.folder / 'pg_service.conf'}")
+    print(f"push a study:  oecode push NAME.study 'service={pg_local.SERVICE} study=NAME'")
     return 0
 
 

@@ -112,8 +112,10 @@ class ChangeFeed:
 class Subscription:
     """A running feed thread; `stop()` ends it (within about a second)."""
 
-    def __init__(self, feed: ChangeFeed, callback: Callable[[list[StudyChange]], None], ignore_coder: str | None):
+    def __init__(self, feed: ChangeFeed, callback: Callable[[list[StudyChange]], None], ignore_coder: str | None,
+                 min_interval: float = 0.0):
         self._feed = feed
+        self._min_interval = min_interval
         self._callback = callback
         self._ignore = ignore_coder
         self._stopping = threading.Event()
@@ -129,6 +131,8 @@ class Subscription:
                     changes = [c for c in changes if c.coder != self._ignore or c.frame_changed]
                 if changes and not self._stopping.is_set():
                     self._callback(changes)
+                    if self._min_interval:  # what arrives meanwhile comes in the next batch
+                        self._stopping.wait(self._min_interval)
         except BaseException as error:  # the feed broke (server gone): the desk keeps its timer refresh
             self.error = error
         finally:
@@ -144,10 +148,12 @@ class Subscription:
 
 
 def subscribe(target: "str | os.PathLike | ServerAddress", callback: Callable[[list[StudyChange]], None], *,
-              ignore_coder: str | None = None) -> Subscription:
+              ignore_coder: str | None = None, min_interval: float = 0.0) -> Subscription:
     """Call `callback(changes)` from a background thread whenever others commit changes to the study.
 
     ignore_coder: leave out row changes made under this coder's name (the desk's own presses), frame
-    changes excepted. The callback runs on the feed's thread: a Textual app hands it on with call_from_thread.
+    changes excepted. min_interval: at most one call per this many seconds (changes arriving meanwhile are
+    batched), so twenty busy coders do not make a desk redraw twenty times a second. The callback runs on
+    the feed's thread: a Textual app hands it on with call_from_thread.
     """
-    return Subscription(ChangeFeed(target), callback, ignore_coder)
+    return Subscription(ChangeFeed(target), callback, ignore_coder, min_interval)

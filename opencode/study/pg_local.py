@@ -2,7 +2,7 @@
 
 `start_local_server(folder)` runs PostgreSQL's own initdb and pg_ctl: a cluster in FOLDER/data listening on
 a Unix socket in FOLDER/socket and on 127.0.0.1, a database `oecode`, and the address to use written to
-FOLDER/address.txt. Local socket connections are trusted (the socket folder is private to the user who
+FOLDER/address.txt and as the libpq service `oecode-local` in FOLDER/pg_service.conf. Local socket connections are trusted (the socket folder is private to the user who
 started the server); TCP connections need a password (scram-sha-256). Not for real data: a team's real
 server is the one its IT runs and backs up.
 
@@ -24,6 +24,8 @@ from opencode.errors import BadInput, OpenCodeError
 
 DATABASE = "oecode"
 SUPERUSER = "oecode"
+#: The service name in FOLDER/pg_service.conf (libpq reads it when PGSERVICEFILE names that file).
+SERVICE = "oecode-local"
 INSTALL_HINT = "install PostgreSQL (e.g. apt-get install postgresql) so that initdb and pg_ctl are available"
 
 
@@ -124,6 +126,10 @@ def start_local_server(folder: str | os.PathLike, *, port: int | None = None, ru
     if fresh:
         _create_database(server)
     (folder / "address.txt").write_text(server.address() + "\n", encoding="utf-8")
+    (folder / "pg_service.conf").write_text(
+        f"# libpq service file for the local server in this folder (PGSERVICEFILE=this file)\n[{SERVICE}]\n"
+        f"host={server.socket_dir}\nport={server.port}\ndbname={DATABASE}\nuser={server.superuser}\n",
+        encoding="utf-8")
     return server
 
 

@@ -59,11 +59,12 @@ def _register_adapters(connection) -> None:
 class _Cursor:
     """What execute returns: rows to fetch or iterate, rowcount, and lastrowid for a numbered insert."""
 
-    def __init__(self, cursor, returning_id: bool):
+    def __init__(self, cursor, returning_id: bool, rows: list | None = None, description=None):
         self._cursor = cursor
-        self.rowcount = cursor.rowcount
+        self._description = description
+        self.rowcount = cursor.rowcount if cursor is not None else len(rows or [])
         self.lastrowid = None
-        self._rows: list | None = None
+        self._rows: list | None = None if rows is None else list(rows)
         if returning_id:
             rows = cursor.fetchall()
             self.lastrowid = rows[-1][0] if rows else None
@@ -71,7 +72,7 @@ class _Cursor:
 
     @property
     def description(self):
-        return self._cursor.description
+        return self._description if self._cursor is None else self._cursor.description
 
     def fetchone(self):
         if self._rows is not None:
@@ -88,7 +89,8 @@ class _Cursor:
         return iter(self.fetchall())
 
     def close(self) -> None:
-        self._cursor.close()
+        if self._cursor is not None:
+            self._cursor.close()
 
 
 class PgConnection:
@@ -111,6 +113,10 @@ class PgConnection:
             self._conn = self._connect()
 
     _closed_by_us = False
+    #: Within a transaction, a SELECT repeated with the same parameters and no write in between gives the
+    #: rows it gave the first time (the coding functions ask the same question several times in one change;
+    #: each answer saved is a round trip to the server). None outside a transaction: nothing is kept.
+    _reads: dict | None = None
 
     @property
     def raw(self):
@@ -131,15 +137,32 @@ class PgConnection:
     def execute(self, sql: str, params: Iterable[Any] = ()) -> _Cursor:
         self._ensure()
         params = tuple(params) if params else None
+        reading = sql.lstrip()[:6].upper() == "SELECT"
+        key = None
+        if reading and self._reads is not None:
+            try:
+                key = (sql, params)
+                if key in self._reads:
+                    return _Cursor(None, False, *self._reads[key])
+            except TypeError:  # a list parameter: not cached
+                key = None
+        elif not reading:
+            self._reads = {} if self._reads is not None else None
         text = translate(sql, True)
         try:
             cursor = self._conn.execute(text if params else text.replace("%%", "%"), params)
         except Exception as error:
             raise self._mapped(error, sql) from error
+        if key is not None:
+            rows = cursor.fetchall() if cursor.description else []
+            self._reads[key] = (rows, cursor.description)
+            return _Cursor(None, False, rows, cursor.description)
         return _Cursor(cursor, text.endswith("RETURNING id"))
 
     def executemany(self, sql: str, rows: Iterable[Iterable[Any]]) -> _Cursor:
         self._ensure()
+        if self._reads is not None:
+            self._reads = {}
         rows = [tuple(r) for r in rows]
         if not rows:
             return _Cursor(self._conn.cursor(), False)
@@ -153,6 +176,8 @@ class PgConnection:
     def admin(self, sql: str, params: Iterable[Any] | None = None):
         """Run PostgreSQL's own SQL as written (schemas, roles, policies, COPY set-up): no translation."""
         self._ensure()
+        if self._reads is not None:
+            self._reads = {}
         try:
             return self._conn.execute(sql, params)
         except Exception as error:
@@ -161,11 +186,14 @@ class PgConnection:
     def begin(self) -> None:
         self._ensure()
         self._run("BEGIN")
+        self._reads = {}
 
     def commit(self) -> None:
+        self._reads = None
         self._run("COMMIT")
 
     def rollback(self) -> None:
+        self._reads = None
         if self._conn.closed:
             return
         try:
