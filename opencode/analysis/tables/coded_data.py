@@ -55,6 +55,8 @@ class QuestionCoding:
     verbatim_text: list[str | None]
     suggestions: int
     include_suggestions: bool
+    flagged_but_coded: int = 0  # flagged non-answers that hold a substantive code: counted as answers
+    coded_non_answers: int = 0  # unflagged verbatims given only a non-answer code: counted as non-answers
 
     @property
     def notes(self) -> list[str]:
@@ -64,6 +66,11 @@ class QuestionCoding:
             out.append(f"{self.question}: includes {self.suggestions:,} machine/rule suggestions not yet reviewed "
                        "by a person" if self.suggestions else
                        f"{self.question}: suggestions were asked for, but coder {self.coder!r} has none")
+        if self.flagged_but_coded or self.coded_non_answers:
+            out.append(f"{self.question}: non-answers follow {self.coder!r}'s codes where they differ from the "
+                       f"import's flag ({self.flagged_but_coded:,} flagged verbatims hold a code and count as answers; "
+                       f"{self.coded_non_answers:,} others were coded as non-answers), so the count differs from "
+                       "`oecode info`")
         left = int(self.uncoded.sum())
         if left:
             out.append(f"{self.question}: {left:,} answered verbatims not yet coded by {self.coder!r} are left out "
@@ -116,16 +123,22 @@ def load_coding(study: Study, question: str, coder: str = FINAL, *, include_sugg
     special = np.array([c.special == "nonanswer" for c in codes], dtype=bool)
     substantive = np.asarray(indicators[:, ~special].sum(axis=1)).ravel() > 0
     nonanswer_coded = np.asarray(indicators[:, special].sum(axis=1)).ravel() > 0
-    non_answer = has_verbatim & ~substantive & (flagged | nonanswer_coded)
-    answered = has_verbatim & coded & ~non_answer
     text_column = np.full(n, None, dtype=object)
     text_column[rows] = texts["text"].to_numpy(dtype=object)
+    empty = np.zeros(n, dtype=bool)
+    empty[rows] = texts["text"].fillna("").str.strip().eq("").to_numpy()
+    # A person's code overrules the import's flag ("no" can be an answer), but an empty verbatim has no answer
+    # to code: codes on it (e.g. imported from another column) stay out of the base.
+    non_answer = has_verbatim & ((~substantive & (flagged | nonanswer_coded)) | empty)
+    answered = has_verbatim & coded & ~non_answer
     return QuestionCoding(
         question=question, label=variable.label or question, coder=coder, respondent_ids=keys, codes=codes,
         nets=nets, indicators=indicators, answered=answered, non_answer=non_answer,
         uncoded=has_verbatim & ~coded & ~non_answer, has_verbatim=has_verbatim, verbatim_text=text_column.tolist(),
         suggestions=int(given["source"].isin(SUGGESTED).sum()) if include_suggestions else 0,
         include_suggestions=include_suggestions,
+        flagged_but_coded=int((has_verbatim & flagged & substantive & ~empty).sum()),
+        coded_non_answers=int((non_answer & ~flagged).sum()),
     )
 
 
@@ -156,7 +169,7 @@ def table_question(coding: QuestionCoding) -> tables.CodedQuestion:
         name=coding.question, label=coding.output_label, indicators=coding.indicators[:, keep],
         codes=[tables.Code(c.number, c.label) for c in kept], answered=coding.answered, non_answer=coding.non_answer,
         nets=[tables.Net(n.number, n.label, members) for n, members in kept_nets(coding.nets, kept)],
-        respondent_ids=coding.respondent_ids,
+        respondent_ids=coding.respondent_ids, has_verbatim=coding.has_verbatim,
     )
 
 
