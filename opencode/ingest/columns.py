@@ -142,7 +142,7 @@ def _label_lists(text: pd.Series, blank: pd.Series, known: dict[float, str]) -> 
 
     A label already in `known` (from the file or a data map) keeps its code, a whole number stays that code, and
     new labels get the next free codes in alphabetical order. Labels match case- and space-insensitively; the
-    most frequent spelling becomes the value label.
+    most frequent spelling (the first seen of equals) becomes the value label.
     """
     cells = [[] if empty else [part for part in _MULTI_SPLIT.split(cell) if part] for cell, empty in zip(text, blank)]
     spellings: dict[str, dict[str, int]] = {}
@@ -160,7 +160,7 @@ def _label_lists(text: pd.Series, blank: pd.Series, known: dict[float, str]) -> 
     for key in sorted(spellings, key=lambda k: (k not in code_of, k)):
         if key not in code_of:
             code_of[key] = next_code
-            labels[next_code] = max(spellings[key].items(), key=lambda item: (item[1], item[0]))[0]
+            labels[next_code] = max(spellings[key].items(), key=lambda item: item[1])[0]  # ties: first seen
             next_code += 1
     def code(part: str) -> float:
         return float(part) if part.isdigit() else code_of[_label_key(part)]
