@@ -10,6 +10,11 @@ from pathlib import Path
 import numpy as np
 import pyreadstat
 
+try:
+    from pyreadstat import PyreadstatError, ReadstatError
+except ImportError:  # pyreadstat before 1.3 exports them from its parser module only
+    from pyreadstat._readstat_parser import PyreadstatError, ReadstatError
+
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode
 from opencode.files.safe_write import atomic_path
@@ -26,7 +31,7 @@ def _format_errors(target: Path):
     """Turn a refusal by the file-format library into an error naming the file."""
     try:
         yield
-    except (pyreadstat.PyreadstatError, pyreadstat.ReadstatError) as exc:
+    except (PyreadstatError, ReadstatError) as exc:
         raise OpenCodeError(f"{target}: could not write: {exc}") from None
 
 
