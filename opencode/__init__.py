@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from typing import Any
 
-__version__ = "0.1.0"
+from opencode.version import __version__
 
 __all__ = ["open_study", "themes", "drivers", "agreement", "tables", "OpenCodeError", "__version__"]
 

@@ -23,7 +23,7 @@ def test_readme_python_section_runs_as_written(demo_folder, monkeypatch, capsys)
     monkeypatch.chdir(demo_folder.parent)
     exec(compile(_readme_block(), "README.md (Use from Python)", "exec"), {})
     printed = capsys.readouterr().out
-    assert "share_of_respondents" in printed and "kappa" in printed
+    assert "share_of_respondents" in printed and "cohen_kappa" in printed
 
 
 def test_codes_equal_the_study_rows(demo_folder):

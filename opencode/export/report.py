@@ -18,7 +18,7 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html

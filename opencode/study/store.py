@@ -10,7 +10,7 @@ import sqlite3
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Iterator
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
