@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Mapping, Sequence
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
