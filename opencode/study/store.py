@@ -8,9 +8,9 @@ import json
 import os
 import sqlite3
 from pathlib import Path
-from typing import Any, Callable, Iterator
+from typing import TYPE_CHECKING, Any, Callable, Iterator
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
 from opencode.study.address import ServerAddress, is_server_address, parse_address
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
@@ -27,6 +27,10 @@ def now() -> str:
 def _is_locked(error: sqlite3.OperationalError) -> bool:
     text = str(error).lower()
     return "locked" in text or "busy" in text
+
+
+if TYPE_CHECKING:  # pandas is imported only when codes are read
+    import pandas as pd
 
 
 class Study:
@@ -233,6 +237,13 @@ class Study:
             self._db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
                             (key, json.dumps(value, ensure_ascii=False)))
             self.audit(actor, "set", "setting", None, {"key": key, "before": old, "after": value})
+
+    # -- reading codes (the public API's door for notebooks) ---------------------------------------------------
+    def codes(self, question: str, coder: str = "final") -> "pd.DataFrame":
+        """One coder's codes on a question: respondent (the survey's id), code, label, net, source."""
+        from opencode.study.codes_table import question_codes
+
+        return question_codes(self, question, coder)
 
 
 def as_study_target(target: "str | os.PathLike | ServerAddress") -> "Path | ServerAddress":
