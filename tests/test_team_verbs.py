@@ -132,3 +132,15 @@ def test_tls_settings_reach_libpq(pg_server, capsys):
     address = pg_server.tcp_address(study="anything").replace("sslmode=disable", "sslmode=require")
     assert main(["info", address]) == 1
     assert "SSL" in capsys.readouterr().err
+
+
+def test_the_python_api_reads_a_server_study_like_a_file(pg_server, demo_copy):
+    import opencode as oc
+
+    address = pg_server.address(study=study_name("api"))
+    assert main(["push", str(demo_copy), address]) == 0
+    with oc.open_study(demo_copy) as on_file, oc.open_study(address) as on_server:
+        for coder in ("ash", "bryn"):
+            expected = on_file.codes("why", coder=coder)
+            assert len(expected) > 0
+            assert on_server.codes("why", coder=coder).equals(expected)

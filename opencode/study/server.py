@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import NotAStudy, OpenCodeError, StudyNotFound, BadInput
 from opencode.study.address import ServerAddress
 from opencode.study.pg_schema import pg_migration
