@@ -231,3 +231,13 @@ def test_a_password_set_by_grant_works_from_a_password_file_never_the_command_li
     monkeypatch.setenv("PGPASSFILE", str(passfile))
     assert main(["info", over_tcp]) == 0
     assert "respondents" in capsys.readouterr().out
+
+
+def test_the_desk_refuses_a_coder_name_other_than_the_login(pg_server, team_study, capsys):
+    kit = pg_server.address(study=team_study, user="kit")
+    assert main(["code", kit, "--question", "why", "--coder", "bryn"]) == 1
+    assert "connected as kit" in capsys.readouterr().err
+    with psycopg.connect(pg_server.address(), autocommit=True) as admin:
+        admin.execute("DO $$ BEGIN CREATE ROLE zed LOGIN; EXCEPTION WHEN duplicate_object THEN NULL; END $$")
+    assert main(["code", pg_server.address(study=team_study, user="zed"), "--question", "why", "--coder", "zed"]) == 1
+    assert "zed is not in this study's team" in capsys.readouterr().err

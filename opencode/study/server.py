@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from opencode.version import __version__
-from opencode.errors import NotAStudy, OpenCodeError, StudyNotFound, BadInput
+from opencode.errors import BadInput, NotAStudy, NotPermitted, OpenCodeError, StudyNotFound
 from opencode.study.address import ServerAddress
 from opencode.study.pg_schema import pg_migration
 from opencode.study.postgres import PgConnection, connect_raw, quote_ident
@@ -59,6 +59,9 @@ def open_study(cls, address: ServerAddress) -> "Study":
                                 "copy one in with oecode push")
         if state == "other":
             raise NotAStudy(f"{address}: schema {address.study!r} exists but is not an oecode study")
+        if not connection.raw.execute("SELECT has_schema_privilege(%s, 'USAGE')", (address.study,)).fetchone()[0]:
+            raise NotPermitted(f"{address}: {connection.user} is not in this study's team; the lead adds them with "
+                               "oecode team grant")
         study = cls(address, connection, dialect="postgresql")
         version = study.schema_version()
         if version > SCHEMA_VERSION:
