@@ -138,3 +138,16 @@ def test_a_dropped_connection_loses_nothing_and_the_next_press_reconnects(shared
             coding.toggle(study, ids[1], codes[0], "kit")
         assert coding.toggle(study, ids[1], codes[0], "kit") is True  # the desk's retry
         assert [x.number for x in coding.codes_of(study, ids[0], "kit")] == [codes[0]]
+
+
+def test_a_repeated_read_in_one_change_is_answered_once_until_the_change_writes(shared):
+    address, ids, codes = shared
+    query = "SELECT COUNT(*) FROM assignments WHERE coder = ?"
+    with Study.open(address) as study, Study.open(address) as other:
+        with study.transaction():
+            first = study._db.execute(query, ("kit",)).fetchone()[0]
+            coding.toggle(other, ids[0], codes[0], "kit")  # another desk commits meanwhile
+            assert study._db.execute(query, ("kit",)).fetchone()[0] == first  # the change's own view holds
+            study.set_setting("probe", 1)  # the change writes: reads go to the server again
+            assert study._db.execute(query, ("kit",)).fetchone()[0] == first + 1
+        assert study._db.execute(query, ("kit",)).fetchone()[0] == first + 1  # outside a change: never kept
