@@ -1,14 +1,13 @@
 """The Analyzer: normalise, tokenize, stop lists, phrases, merges, stems, negations -> term stream.
 
-The Analyzer holds only its parameters (scikit-learn style) and a memo of the rules they compile to. The ids
-of the terms and word forms met while analysing live in a Vocabulary (`analyzer.vocabulary()`), one per
-corpus, so analysing text never changes the analyzer. Phrases and negations are applied on integer arrays,
+The Analyzer holds only its parameters (scikit-learn style). The ids of the terms and word forms met while
+analysing live in a Vocabulary (`analyzer.vocabulary()`), one per corpus, so analysing text never changes
+the analyzer. Phrases and negations are applied on integer arrays,
 chunk by chunk.
 """
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -176,15 +175,10 @@ class Analyzer:
                 raise OpenCodeError(f"analyzer {name}: expected a list of entries, got a single string")
 
     def _rules(self) -> _Rules:
-        """The rules these parameters compile to (remembered per parameter set; a pure function of them)."""
-        signature = json.dumps(self.to_dict(), sort_keys=True)
-        cached = self.__dict__.get("_compiled")
-        if cached is not None and cached[0] == signature:
-            return cached[1]
+        """The rules these parameters compile to (built afresh: well under a millisecond, and it keeps the
+        analyzer free of any state but its parameters)."""
         self._validate()
-        rules = _Rules(self)
-        self.__dict__["_compiled"] = (signature, rules)
-        return rules
+        return _Rules(self)
 
     def vocabulary(self) -> Vocabulary:
         """A new, empty vocabulary for analysing a corpus with these settings (term ids grow there)."""
