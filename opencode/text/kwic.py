@@ -33,8 +33,8 @@ def _word_pattern(word: str) -> str:
         return URL_RE.pattern
     if word == EMAIL_PLACEHOLDER:
         return EMAIL_RE.pattern
-    if word == NUMBER_PLACEHOLDER:
-        return r"\d+(?:[.,:/]\d+)*"
+    if word == NUMBER_PLACEHOLDER:  # a number token as the tokenizer reads one (not part of "3-day")
+        return r"(?<![\w'’\-])\d+(?:[.,:/]\d+)*(?:st|nd|rd|th|am|pm|s|k)?(?![\w'’\-])"
     escaped = re.escape(word).replace("'", "['’]").replace(r"\-", r"[-\s]?")
     return escaped
 

@@ -178,7 +178,8 @@ def recommend_k(table: pd.DataFrame) -> tuple[pd.DataFrame, int, str]:
     why = (f"Recommended k = {recommended}: NPMI rank {int(best['rank_npmi'])} and stability rank "
            f"{int(best['rank_stability'])} of {n} (mean {best['combined_rank']:.1f}); its largest theme holds "
            f"{best['largest']:.0%} of the verbatims with terms.")
-    passed = ranked[(ranked["combined_rank"] < best["combined_rank"]) & ranked["catch_all"].astype(bool)]
+    ahead = ranked.iloc[:list(ranked["k"]).index(best["k"])]
+    passed = ahead[ahead["catch_all"].astype(bool)]
     if len(eligible) == 0:
         why += (" Every k in the range has a catch-all theme, so none could be left out: try a larger k, "
                 "phrases, or more stop words, and read the largest theme's verbatims.")
