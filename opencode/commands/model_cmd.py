@@ -62,18 +62,27 @@ def _report(study: Study, args: argparse.Namespace) -> None:
                         for r in rows]))
 
 
+def _share(value: float) -> str:
+    return "-" if value != value else f"{value:.1%}"
+
+
+def _ratio(value: float) -> str:
+    return "-" if value != value else f"{value:.3f}"
+
+
 def _curve(study: Study, args: argparse.Namespace) -> None:
     report = machine_coding.curve(study, args.question, code_threshold=0.8 if args.threshold is None
                                   else args.threshold)
     print("semi-automatic coding: the model codes a verbatim only when sure of every code it can suggest; "
           "people code the rest")
     print(format_table(["threshold", "auto-coded", "accuracy", "precision", "recall", "verbatims"],
-                       [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
-                        for r in report.rows]))
+                       [[f"{r['threshold']:.2f}", _share(r["coverage"]), _share(r["accuracy"]), _ratio(r["precision"]),
+                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr"))
     print(f"per code on the verbatims auto-coded at {report.threshold:.2f}:")
-    print(format_table(["code", "label", "machine", "person", "both", "precision", "recall"],
-                       [[c["code"], c["label"][:40], c["machine"] if c["suggests"] else "cannot suggest", c["person"],
-                         c["both"], c["precision"], c["recall"]] for c in report.codes]))
+    print(format_table(["code", "label", "machine", "person", "both", "precision", "recall", ""],
+                       [[c["code"], c["label"][:40], c["machine"], c["person"], c["both"], _ratio(c["precision"]),
+                         _ratio(c["recall"]), "" if c["suggests"] else "cannot suggest"] for c in report.codes],
+                       align="rlrrrrrl"))
     for note in report.notes:
         print(f"- {note}")
     print("pick a threshold whose accuracy you accept; then: oecode model STUDY apply --question Q --threshold T")
