@@ -447,7 +447,7 @@ def test_themes_screen_promotes_a_theme_to_a_draft_code(study_path):
             await pilot.press("enter")
             with Study.open(study_path) as study:
                 code = frames.get_code(study, "why", 91)  # one past the highest number
-                assert code.label == "Staff / night / safe"
+                assert code.label == "staff / night / safe"  # the top terms as they are
                 assert code.rule == "staff OR night OR safe OR help"
                 assert "theme run" in code.description
     run(scenario)

@@ -15,7 +15,7 @@ from opencode.study.matrix_cache_store import KEEP_PER_QUESTION, cached_keys
 from opencode.study.store import Study
 from opencode.study.survey_data import add_variable, analysis_values, get_question, get_variable, raw_values, verbatims
 from opencode.text import study_text as st
-from opencode.text.analyzer import Analyzer
+from opencode.text.analyzer import Analyzer, Vocabulary
 from opencode.text.lexicon import Lexicon
 
 
@@ -36,13 +36,13 @@ def study(demo_template, tmp_path):
 def stream_calls(monkeypatch):
     """Counts calls of the analyzer's tokenizing step (a cache hit must make none)."""
     calls = []
-    original = Analyzer.stream_chunk
+    original = Vocabulary.stream_chunk
 
     def counted(self, texts):
         calls.append(len(texts))
         return original(self, texts)
 
-    monkeypatch.setattr(Analyzer, "stream_chunk", counted)
+    monkeypatch.setattr(Vocabulary, "stream_chunk", counted)
     return calls
 
 

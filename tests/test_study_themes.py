@@ -214,9 +214,9 @@ def test_promote_with_a_label_and_bad_promotions(study, fitted, searched):
 
 def test_theme_rule_skips_placeholders_and_quotes_phrases(study):
     analyzer = analyzer_for(study, "why")
-    assert sth.theme_rule(["_num_", "opening hours", "staff", "staff"], analyzer) == '"opening hours" OR staff'
+    assert sth.theme_rule(["#number", "opening hours", "staff", "staff"], analyzer) == '"opening hours" OR staff'
     with pytest.raises(OpenCodeError, match="no word"):
-        sth.theme_rule(["_num_", "the"], analyzer)
+        sth.theme_rule(["#number", "the"], analyzer)
 
 
 def test_k_search_is_kept_and_reloads(study, searched):

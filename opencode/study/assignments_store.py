@@ -147,6 +147,12 @@ def verbatim_text(study: Study, verbatim_id: int) -> str | None:
     return None if row is None else row[0]
 
 
+def verbatim_is_nonanswer(study: Study, verbatim_id: int) -> bool:
+    """Whether a verbatim is flagged as a non-answer (False when there is no such verbatim)."""
+    row = study._db.execute("SELECT nonanswer FROM verbatims WHERE id = ?", (verbatim_id,)).fetchone()
+    return bool(row and row[0])
+
+
 def verbatim_ids_by_respondent(study: Study, question_id: int) -> dict[str, int]:
     """Respondent key -> verbatim id for one question."""
     return dict(study._db.execute(
