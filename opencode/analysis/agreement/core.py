@@ -34,6 +34,8 @@ STATISTIC_LABELS = {
     "percent": "% agreement",
     "cohen_kappa": "Cohen's kappa",
     "fleiss_kappa": "Fleiss' kappa",
+    "conger_kappa": "Conger's kappa",
+    "brennan_prediger": "Brennan-Prediger",
     "krippendorff_alpha": "Krippendorff's alpha",
     "gwet_ac1": "Gwet's AC1",
     "pabak": "PABAK",
@@ -43,7 +45,7 @@ STATISTIC_LABELS = {
     "alpha_jaccard": "Krippendorff's alpha, Jaccard distance",
     "mean_kappa": "mean per-code kappa",
 }
-_LANDIS_KOCH = {"cohen_kappa", "fleiss_kappa", "gwet_ac1", "pabak", "mean_kappa"}
+_LANDIS_KOCH = {"cohen_kappa", "fleiss_kappa", "conger_kappa", "gwet_ac1", "pabak", "brennan_prediger", "mean_kappa"}
 _KRIPPENDORFF = {"krippendorff_alpha", "alpha_masi", "alpha_jaccard"}
 SMALL_BASE = 30  # common practice (no published source): flag bases under 30
 
