@@ -17,6 +17,7 @@ VERBS = {
     "frame": "frame_cmd", "model": "model_cmd", "code": "desk_cmd",
     "sample": "reliability_cmds", "agree": "reliability_cmds",
     "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
+    "sentiment": "sentiment_cmd",
 }
 
 

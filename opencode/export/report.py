@@ -22,6 +22,7 @@ from opencode import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
 from opencode.analysis.tables.crosstab import MIN_BASE
@@ -134,6 +135,8 @@ def build_report(
         body, question_notes = _question_section(coding, banners, survey_weight, agreement, quotes_per_code,
                                                  mask_verbatims)
         said += question_notes
+        body += sentiment_report_section(study, question, coder=coder, include_suggestions=include_suggestions,
+                                         weight=weight, unweighted=unweighted)
         sections.append((f"q{index + 1}", f"{question}: {coding.label}", body))
     for index, section in enumerate(extra_sections):
         sections.append((f"extra{index + 1}", section.title, section.html))

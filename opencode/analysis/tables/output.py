@@ -17,11 +17,12 @@ from pathlib import Path
 from typing import Any, Sequence, Union
 
 from opencode.analysis.tables.crosstab import BannerTable, FrequencyTable
+from opencode.analysis.tables.mix import MixTable
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_cell
 from opencode.files.safe_write import atomic_open, atomic_path
 
-Table = Union[FrequencyTable, BannerTable]
+Table = Union[FrequencyTable, BannerTable, MixTable]
 EMPTY = "-"
 SMALL_MARK = "!"
 TABLE_CSS = """\
@@ -72,7 +73,9 @@ def layout_table(table: Table) -> Layout:
         return _layout_frequencies(table)
     if isinstance(table, BannerTable):
         return _layout_banner(table)
-    raise TypeError(f"expected a FrequencyTable or BannerTable, got {type(table).__name__}")
+    if isinstance(table, MixTable):
+        return _layout_mix(table)
+    raise TypeError(f"expected a FrequencyTable, BannerTable or MixTable, got {type(table).__name__}")
 
 
 def format_table(table: Table) -> str:
@@ -122,7 +125,7 @@ def write_xlsx(tables: Sequence[Table] | Table, path: str | os.PathLike) -> Path
     from openpyxl.styles import Alignment, Font
     from openpyxl.utils import get_column_letter
 
-    if isinstance(tables, (FrequencyTable, BannerTable)):
+    if isinstance(tables, (FrequencyTable, BannerTable, MixTable)):
         tables = [tables]
     if not tables:
         raise OpenCodeError(f"{path}: no tables to write")
@@ -132,7 +135,7 @@ def write_xlsx(tables: Sequence[Table] | Table, path: str | os.PathLike) -> Path
     bold = Font(bold=True)
     for table in tables:
         layout = layout_table(table)
-        kind = "banner" if isinstance(table, BannerTable) else "codes"
+        kind = "banner" if isinstance(table, BannerTable) else "mix" if isinstance(table, MixTable) else "codes"
         sheet = workbook.create_sheet(_sheet_name(f"{table.question} {kind}", used))
         sheet.cell(row=1, column=1, value=_xlsx_text(layout.title)).font = bold
         widths: dict[int, int] = {}
@@ -176,7 +179,7 @@ def to_html(table: Table) -> str:
         row_html = []
         for cell in cells:
             classes = []
-            if cell.kind in ("count", "amount", "share", "p"):
+            if cell.kind in ("count", "amount", "share", "p", "score"):
                 classes.append("oc-num")
             if cell.kind == "mark":
                 classes.append("oc-small" if cell.value == SMALL_MARK else "oc-mark")
@@ -279,6 +282,32 @@ def _layout_banner(t: BannerTable) -> Layout:
     return layout
 
 
+def _layout_mix(t: MixTable) -> Layout:
+    """Grid of a mix table: base, row % per category, mean score, row-test q."""
+    layout = Layout(title=f"{t.question_label}: {t.variable_label} within each code (row %)", label_columns=2,
+                    header_rows=1)
+    head = ["Code", "Label", "Base"] + (["Weighted base"] if t.weighted else []) + [label for _, label in t.categories]
+    head += ([t.score_label] if t.mean_score is not None else []) + ["", "Row test q"]
+    layout.add("head", [Cell(h, "head") for h in head])
+    small = t.small_base & (t.base_n > 0)
+    for r, row in enumerate(t.rows):
+        cells = [Cell("" if row.kind == "total" else row.number), Cell(row.label, level=row.level),
+                 Cell(t.base_n[r], "count")]
+        if t.weighted:
+            cells.append(Cell(t.base_weighted[r], "amount"))
+        cells += [Cell(t.share[r, k], "share") for k in range(len(t.categories))]
+        if t.mean_score is not None:
+            cells.append(Cell(t.mean_score[r], "score"))
+        cells += [Cell(SMALL_MARK if small[r] else "", "mark"), Cell(None if r == 0 else t.row_q[r], "p")]
+        layout.add("base" if row.kind == "total" else row.kind, cells)
+    layout.notes.append(f"Row %: of the respondents with the code who have a value on {t.variable!r}; each row adds "
+                        "to 100. A respondent with several codes counts in each of their rows.")
+    layout.notes.append("Row test q: chi-square of the category mix with the code against without it, one test per "
+                        "row, Benjamini-Hochberg adjusted across the table.")
+    layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=True)
+    return layout
+
+
 def _common_notes(weighted: bool, weight_name: str | None, min_base: int, tested: bool) -> list[str]:
     """Footnotes on weighting and small bases."""
     notes = []
@@ -298,7 +327,7 @@ def _is_number(value: Any) -> bool:
 
 def _is_missing_number(cell: Cell) -> bool:
     """A numeric cell whose value is NaN (no base)."""
-    return cell.kind in ("count", "amount", "share", "p") and cell.value is not None and not _is_number(cell.value)
+    return cell.kind in ("count", "amount", "share", "p", "score") and cell.value is not None and not _is_number(cell.value)
 
 
 def _text(cell: Cell, percent_sign: bool = False) -> str:
@@ -313,14 +342,14 @@ def _text(cell: Cell, percent_sign: bool = False) -> str:
         return f"{float(cell.value):.1f}"
     if cell.kind == "share":
         return f"{100 * float(cell.value):.1f}" + ("%" if percent_sign else "")
-    if cell.kind == "p":
-        return f"{float(cell.value):.3f}"
+    if cell.kind in ("p", "score"):
+        return f"{float(cell.value):+.3f}" if cell.kind == "score" else f"{float(cell.value):.3f}"
     return str(cell.value)
 
 
 def _align(text: str, width: int, cell: Cell) -> str:
     """Numbers right-aligned, labels and marks left-aligned, indented by level."""
-    if cell.kind in ("count", "amount", "share", "p"):
+    if cell.kind in ("count", "amount", "share", "p", "score"):
         return text.rjust(width)
     return text.ljust(width)
 
@@ -337,7 +366,7 @@ def _csv_value(cell: Cell) -> Any:
         return round(float(cell.value), 2)
     if cell.kind == "share":
         return round(100 * float(cell.value), 1)
-    if cell.kind == "p":
+    if cell.kind in ("p", "score"):
         return round(float(cell.value), 4)
     return guard_cell(str(cell.value))
 
@@ -358,7 +387,7 @@ def _xlsx_value(cell: Cell) -> Any:
         return EMPTY
     if cell.kind == "count":
         return int(cell.value)
-    if cell.kind in ("amount", "share", "p"):
+    if cell.kind in ("amount", "share", "p", "score"):
         return float(cell.value)
     if isinstance(cell.value, str):
         return _xlsx_text(cell.value)
