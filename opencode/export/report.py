@@ -43,7 +43,8 @@ CAUTIONS = (
     "addresses masked, but names and other details may remain: read before sharing.",
     "Machine and rule codes are suggestions until a person accepts them; unless stated, tables count confirmed "
     "(hand) codes only.",
-    f"Percentages on bases under {MIN_BASE} are flagged (!) and not tested: read them with caution.",
+    f"Percentages on bases under {MIN_BASE} are flagged (!): read them with caution; such banner columns are "
+    "compared by Fisher's exact test only.",
     "The organisation's data-protection rules and the research codes of conduct it follows come first: "
     "they decide who may see this report and its verbatims.",
 )

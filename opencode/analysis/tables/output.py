@@ -205,21 +205,33 @@ def _layout_frequencies(t: FrequencyTable) -> Layout:
     layout.add("head", [Cell(h, "head") for h in head])
     small = SMALL_MARK if t.small_base else ""
 
-    def row(number, label, count, weight, share, mark, mentions, mention_share, level=0) -> list[Cell]:
+    intervals = t.show_intervals and t.ci_low is not None
+    if intervals:
+        head[head.index("% of respondents") + 2:head.index("% of respondents") + 2] = ["low", "high"]
+        layout.rows[0] = [Cell(h, "head") for h in head]
+
+    def row(number, label, count, weight, share, mark, mentions, mention_share, level=0, ci=(None, None)) -> list[Cell]:
         cells = [Cell(number), Cell(label, level=level), Cell(count, "count")]
         if weighted:
             cells.append(Cell(weight, "amount"))
-        return cells + [Cell(share, "share"), Cell(mark, "mark"), Cell(mentions, amount), Cell(mention_share, "share")]
+        cells += [Cell(share, "share"), Cell(mark, "mark")]
+        if intervals:
+            cells += [Cell(ci[0], "share"), Cell(ci[1], "share")]
+        return cells + [Cell(mentions, amount), Cell(mention_share, "share")]
 
     layout.add("base", row("", "Base: answered", t.base.n, t.base.weighted, None, small, t.total_mentions,
                            1.0 if t.total_mentions > 0 else math.nan))
     if weighted:
         layout.add("base", row("", "Effective base (Kish)", None, t.base.effective, None, "", None, None))
     for i, r in enumerate(t.rows):
+        ci = (t.ci_low[i], t.ci_high[i]) if intervals else (None, None)
         layout.add(r.kind, row(r.number, r.label, t.count[i], t.weighted_count[i], t.respondent_share[i], small,
-                               t.mentions[i], t.mention_share[i], level=r.level))
+                               t.mentions[i], t.mention_share[i], level=r.level, ci=ci))
     layout.add("other", row("", "Non-answers (share of all verbatims)", t.non_answer.n, t.non_answer.weighted,
                             t.non_answer_share, "", None, None))
+    if intervals:
+        layout.notes.append(_interval_note(t.confidence, t.weighted).replace("each percentage", "% of respondents")
+                            + " low / high: its limits.")
     layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=False)
     layout.notes.append("% of respondents can add past 100 (several codes per verbatim); % of mentions adds to 100 over codes."
                         " A net counts a respondent once; its mentions are the sum of its codes' mentions.")
@@ -261,11 +273,19 @@ def _layout_banner(t: BannerTable) -> Layout:
         cells = [Cell(row.number), Cell(row.label, level=row.level)]
         for v, (name, cols) in enumerate(blocks):
             for c in cols:
-                mark = SMALL_MARK if small[c] else letters[r, c]
+                mark = (SMALL_MARK if small[c] else "") + letters[r, c]
                 cells += [Cell(t.column_share[r, c], "share"), Cell(mark, "mark")]
             if name is not None:
                 cells.append(Cell(t.row_q[r, v - 1], "p"))
         layout.add(row.kind, cells)
+        if t.show_intervals and t.ci_low is not None:
+            cells = [Cell(""), Cell("", level=row.level)]
+            for v, (name, cols) in enumerate(blocks):
+                for c in cols:
+                    cells += [Cell(_interval_text(t.ci_low[r, c], t.ci_high[r, c]), "interval"), Cell("", "mark")]
+                if name is not None:
+                    cells.append(Cell(None, "p"))
+            layout.add("interval", cells)
 
     level = f"{round(100 * t.confidence)}%"
     lower = f"; lower case at {round(100 * t.lower_confidence)}%" if t.lower_confidence is not None else ""
@@ -274,12 +294,37 @@ def _layout_banner(t: BannerTable) -> Layout:
         f"Letters: the column % is significantly higher than the column with that letter (pooled two-proportion z-test,"
         f" upper case at {level}{lower}{adjusted}); only columns of the same banner variable are compared."
     )
-    layout.notes.append(
-        "Row test q: chi-square of code present / absent by the banner variable's columns, one test per row,"
-        " Benjamini-Hochberg adjusted across the table."
-    )
-    layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=True)
+    if t.pair_exact.any():
+        counts = "effective counts (share x Kish base, rounded)" if t.weighted else "counts"
+        layout.notes.append(f"Columns with bases under {t.min_base} ({SMALL_MARK}) are compared by Fisher's exact "
+                            f"test (two-sided, 2 x 2 {counts}) instead of the z-test.")
+    if t.weighted:
+        layout.notes.append(
+            "Row test q: Pearson chi-square of code present / absent by the banner variable's columns with the "
+            "first-order Rao-Scott correction for the weights (Rao & Scott 1981, 1984), one test per row,"
+            " Benjamini-Hochberg adjusted across the table.")
+    else:
+        layout.notes.append(
+            "Row test q: chi-square of code present / absent by the banner variable's columns, one test per row,"
+            " Benjamini-Hochberg adjusted across the table."
+        )
+    if t.show_intervals:
+        layout.notes.append(_interval_note(t.confidence, t.weighted))
+    layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=True,
+                                  exact=bool(t.pair_exact.any()))
     return layout
+
+
+def _interval_text(low: float, high: float) -> str:
+    """A Wilson interval as '(12.3-18.9)' in percent, '' where undefined."""
+    if not (_is_number(low) and _is_number(high)):
+        return ""
+    return f"({100 * low:.1f}-{100 * high:.1f})"
+
+
+def _interval_note(confidence: float, weighted: bool) -> str:
+    base = "the Kish effective base" if weighted else "the base"
+    return (f"Intervals: {round(100 * confidence)}% Wilson (1927) score interval of each percentage, on {base}.")
 
 
 def _layout_mix(t: MixTable) -> Layout:
@@ -308,12 +353,14 @@ def _layout_mix(t: MixTable) -> Layout:
     return layout
 
 
-def _common_notes(weighted: bool, weight_name: str | None, min_base: int, tested: bool) -> list[str]:
+def _common_notes(weighted: bool, weight_name: str | None, min_base: int, tested: bool,
+                  exact: bool = False) -> list[str]:
     """Footnotes on weighting and small bases."""
     notes = []
     if weighted:
         notes.append(f"Weighted by {weight_name!r}; " + ("tests use Kish effective bases." if tested else "bases shown weighted and unweighted."))
-    small = f"{SMALL_MARK} base under {min_base}: read with caution" + ("; not tested." if tested else ".")
+    untested = "; exact test only, left out of the row test." if exact else "; not tested."
+    small = f"{SMALL_MARK} base under {min_base}: read with caution" + (untested if tested else ".")
     notes.append(small + f" {EMPTY} no base.")
     return notes
 
