@@ -6,7 +6,7 @@ import argparse
 import importlib
 import sys
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import OpenCodeError
 
 #: verb -> module in opencode.commands providing `register(subparsers)`; the verb's handler is set there.

@@ -8,9 +8,9 @@ import json
 import os
 import sqlite3
 from pathlib import Path
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Iterator
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
@@ -26,6 +26,10 @@ def now() -> str:
 def _is_locked(error: sqlite3.OperationalError) -> bool:
     text = str(error).lower()
     return "locked" in text or "busy" in text
+
+
+if TYPE_CHECKING:  # pandas is imported only when codes are read
+    import pandas as pd
 
 
 class Study:
@@ -182,6 +186,13 @@ class Study:
             self.db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
                             (key, json.dumps(value, ensure_ascii=False)))
             self.audit(actor, "set", "setting", None, {"key": key, "before": old, "after": value})
+
+    # -- reading codes (the public API's door for notebooks) ---------------------------------------------------
+    def codes(self, question: str, coder: str = "final") -> "pd.DataFrame":
+        """One coder's codes on a question: respondent (the survey's id), code, label, net, source."""
+        from opencode.study.codes_table import question_codes
+
+        return question_codes(self, question, coder)
 
 
 def _connect(path: Path) -> sqlite3.Connection:

@@ -12,6 +12,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 
 from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
 from opencode.analysis.agreement.bootstrap import bootstrap_totals, percentile_interval
@@ -112,6 +113,19 @@ class AgreementResult:
     def label(self, code) -> str:
         """The code's label, or the code itself when the frame gave none."""
         return str(self.code_labels.get(code, code))
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per code (then the whole frame as code None): each statistic with its interval."""
+        rows = []
+        for item in self.per_code:
+            row = {"code": item.code, "label": item.label, "n_pairable": item.n_pairable}
+            for name, estimate in item.statistics.items():
+                row.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
+            rows.append(row)
+        whole = {"code": None, "label": "whole frame", "n_pairable": self.n_pairable}
+        for name, estimate in self.frame.items():
+            whole.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
+        return pd.DataFrame(rows + [whole])
 
 
 def _number(x) -> float | None:

@@ -49,7 +49,8 @@ class CodedQuestion:
 
     `indicators` is respondents x codes (numpy or scipy.sparse, truthy = code given), columns in the order
     of `codes`. `answered` marks respondents with a verbatim that is not a non-answer; only they form the
-    base. `non_answer` marks the non-answers, shown apart.
+    base. `non_answer` marks the non-answers, shown apart as a share of `has_verbatim` (everyone who gave a
+    verbatim, coded or not; None: the answered and the non-answers).
     """
 
     name: str
@@ -60,6 +61,7 @@ class CodedQuestion:
     nets: Sequence[Net] = ()
     label: str = ""
     respondent_ids: Sequence[Any] | None = None
+    has_verbatim: Any = None
 
 
 @dataclass
@@ -146,7 +148,7 @@ class FrequencyTable:
 
     @property
     def non_answer_share(self) -> float:
-        """Non-answers as a share of everyone who gave a verbatim (NaN if nobody did)."""
+        """Non-answers as a share of all verbatims of the question, coded or not (NaN if there are none)."""
         return self.non_answer.weighted / self.asked.weighted if self.asked.weighted > 0 else float("nan")
 
 
@@ -241,7 +243,7 @@ def code_frequencies(question: CodedQuestion, weight: SurveyWeight | None = None
         count=count.astype(int), weighted_count=weighted_count, respondent_share=respondent_share,
         mentions=mentions, mention_share=mention_share,
         base=Base(int(base_n[0]), float(base_w[0]), float(base_eff[0])),
-        non_answer=_base_of(non_answer, w), asked=_base_of(answered | non_answer, w),
+        non_answer=_base_of(non_answer, w), asked=_base_of(*_asked(question, weight, answered, non_answer, n)),
         total_mentions=total_mentions, weight_name=weight.name if weight is not None else None, min_base=min_base,
         ci_low=ci_low, ci_high=ci_high, confidence=confidence,
     )
@@ -424,6 +426,18 @@ def _weights(weight: SurveyWeight | None, question: CodedQuestion, in_base: np.n
             f" ({negative.size} negative weight(s))"
         )
     return np.where(in_base, w, 0.0)
+
+
+def _asked(question: CodedQuestion, weight: SurveyWeight | None, answered: np.ndarray, non_answer: np.ndarray,
+           n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Everyone who gave a verbatim (coded or not) and their weights; a weight missing outside the base counts 0."""
+    asked = answered | non_answer
+    if question.has_verbatim is not None:
+        asked = asked | _bool_vector(question.has_verbatim, n, f"question {question.name!r}: verbatim mask")
+    if weight is None:
+        return asked, np.ones(n)
+    w = np.asarray(weight.values, dtype=float)
+    return asked, np.where(asked & np.isfinite(w), w, 0.0)
 
 
 def _code_matrix(question: CodedQuestion, n: int, answered: np.ndarray) -> sparse.csr_matrix:

@@ -6,6 +6,8 @@ import html
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import pandas as pd
+
 from opencode.analysis.tables import coded_data
 from opencode.analysis.tables.output import TABLE_CSS, to_html, write_csv, write_xlsx
 from opencode.analysis.tables.crosstab import (BannerTable, BannerVariable, FrequencyTable, SurveyWeight, banner_table,
@@ -30,6 +32,20 @@ class QuestionTables:
     def tables(self) -> list:
         """Every table made, frequencies first."""
         return [self.frequencies] + ([self.banner] if self.banner is not None else [])
+
+    def to_frame(self) -> pd.DataFrame:
+        """Frequencies, one row per code and net; with banners, a share column per banner column too."""
+        f = self.frequencies
+        table = pd.DataFrame({"kind": [r.kind for r in f.rows], "code": [r.number for r in f.rows],
+                              "label": [r.label for r in f.rows], "count": f.count,
+                              "weighted_count": f.weighted_count, "share_of_respondents": f.respondent_share,
+                              "mentions": f.mentions, "share_of_mentions": f.mention_share})
+        table.attrs["base"] = f.base.n
+        if self.banner is not None:
+            for j, column in enumerate(self.banner.columns):
+                name = column.label if column.variable is None else f"{column.variable}={column.label}"
+                table[f"share: {name}"] = self.banner.column_share[:, j]
+        return table
 
 
 def question_tables(study: Study, question: str, banners: list[str] = (), *, coder: str = FINAL,

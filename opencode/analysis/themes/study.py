@@ -73,6 +73,12 @@ class QuestionThemes:
     run_id: int | None = None
     created_at: str | None = None
 
+    def to_frame(self) -> pd.DataFrame:
+        """One row per theme: number, label, top terms, share of verbatims, dominant count, NPMI and UMass."""
+        return pd.DataFrame([{"theme": t.index + 1, "label": t.label, "top_terms": ", ".join(t.top_terms),
+                              "share": t.share, "n_dominant": t.n_dominant, "npmi": t.npmi, "umass": t.umass}
+                             for t in self.run.themes])
+
 
 @dataclass
 class QuestionKSearch:
