@@ -27,7 +27,7 @@ from opencode.analysis.agreement.disagreement import (
 )
 from opencode.analysis.agreement.matrix import CodingMatrix
 from opencode.analysis.agreement.sets import DISTANCES, SetAlphaParts, alpha_from_totals
-from opencode.analysis.agreement.weighted import cohen_weighted, conger_kappa, gwet_family
+from opencode.analysis.agreement.weighted import cohen_weighted, conger_kappa, gwet_family_counts
 from opencode.errors import OpenCodeError
 
 __all__ = ["AgreementResult", "CodeAgreement", "CodingMatrix", "Estimate", "STATISTIC_LABELS", "measure_agreement"]
@@ -165,21 +165,25 @@ def analytic_errors(matrix: CodingMatrix, names, confidence: float = 0.95) -> di
     if not wanted or codes == 0:
         return out
     coded = matrix.coded[:, :, None]
-    block = max(1, _ANALYTIC_BLOCK // max(1, 2 * matrix.coded.size))
+    block = max(1, _ANALYTIC_BLOCK // max(1, 2 * matrix.coded.size))  # codes per block
     identity = np.eye(2)
     for start in range(0, codes, block):
         part = slice(start, min(codes, start + block))
         present = matrix.present[:, :, part]
-        ratings = np.stack([present & coded, ~present & coded], axis=-1).astype(float)
         found = {}
         if "cohen_kappa" in wanted:
-            both = matrix.coded.all(axis=1).astype(float)
-            table = np.einsum("u,ubk,ubl->bkl", both, ratings[:, 0], ratings[:, 1])
-            found["cohen_kappa"] = cohen_weighted(table, identity, confidence)
+            both = matrix.coded.all(axis=1)[:, None]
+            first, second = present[:, 0] & both, present[:, 1] & both
+            a, b, c = (x.sum(axis=0) for x in (first & second, first & ~second, ~first & second))
+            table = np.stack([np.stack([a, b], -1), np.stack([c, both.sum() - a - b - c], -1)], -2)
+            found["cohen_kappa"] = cohen_weighted(table.astype(float), identity, confidence)
+        k = present.sum(axis=1, dtype=np.float64)
+        counts = np.stack([k, matrix.coders_per_unit[:, None] - k], axis=-1)
         for name, kind in (("gwet_ac1", "gwet"), ("fleiss_kappa", "fleiss"), ("brennan_prediger", "bp")):
             if name in wanted:
-                found[name] = gwet_family(ratings, identity, kind, confidence)
+                found[name] = gwet_family_counts(counts, identity, kind, confidence)
         if "conger_kappa" in wanted:
+            ratings = np.stack([present & coded, ~present & coded], axis=-1).astype(float)
             found["conger_kappa"] = conger_kappa(ratings, identity, confidence)
         for name, coefficient in found.items():
             for target, values in zip(out[name], (coefficient.se, coefficient.low, coefficient.high)):

@@ -66,6 +66,22 @@ class Coefficient:
     high: np.ndarray
 
 
+def _last_sum(array: np.ndarray) -> np.ndarray:
+    """Sum over a short last axis (the categories) as element-wise additions: numpy's reduction over a last axis
+    of length 2 or 3 is several times slower on large arrays."""
+    out = array[..., 0].copy()
+    for k in range(1, array.shape[-1]):
+        out += array[..., k]
+    return out
+
+
+def _times(array: np.ndarray, matrix: np.ndarray) -> np.ndarray:
+    """array @ matrix over the last axis as one BLAS call (much faster than a stack of tiny products)."""
+    if np.array_equal(matrix, np.eye(matrix.shape[0])):
+        return array
+    return np.tensordot(array, matrix, axes=([-1], [0]))
+
+
 def _as_batches(ratings) -> np.ndarray:
     r = np.asarray(ratings, dtype=float)
     if r.ndim == 3:
@@ -85,32 +101,37 @@ def _t_interval(value, se, n_rated, confidence: float) -> tuple[np.ndarray, np.n
 
 
 def gwet_family(ratings, weights, kind: str, confidence: float = 0.95) -> Coefficient:
-    """Fleiss' kappa ('fleiss'), Gwet's AC1/AC2 ('gwet') or Brennan-Prediger ('bp') with linearised variance.
+    """Fleiss' kappa ('fleiss'), Gwet's AC1/AC2 ('gwet') or Brennan-Prediger ('bp') with linearised variance,
+    from one-hot ratings (units, coders, batch, q); see `gwet_family_counts`."""
+    return gwet_family_counts(_as_batches(ratings).sum(axis=1), weights, kind, confidence)
+
+
+def gwet_family_counts(counts, weights, kind: str, confidence: float = 0.95) -> Coefficient:
+    """The same from category counts per unit (units, batch, q): how many coders put the unit in each category.
 
     Formulas of Gwet (2014) as implemented by the irrCAC package: observed agreement p_a over units with two
     or more ratings, category shares pi_k over every rated unit, and the variance
     (1 / (n (n - 1))) sum_i (c*_i - c)^2 of the per-unit linearised terms c*_i.
     """
-    r = _as_batches(ratings)
+    counts = np.asarray(counts, dtype=float)
     w = np.asarray(weights, dtype=float)
-    counts = r.sum(axis=1)  # (units, batch, q)
     q = counts.shape[-1]
-    ri = counts.sum(axis=-1)
+    ri = _last_sum(counts)
     rated, pair = ri >= 1, ri >= 2
     n, n2 = rated.sum(axis=0).astype(float), pair.sum(axis=0).astype(float)
-    weighted = counts @ w.T
-    pa_i = np.where(pair, (counts * (weighted - 1.0)).sum(axis=-1) / np.where(pair, ri * (ri - 1.0), 1.0), 0.0)
+    weighted = _times(counts, w.T)
+    pa_i = np.where(pair, _last_sum(counts * (weighted - 1.0)) / np.where(pair, ri * (ri - 1.0), 1.0), 0.0)
     observed = _ratio(pa_i.sum(axis=0), n2)
     share = np.where(rated[..., None], counts / np.where(rated, ri, 1.0)[..., None], 0.0)
     pi = _ratio(share.sum(axis=0), n[:, None])
     total_w = w.sum()
     if kind == "fleiss":
         chance = np.einsum("bk,kl,bl->b", pi, w, pi)
-        pe_i = (share * ((pi @ w.T + pi @ w) / 2.0)[None]).sum(axis=-1)
+        pe_i = _last_sum(share * ((pi @ w.T + pi @ w) / 2.0)[None])
     elif kind == "gwet":
         factor = total_w / (q * (q - 1)) if q > 1 else np.nan
         chance = factor * (pi * (1.0 - pi)).sum(axis=-1)
-        pe_i = factor * (share * (1.0 - pi)[None]).sum(axis=-1)
+        pe_i = factor * _last_sum(share * (1.0 - pi)[None])
     elif kind == "bp":
         chance = np.full(n.shape, total_w / q**2)
         pe_i = None
@@ -138,11 +159,11 @@ def conger_kappa(ratings, weights, confidence: float = 0.95) -> Coefficient:
     w = np.asarray(weights, dtype=float)
     n_coders = r.shape[1]
     counts = r.sum(axis=1)
-    ri = counts.sum(axis=-1)
+    ri = _last_sum(counts)
     rated, pair = ri >= 1, ri >= 2
     n, n2 = rated.sum(axis=0).astype(float), pair.sum(axis=0).astype(float)
-    weighted = counts @ w.T
-    pa_i = np.where(pair, (counts * (weighted - 1.0)).sum(axis=-1) / np.where(pair, ri * (ri - 1.0), 1.0), 0.0)
+    weighted = _times(counts, w.T)
+    pa_i = np.where(pair, _last_sum(counts * (weighted - 1.0)) / np.where(pair, ri * (ri - 1.0), 1.0), 0.0)
     observed = _ratio(pa_i.sum(axis=0), n2)
     classified = r.sum(axis=0)  # (coders, batch, q)
     n_g = classified.sum(axis=-1)  # (coders, batch)
@@ -153,12 +174,14 @@ def conger_kappa(ratings, weights, confidence: float = 0.95) -> Coefficient:
     one_minus = 1.0 - chance
     with np.errstate(divide="ignore", invalid="ignore"):
         value = np.where(np.isclose(one_minus, 0.0), np.nan, (observed - chance) / one_minus)
-        coder_rated = r.sum(axis=-1)  # (units, coders, batch) 0/1
+        coder_rated = _last_sum(r)  # (units, coders, batch) 0/1
         spread = coder_rated - (n_g / n)[None]  # epsilon_ig - n_g / n
-        a = r - spread[..., None] * p_gk[None]  # (units, coders, batch, q)
-        lam_k = (a @ w.T) * (n / n_g)[None, :, :, None]
-        others = n_coders * p_mean[None] - p_gk  # (coders, batch, q)
-        lam = (lam_k * others[None]).sum(axis=-1)  # (units, coders, batch)
+        others = n_coders * p_mean[None] - p_gk  # (coders, batch, q): sum over the other coders of p_hk
+        # lambda_ig = (n / n_g) sum_k sum_l w_kl (delta_igl - spread_ig p_gl) others_gk, summed over l first
+        weighted_others = _times(others, w)  # (coders, batch, q): sum_k w_kl others_gk
+        rated_term = np.einsum("ugbl,gbl->ugb", r, weighted_others)
+        share_term = (p_gk * weighted_others).sum(axis=-1)  # (coders, batch)
+        lam = (n / n_g)[None] * (rated_term - spread * share_term[None])  # (units, coders, batch)
         pe_i = lam.sum(axis=1) / (n_coders * (n_coders - 1))
         c_i = (n / n2) * (pa_i - chance * pair) / one_minus
         c_i = c_i - 2.0 * (1.0 - value) * (pe_i - chance) / one_minus
