@@ -80,11 +80,11 @@ def test_many_coders_interval_level_with_missing_match_irrcac_and_krippendorff()
 
 
 def test_bootstrap_and_analytic_intervals_agree_on_a_large_sample():
-    # Two routes to the same uncertainty: on 1,500 verbatims the bootstrap percentile interval and the
+    # Two routes to the same uncertainty: on 1,000 verbatims the bootstrap percentile interval and the
     # analytic interval (Fleiss, Cohen & Everitt 1969; Gwet 2014) must nearly coincide.
-    positions = _ratings(9, 1500, 2)
+    positions = _ratings(9, 1000, 2)
     stats = measure_scale_agreement(ScaleRatings.from_sets(_sets(positions), [1, 2, 3, 4, 5]),
-                                    n_resamples=400).statistics
+                                    n_resamples=300).statistics
     for name in ("cohen_kappa_w", "gwet_ac2", "brennan_prediger_w"):
         est = stats[name]
         width_boot, width_analytic = est.high - est.low, est.se_high - est.se_low

@@ -329,7 +329,7 @@ def _interval_note(confidence: float, weighted: bool) -> str:
 
 def _layout_mix(t: MixTable) -> Layout:
     """Grid of a mix table: base, row % per category, mean score, row-test q."""
-    layout = Layout(title=f"{t.question_label}: {t.variable_label} within each code (row %)", label_columns=2,
+    layout = Layout(title=f"{t.question_label}: {t.variable} within each code (row %)", label_columns=2,
                     header_rows=1)
     head = ["Code", "Label", "Base"] + (["Weighted base"] if t.weighted else []) + [label for _, label in t.categories]
     head += ([t.score_label] if t.mean_score is not None else []) + ["", "Row test q"]
