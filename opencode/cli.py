@@ -18,6 +18,7 @@ VERBS = {
     "sample": "reliability_cmds", "agree": "reliability_cmds",
     "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
     "push": "team_cmds", "pull": "team_cmds", "team": "team_cmds", "handout": "team_cmds", "merge": "team_cmds",
+    "sentiment": "sentiment_cmd",
 }
 
 

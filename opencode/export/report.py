@@ -20,6 +20,7 @@ from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
 from opencode.analysis.tables.crosstab import MIN_BASE
@@ -39,7 +40,8 @@ CAUTIONS = (
     "addresses masked, but names and other details may remain: read before sharing.",
     "Machine and rule codes are suggestions until a person accepts them; unless stated, tables count confirmed "
     "(hand) codes only.",
-    f"Percentages on bases under {MIN_BASE} are flagged (!) and not tested: read them with caution.",
+    f"Percentages on bases under {MIN_BASE} are flagged (!): read them with caution; such banner columns are "
+    "compared by Fisher's exact test only.",
     "The organisation's data-protection rules and the research codes of conduct it follows come first: "
     "they decide who may see this report and its verbatims.",
 )
@@ -131,6 +133,8 @@ def build_report(
         quotes = example_verbatims(study, coding, quotes_per_code, mask_verbatims)
         body, question_notes = _question_section(coding, banners, survey_weight, agreement, quotes, mask_verbatims)
         said += question_notes
+        body += sentiment_report_section(study, question, coder=coder, include_suggestions=include_suggestions,
+                                         weight=weight, unweighted=unweighted)
         sections.append((f"q{index + 1}", f"{question}: {coding.label}", body))
     for index, section in enumerate(extra_sections):
         sections.append((f"extra{index + 1}", section.title, section.html))

@@ -298,3 +298,20 @@ def add_verbatims(study: Study, rows: list[tuple[int, int, str, int]]) -> None:
     """Add verbatims as (question id, respondent row id, text, non-answer 0/1) rows."""
     study._db.executemany("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) VALUES (?, ?, ?, ?)",
                           [(q, r, t, int(bool(n))) for q, r, t, n in rows])
+
+def add_derived_variable(study: Study, name: str, label: str, values: np.ndarray, *, kind: str = "single",
+                         role: str = "banner", value_labels: dict[float, str] | None = None, missing_codes=(),
+                         action: str = "add-derived", details: dict | None = None, actor: str = "oecode") -> int:
+    """Store a variable an analysis made (e.g. a sentiment score), replacing an earlier one of the same name;
+    a survey variable of that name is never replaced."""
+    with study.transaction():
+        old = study._db.execute("SELECT id, origin FROM variables WHERE name = ?", (name,)).fetchone()
+        if old is not None:
+            if old[1] != "indicator":
+                raise OpenCodeError(f"{study.path}: a survey variable named {name!r} exists; choose another name")
+            study._db.execute("DELETE FROM variables WHERE id = ?", (old[0],))
+        variable_id = add_variable(study, name, label=label, kind=kind, role=role, origin="indicator",
+                                   value_labels=value_labels, missing_codes=missing_codes)
+        write_values(study, variable_id, np.asarray(values, dtype=float))
+        study.audit(actor, action, "variable", variable_id, {"name": name, "label": label, **(details or {})})
+    return variable_id

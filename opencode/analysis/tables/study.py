@@ -50,20 +50,24 @@ class QuestionTables:
 
 def question_tables(study: Study, question: str, banners: list[str] = (), *, coder: str = FINAL,
                     include_suggestions: bool = False, weight: str | None = None, unweighted: bool = False,
-                    confidence: float = 0.95, lower_confidence: float | None = None) -> QuestionTables:
-    """Frequencies and (with banners) the banner table, with tests, small-base flags and warnings."""
+                    confidence: float = 0.95, lower_confidence: float | None = None,
+                    intervals: bool = False) -> QuestionTables:
+    """Frequencies and (with banners) the banner table, with tests, small-base flags and warnings;
+    `intervals` shows each percentage's Wilson score interval."""
     coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
     survey_weight = None if unweighted else coded_data.survey_weight(study, weight)
     banner_variables = [coded_data.banner_variable(study, name) for name in dict.fromkeys(banners)]
     return coding_tables(coding, banner_variables, survey_weight, confidence=confidence,
-                         lower_confidence=lower_confidence)
+                         lower_confidence=lower_confidence, intervals=intervals)
 
 
 def coding_tables(coding: coded_data.QuestionCoding, banners: list[BannerVariable], weight: SurveyWeight | None,
-                  *, confidence: float = 0.95, lower_confidence: float | None = None) -> QuestionTables:
+                  *, confidence: float = 0.95, lower_confidence: float | None = None,
+                  intervals: bool = False) -> QuestionTables:
     """The tables of one loaded coding (shared by `oecode tables`, the demo and the report)."""
     coded = coded_data.table_question(coding)
-    frequencies = code_frequencies(coded, weight)
+    frequencies = code_frequencies(coded, weight, confidence=confidence)
+    frequencies.show_intervals = intervals
     warnings = list(coding.notes)
     if frequencies.small_base:
         warnings.append(f"{coding.question}: base {frequencies.base.n:,} is under {frequencies.min_base}; "
@@ -71,10 +75,11 @@ def coding_tables(coding: coded_data.QuestionCoding, banners: list[BannerVariabl
     table = None
     if banners:
         table = banner_table(coded, banners, weight, confidence=confidence, lower_confidence=lower_confidence)
+        table.show_intervals = intervals
         small = [c.label for c, flag in zip(table.columns, table.small_base & (table.base_n > 0)) if flag]
         if small:
-            warnings.append(f"{coding.question}: banner columns with bases under {table.min_base} flagged (!) and "
-                            f"not tested: {', '.join(small)}")
+            warnings.append(f"{coding.question}: banner columns with bases under {table.min_base} flagged (!); "
+                            f"compared by Fisher's exact test, left out of the row test: {', '.join(small)}")
     return QuestionTables(frequencies, table, warnings)
 
 
