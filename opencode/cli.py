@@ -6,7 +6,7 @@ import argparse
 import importlib
 import sys
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import OpenCodeError
 
 #: verb -> module in opencode.commands providing `register(subparsers)`; the verb's handler is set there.
@@ -17,6 +17,8 @@ VERBS = {
     "frame": "frame_cmd", "model": "model_cmd", "code": "desk_cmd",
     "sample": "reliability_cmds", "agree": "reliability_cmds",
     "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
+    "push": "team_cmds", "pull": "team_cmds", "team": "team_cmds", "handout": "team_cmds", "merge": "team_cmds",
+    "sentiment": "sentiment_cmd",
 }
 
 

@@ -19,15 +19,15 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Mapping, Sequence
 
-import numpy as np
-
-from opencode import __version__
+from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
 from opencode.analysis.tables.crosstab import MIN_BASE
+from opencode.analysis.tables.examples import example_verbatims as typical_verbatims
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.files.html_embed import png_img
@@ -39,7 +39,6 @@ from opencode.study import survey_data, theme_runs_store
 from opencode.study.store import Study
 from opencode.study.summary import summarise
 
-QUOTE_LENGTH = (15, 280)  # example verbatims of a readable length are preferred (characters)
 #: Per-code agreement under this is flagged: the lower edge of "substantial" in Landis & Koch (1977), Biometrics 33.
 AGREEMENT_BAR = 0.61
 #: Codes in the summary chart of each question.
@@ -52,7 +51,8 @@ CAUTIONS = (
     "addresses masked, but names and other details may remain: read before sharing.",
     "Machine and rule codes are suggestions until a person accepts them; unless stated, tables count confirmed "
     "(hand) codes only.",
-    f"Percentages on bases under {MIN_BASE} are flagged (!) and not tested: read them with caution.",
+    f"Percentages on bases under {MIN_BASE} are flagged (!): read them with caution; such banner columns are "
+    "compared by Fisher's exact test only.",
     "The organisation's data-protection rules and the research codes of conduct it follows come first: "
     "they decide who may see this report and its verbatims.",
 )
@@ -183,9 +183,13 @@ def build_report(
     parts: list[_Part] = []
     for index, question in enumerate(coded_data.coded_questions(study, questions)):
         coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
+        quotes = example_verbatims(study, coding, quotes_per_code, mask_verbatims) if quotes_per_code > 0 else {}
         part, question_notes = _question_part(f"q{index + 1}", coding, banners, survey_weight,
-                                              (agreement or {}).get(question), agreement_bar, quotes_per_code,
-                                              mask_verbatims)
+                                              (agreement or {}).get(question), agreement_bar, quotes, mask_verbatims)
+        sentiment = sentiment_report_section(study, question, coder=coder, include_suggestions=include_suggestions,
+                                             weight=weight, unweighted=unweighted)
+        if sentiment:
+            part.body += "\n" + _details("Sentiment", sentiment)
         said += question_notes
         parts.append(part)
     lines = [section.summary for section in extra_sections if section.summary]
@@ -202,7 +206,7 @@ def build_report(
 
 
 def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weight, agreement: AgreementResult | None,
-                   bar: float, quotes_per_code: int, mask: bool) -> tuple[_Part, list[str]]:
+                   bar: float, quotes: dict[int, list[str]], mask: bool) -> tuple[_Part, list[str]]:
     """One question: its summary (facts, top codes chart, agreement chart, flagged codes) and its detail."""
     made = coding_tables(coding, banners, weight)
     frequencies, notes = made.frequencies, made.warnings
@@ -240,7 +244,7 @@ def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weig
     body.append(_details("Code frequencies, every code and net", to_html(frequencies) +
                          f'<figure class="oc-chart">{freq_img}<figcaption>% of respondents in the base per code; '
                          "nets count a respondent once.</figcaption></figure>"))
-    body.append(_details("Code frame with example verbatims", _frame_table(coding, quotes_per_code, mask)))
+    body.append(_details("Code frame with example verbatims", _frame_table(coding, quotes, mask)))
     if made.banner is not None:
         parts = _banner_parts(made.banner)
         body.append(_details(f"Banner tables ({len(parts)})", "".join(to_html(t) for t in parts)))
@@ -323,24 +327,15 @@ def _theme_lines(study: Study, questions: list[str], sections: Sequence[ReportSe
     return lines
 
 
-def example_verbatims(coding: coded_data.QuestionCoding, per_code: int, mask: bool = True) -> dict[int, list[str]]:
-    """Up to `per_code` verbatims per code from the base (readable lengths first, study order), masked by default."""
-    lengths = np.array([len(t) if t else 0 for t in coding.verbatim_text])
-    readable = (lengths >= QUOTE_LENGTH[0]) & (lengths <= QUOTE_LENGTH[1])
-    matrix = coding.indicators.tocsc()
-    out: dict[int, list[str]] = {}
-    for j, code in enumerate(coding.codes):
-        rows = matrix.indices[matrix.indptr[j]:matrix.indptr[j + 1]]
-        rows = np.sort(rows[coding.answered[rows]])
-        ordered = np.concatenate([rows[readable[rows]], rows[~readable[rows]]])[:per_code]
-        texts = [coding.verbatim_text[r] or "" for r in ordered]
-        out[code.number] = [mask_identifiers(t) if mask else t for t in texts]
-    return out
+def example_verbatims(study: Study, coding: coded_data.QuestionCoding, per_code: int,
+                      mask: bool = True) -> dict[int, list[str]]:
+    """Up to `per_code` typical verbatims per code, from codes a person gave (see analysis.tables.examples)."""
+    picked = typical_verbatims(study, coding, per_code)
+    return {number: [mask_identifiers(e.text) if mask else e.text for e in found] for number, found in picked.items()}
 
 
-def _frame_table(coding: coded_data.QuestionCoding, per_code: int, mask: bool) -> str:
+def _frame_table(coding: coded_data.QuestionCoding, quotes: dict[int, list[str]], mask: bool) -> str:
     """The frame: number, label, kind, parent net, description and example verbatims."""
-    quotes = example_verbatims(coding, per_code, mask) if per_code > 0 else {}
     rows = []
     for code in sorted(coding.codes + coding.nets, key=lambda c: c.number):
         state = "" if code.active else " (retired)"

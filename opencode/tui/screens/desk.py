@@ -81,7 +81,24 @@ class DeskScreen(StudyScreen):
         if seconds:
             self.set_interval(seconds, self.periodic_refresh)
         self.watch(self.app, "study_changes", self._study_changed, init=False)
+        self._changes = None
+        if self.session.study.on_server:  # other coders' work and frame edits, as the server announces them
+            from opencode.study.changes import subscribe
+
+            self._changes = subscribe(self.session.study.path, self._heard, ignore_coder=self.session.coder,
+                                      min_interval=0.5)
         self.redraw()
+
+    def _heard(self, changes) -> None:
+        """Called on the change feed's thread: refresh on the app's own thread."""
+        try:
+            self.app.call_from_thread(self.periodic_refresh)
+        except RuntimeError:  # the app is closing
+            pass
+
+    def on_unmount(self) -> None:
+        if self._changes is not None:
+            self._changes.stop()
 
     def _study_changed(self, _changes: int) -> None:
         if self.app.current_mode != "desk":
