@@ -7,12 +7,14 @@ Writers expect to run inside study.transaction(); readers use the indexes on (co
 from __future__ import annotations
 
 import json
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Iterator
 
 import numpy as np
-import pandas as pd
 
 from opencode.study.store import Study, read_frame
+
+if TYPE_CHECKING:  # pandas loads only where a frame is read, so the desk starts without it
+    import pandas as pd
 
 #: The columns of an assignment row as ops and readers carry it.
 ASSIGNMENT_COLUMNS = ("verbatim_id", "code_id", "coder", "source", "confidence", "created_at")

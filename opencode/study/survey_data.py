@@ -5,12 +5,15 @@ from __future__ import annotations
 import io
 import json
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study, read_frame
+
+if TYPE_CHECKING:  # pandas loads only where a frame is read, so the desk starts without it
+    import pandas as pd
 
 KINDS = ("text", "single", "multiple", "numeric", "date")
 ROLES = ("id", "question", "outcome", "banner", "weight", "other")
