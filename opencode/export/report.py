@@ -23,6 +23,7 @@ from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.agreement.scale import SCALE_LABELS, ScaleAgreementResult
 from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
@@ -159,7 +160,7 @@ def build_report(
     include_suggestions: bool = False,
     weight: str | None = None,
     unweighted: bool = False,
-    agreement: Mapping[str, AgreementResult] | None = None,
+    agreement: Mapping[str, AgreementResult | ScaleAgreementResult] | None = None,
     extra_sections: Sequence[ReportSection] = (),
     quotes_per_code: int = 2,
     mask_verbatims: bool = True,
@@ -205,7 +206,8 @@ def build_report(
     return target
 
 
-def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weight, agreement: AgreementResult | None,
+def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weight,
+                   agreement: AgreementResult | ScaleAgreementResult | None,
                    bar: float, quotes: dict[int, list[str]], mask: bool) -> tuple[_Part, list[str]]:
     """One question: its summary (facts, top codes chart, agreement chart, flagged codes) and its detail."""
     made = coding_tables(coding, banners, weight)
@@ -223,7 +225,10 @@ def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weig
     charts = [f'<figure class="oc-chart">{top}<figcaption>Top codes of {html.escape(coding.question)}: % of '
               "respondents in the base.</figcaption></figure>"]
     flags = ""
-    if agreement is not None:
+    if agreement is not None and not isinstance(agreement, AgreementResult):  # codes on a scale: one figure
+        charts.append(f'<p class="oc-note">{html.escape(_scale_line(agreement))}</p>')
+        flags = _scale_flag(agreement, coding.question, bar)
+    elif agreement is not None:
         chart, flagged, statistic = _agreement_chart(agreement, bar)
         charts.append(f'<figure class="oc-chart">{chart}<figcaption>{html.escape(statistic)} per code between '
                       f"{html.escape(', '.join(agreement.coders))}, with its interval; dashed line: the bar "
@@ -281,6 +286,32 @@ def _agreement_chart(result: AgreementResult, bar: float) -> tuple[str, list[str
                   f"Chart: {statistic} per code with intervals; under the bar {bar:.2f}: {under}",
                   css_class="oc-chart-image")
     return img, flagged, statistic
+
+
+def _scale_statistic(result) -> tuple[str, object]:
+    """The kappa-like statistic a scale result leads with, and its estimate."""
+    for name in ("cohen_kappa_w", "fleiss_kappa_w", "conger_kappa_w", "krippendorff_alpha", "gwet_ac2"):
+        if name in result.statistics:
+            return name, result.statistics[name]
+    name = next(iter(result.statistics))
+    return name, result.statistics[name]
+
+
+def _scale_line(result) -> str:
+    name, estimate = _scale_statistic(result)
+    value = "undefined" if estimate.value is None else f"{estimate.value:.3f}"
+    interval = (f" [{estimate.low:.3f}, {estimate.high:.3f}]" if estimate.value is not None and estimate.low is not None
+                and estimate.high is not None else "")
+    return (f"Coder agreement on the scale ({result.level} level, {', '.join(result.coders)}): "
+            f"{SCALE_LABELS.get(name, name)} {value}{interval}.")
+
+
+def _scale_flag(result, question: str, bar: float) -> str:
+    _, estimate = _scale_statistic(result)
+    if estimate.value is not None and estimate.value < bar:
+        return (f'<p class="oc-flag">▽ <strong>Under the bar ({bar:.2f})</strong> in {html.escape(question)}: the '
+                f"scale as a whole ({estimate.value:.3f}). Review the scale's definitions.</p>")
+    return ""
 
 
 def _banner_parts(table) -> list:
