@@ -64,8 +64,7 @@ class DeskScreen(StudyScreen):
                 yield SuggestionPane(id="suggestions")
                 yield CodeInfoPane(id="code-info")
                 yield NotePane(id="note")
-            with Pane(id="frame-pane"):
-                yield FrameList(id="frame-list")
+            yield FrameList(id="frame-list")
         yield Drawn(id="status")
         yield Footer(compact=True)
 
@@ -159,8 +158,8 @@ class DeskScreen(StudyScreen):
 
     def reveal(self, number: int) -> None:
         """Scroll the frame panel so a code is in view."""
-        line = self.query_one("#frame-list", FrameList).line_of(number)
-        pane = self.query_one("#frame-pane", Pane)
+        pane = self.query_one("#frame-list", FrameList)
+        line = pane.line_of(number)
         if line is None:
             return
         height = pane.scrollable_content_region.height
@@ -261,7 +260,7 @@ class DeskScreen(StudyScreen):
         self.redraw()
 
     def action_scroll_frame(self, pages: int) -> None:
-        pane = self.query_one("#frame-pane", Pane)
+        pane = self.query_one("#frame-list", FrameList)
         pane.scroll_to(y=pane.scroll_y + pages * max(pane.scrollable_content_region.height - 1, 1), animate=False)
 
     def action_done_next(self) -> None:

@@ -6,11 +6,15 @@ parsed as Textual or Rich markup: `[b]`, `x[/]` or `[/]evil` show exactly as typ
 
 from __future__ import annotations
 
+from functools import lru_cache
 from typing import Sequence
 
-from rich.console import Console, ConsoleOptions, RenderResult
+from rich.console import Console
 from rich.text import Text
 from textual.containers import VerticalScroll
+from textual.geometry import Size
+from textual.scroll_view import ScrollView
+from textual.strip import Strip
 from textual.widgets import Static
 
 from opencode.coding.assignments import Suggestion
@@ -22,6 +26,8 @@ from opencode.study.desk_queries import VerbatimCard
 RULE_WORD_STYLE = f"bold underline {OKABE_ITO['orange']}"
 #: How much of a label "others" and short mentions keep.
 SHORT_LABEL = 16
+#: Wrapping measures text with a console; any console measures cells the same way.
+_CONSOLE = Console(width=200, color_system=None)
 
 
 def plain(value: object, style: str = "") -> Text:
@@ -48,13 +54,22 @@ class Drawn(Static):
         super().__init__(*args, **kwargs)
 
     def draw(self, content: Text, same_size: bool = False) -> bool:
-        """Show `content`; False when it was already shown. same_size: the caller knows the size is unchanged."""
+        """Show `content`; False when it was already shown. same_size: the caller knows the size is unchanged.
+        The screen is laid out again only when the text takes another number of lines (or shows or hides)."""
         if self._last is not None and content == self._last:
             return False
         resize = not same_size and (self._last is None or content.plain != self._last.plain)
+        if resize and self._last is not None and self.display and bool(content.plain) == bool(self._last.plain):
+            width = self.content_region.width
+            if width > 0:
+                resize = _line_count(content, width) != _line_count(self._last, width)
         self._last = content
         self.update(content, layout=resize)
         return True
+
+
+def _line_count(text: Text, width: int) -> int:
+    return len(text.wrap(_CONSOLE, width)) if text.plain else 0
 
 
 class VerbatimView(Drawn):
@@ -169,50 +184,25 @@ class NotePane(Drawn):
         self.draw(text)
 
 
-class FrameRows:
-    """The code frame as rows with a hanging indent: a fixed prefix (mark, hotkey, number), then the label
-    wrapped to the panel's width, so every label shows in full however narrow the panel."""
+class FrameList(ScrollView, can_focus=False):
+    """The code frame: mark, hotkey, number and the full label (wrapped with a hanging indent, never cut), then
+    the coder's count when the panel is wide enough; codes held marked ● and suggestions ◌, nets in bold.
+
+    Drawn line by line (Textual's line API): a key press that changes one mark repaints that line only, not the
+    whole panel, which keeps a keypress quick on a long frame. It scrolls (PgUp/PgDn on the desk) but never
+    takes the keyboard."""
 
     #: Below this panel width the coder's counts are left out, so labels keep the room (the frame screen has them).
     COUNTS_FROM = 34
 
-    def __init__(self, rows: list[tuple[Text, Text, int, int]]):
-        self.rows = rows
-        self._laid: tuple[int, list[Text], dict[int, int]] | None = None
-
-    def layout(self, console: Console, width: int) -> tuple[list[Text], dict[int, int]]:
-        """The lines at `width` and the first line of each code number (cached per width)."""
-        if self._laid is not None and self._laid[0] == width:
-            return self._laid[1], self._laid[2]
-        lines: list[Text] = []
-        starts: dict[int, int] = {}
-        for prefix, label, number, count in self.rows:
-            starts[number] = len(lines)
-            room = max(width - len(prefix), 8)
-            if count and width >= self.COUNTS_FROM:
-                label = label.copy()
-                label.append(f" ·{count:,}", style="dim")
-            for i, part in enumerate(label.wrap(console, room, overflow="fold")):
-                line = prefix.copy() if i == 0 else Text(" " * len(prefix))
-                line.append_text(part)
-                lines.append(line)
-        self._laid = (width, lines, starts)
-        return lines, starts
-
-    def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
-        lines, _ = self.layout(console, options.max_width)
-        yield Text("\n").join(lines) if lines else Text()
-
-
-class FrameList(Static):
-    """The code frame: mark, hotkey, number and the full label (wrapped), then the coder's count; codes held
-    marked ● and suggestions ◌, nets in bold with the verbatims under them."""
-
     def __init__(self, *args, **kwargs):
-        kwargs.setdefault("markup", False)
         super().__init__(*args, **kwargs)
         self._key: tuple | None = None
-        self.rows: FrameRows | None = None
+        self._rows: list = []  # (prefix pieces, label, label style, number, count)
+        self._strips: list[Strip] = []
+        self._starts: dict[int, int] = {}
+        self._width = 0
+        self._base = None
 
     def show(self, codes: Sequence[Code], counts: dict[int, int], net_counts: dict[int, int],
              held: set[int], suggested: set[int]) -> None:
@@ -223,48 +213,106 @@ class FrameList(Static):
         if key == self._key:
             return
         self._key = key
-        if not codes:
-            self.rows = None
-            self.update(Text("No codes yet.\nCtrl+O adds one.", style="italic"))
+        self._rows = _frame_rows(codes, counts, net_counts, held, suggested)
+        self._lay_out()
+
+    def _lay_out(self) -> None:
+        width = self.scrollable_content_region.width
+        if width <= 0:
             return
-        by_number = {c.number: c for c in codes}
-        width = max(len(str(c.number)) for c in codes)
-        rows: list[tuple[Code, int]] = []  # (code, depth under nets)
-        for code in _frame_order(codes):
-            if not code.active:
-                continue
-            depth, parent = 0, code.net
-            while parent is not None and parent in by_number and depth < 3:
-                depth, parent = depth + 1, by_number[parent].net
-            rows.append((code, depth))
-        built = []
-        for code, depth in rows:
-            prefix = Text()
-            if code.is_net:
-                prefix.append(f"   {code.number:>{width}} ", style="bold")
-                label = Text(code.label, style="bold")
-                count = net_counts.get(code.number, 0)
-            else:
-                symbol, style = " ", ""
-                if code.number in held:
-                    symbol, style = "●", "bold reverse"
-                elif code.number in suggested:
-                    symbol, style = "◌", "italic underline"
-                prefix.append(symbol, style="bold")
-                prefix.append(code.hotkey or " ", style="bold underline" if code.hotkey else "")
-                prefix.append(f" {code.number:>{width}} ")
-                label = Text(code.label, style=style)
-                count = counts.get(code.number, 0)
-            prefix.append("  " * depth)
-            built.append((prefix, label, code.number, count))
-        self.rows = FrameRows(built)
-        self.update(self.rows)
+        strips, starts = _frame_strips(tuple(self._rows), width, self.COUNTS_FROM)
+        old, self._strips, self._starts = self._strips, strips, starts
+        if len(old) != len(strips) or width != self._width:
+            self._width = width
+            self.virtual_size = Size(width, len(strips))
+            self.refresh()
+            return
+        for y, (before, after) in enumerate(zip(old, strips)):
+            if before is not after:
+                self.refresh_line(y)
+
+    def on_resize(self) -> None:
+        self._lay_out()
+
+    def notify_style_update(self) -> None:
+        super().notify_style_update()
+        self._base = None
+
+    def render_line(self, y: int) -> Strip:
+        if self._base is None:
+            self._base = self.rich_style
+        index = y + int(self.scroll_offset.y)
+        width = self.scrollable_content_region.width
+        if index >= len(self._strips):
+            return Strip.blank(width, self._base)
+        return self._strips[index].crop_extend(0, width, self._base).apply_style(self._base)
 
     def line_of(self, number: int) -> int | None:
-        """The first line of a code at the current width (for scrolling it into view)."""
-        if self.rows is None or self.size.width <= 0:
-            return None
-        return self.rows.layout(self.app.console, self.size.width)[1].get(number)
+        """The first line of a code (for scrolling it into view)."""
+        return self._starts.get(number)
+
+
+@lru_cache(maxsize=8192)
+def _row_strips(prefix: tuple[tuple[str, str], ...], label: str, style: str, count: str, room: int) -> tuple[Strip, ...]:
+    """One code's lines as strips: the prefix pieces, then the label (and count, dim) wrapped to `room` cells
+    under a hanging indent. Cached: a key press changes one code's mark, the rest are reused as they are."""
+    text = Text()
+    text.append(label, style=style)
+    if count:
+        text.append(count, style="dim")
+    head = Text()
+    for piece, piece_style in prefix:
+        head.append(piece, style=piece_style)
+    strips = []
+    for i, part in enumerate(text.wrap(_CONSOLE, room, overflow="fold")):
+        line = head.copy() if i == 0 else Text(" " * len(head))
+        line.append_text(part)
+        strips.append(Strip(list(line.render(_CONSOLE)), line.cell_len))
+    return tuple(strips)
+
+
+def _frame_strips(rows, width: int, counts_from: int) -> tuple[list[Strip], dict[int, int]]:
+    """The frame's lines at `width` and the first line of each code number."""
+    if not rows:
+        return [Strip(list(Text(t, style="italic").render(_CONSOLE))) for t in ("No codes yet.", "Ctrl+O adds one.")], {}
+    strips: list[Strip] = []
+    starts: dict[int, int] = {}
+    for prefix, label, style, number, count in rows:
+        starts[number] = len(strips)
+        room = max(width - sum(len(piece) for piece, _ in prefix), 8)
+        shown = f" ·{count:,}" if count and width >= counts_from else ""
+        strips.extend(_row_strips(prefix, label, style, shown, room))
+    return strips, starts
+
+
+def _frame_rows(codes: Sequence[Code], counts: dict[int, int], net_counts: dict[int, int], held: set[int],
+                suggested: set[int]) -> list[tuple[tuple[tuple[str, str], ...], str, str, int, int]]:
+    """(prefix pieces, label, label style, number, count) per active code, nets first with their members."""
+    if not codes:
+        return []
+    by_number = {c.number: c for c in codes}
+    width = max(len(str(c.number)) for c in codes)
+    built = []
+    for code in _frame_order(codes):
+        if not code.active:
+            continue
+        depth, parent = 0, code.net
+        while parent is not None and parent in by_number and depth < 3:
+            depth, parent = depth + 1, by_number[parent].net
+        if code.is_net:
+            prefix = ((f"   {code.number:>{width}} ", "bold"),)
+            style, count = "bold", net_counts.get(code.number, 0)
+        else:
+            symbol, style = " ", ""
+            if code.number in held:
+                symbol, style = "●", "bold reverse"
+            elif code.number in suggested:
+                symbol, style = "◌", "italic underline"
+            prefix = ((symbol, "bold"), (code.hotkey or " ", "bold underline" if code.hotkey else ""),
+                      (f" {code.number:>{width}} ", ""))
+            count = counts.get(code.number, 0)
+        built.append((prefix + (("  " * depth, ""),), code.label, style, code.number, count))
+    return built
 
 
 def _frame_order(codes: Sequence[Code]) -> list[Code]:
