@@ -6,7 +6,7 @@ import argparse
 import csv
 
 from opencode.analysis.drivers import study as sdr
-from opencode.commands.common import progress_bar
+from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_row
 from opencode.files.safe_write import atomic_open
@@ -65,6 +65,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--indicators", nargs="+", metavar="TERM", help="store 0/1 variables '<question>_t_<term>' "
                         "for these terms, for tables and exports")
     parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
+    add_overwrite_option(parser)
     parser.set_defaults(handler=run_drivers)
 
 

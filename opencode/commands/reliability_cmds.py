@@ -11,6 +11,7 @@ from opencode.coding import adjudication, reliability
 from opencode.errors import OpenCodeError
 from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
+from opencode.commands.common import add_overwrite_option
 
 SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
 ADJUDICATE = ("agreed", "take", "union", "set", "undo")
@@ -51,6 +52,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--side", help="adjudicate take: whose codes final takes")
     a.add_argument("--codes", help="adjudicate set: final's codes, comma-separated numbers (empty: no code)")
     a.add_argument("--actor", default="oecode", help="who adjudicates (for the audit trail)")
+    add_overwrite_option(a)
     a.set_defaults(handler=run_agree)
 
 

@@ -9,7 +9,7 @@ from opencode.analysis.themes import study as sth
 from opencode.analysis.themes.charts import plot_k_curve, plot_theme_terms
 from opencode.analysis.themes.format import format_comparison
 from opencode.analysis.themes.finder import SHORT_TEXT_NOTE
-from opencode.commands.common import progress_bar
+from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 
@@ -74,6 +74,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     promote.add_argument("--label", help="the code's label (default: proposed from the theme's top terms)")
     promote.add_argument("--number", type=int, help="the code's number (default: one past the highest)")
     promote.add_argument("--hotkey", help="the code's desk hotkey (one character)")
+    add_overwrite_option(parser)
     parser.set_defaults(handler=run_themes)
 
 

@@ -10,7 +10,6 @@ import contextlib
 import difflib
 import json
 import os
-import tempfile
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -20,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.files.safe_write import normal_file_mode
+from opencode.files.safe_write import make_temporary, normal_file_mode
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
@@ -190,11 +189,9 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
         raise OpenCodeError(f"{target}: a study file name must end in .study")
     if not target.parent.exists():
         raise OpenCodeError(f"{target}: the folder {target.parent} does not exist")
-    fd, temp_name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".study", dir=target.parent)
-    os.close(fd)
-    temp = Path(temp_name)
-    os.chmod(temp, normal_file_mode())
+    temp = make_temporary(target, ".study")  # a killed run's leftover is removed by the next run here
     try:
+        os.chmod(temp, normal_file_mode())
         study = Study.create(temp, overwrite=True)
         try:
             with study.private_bulk_load(), study.transaction():
@@ -232,7 +229,8 @@ def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]],
         else:
             _write_values(study, variable_id, plan, respondent_ids, total)
     study.audit("import", "import", "study", None, {
-        "source": str(report.source), "respondents_added": report.respondents_added,
+        "source": str(report.source), "source_path": os.path.abspath(report.source),
+        "respondents_added": report.respondents_added,
         "respondents_updated": report.respondents_updated, "variables_added": report.variables_added,
         "verbatims_added": report.verbatims_added, "changed_verbatims": len(report.changed_verbatims)})
 

@@ -12,6 +12,7 @@ from typing import Any, Iterator
 
 from opencode import __version__
 from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
+from opencode.files.targets import protect
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 SUFFIX = ".study"
@@ -81,10 +82,27 @@ class Study:
                     f"{SCHEMA_VERSION}); upgrade opencode to open it")
             if version < SCHEMA_VERSION:
                 study._migrate(from_version=version)
+            protect([target], "a study file")
+            protect(study.import_sources(), f"a survey file the study {target.name} was imported from")
         except BaseException:
             connection.close()
             raise
         return study
+
+    def import_sources(self) -> list[Path]:
+        """The survey files this study was imported from (absolute where recorded), so no output replaces them."""
+        found: list[Path] = []
+        for (payload,) in self.db.execute("SELECT payload FROM audit WHERE actor = 'import' AND action = 'import'"):
+            try:
+                data = json.loads(payload)
+            except (TypeError, ValueError):
+                continue
+            source = data.get("source_path") or data.get("source") if isinstance(data, dict) else None
+            if isinstance(source, str) and source:
+                found.append(Path(source))
+                if not Path(source).is_absolute():
+                    found.append(self.path.parent / source)
+        return found
 
     def close(self) -> None:
         """Close the connection (the study stays consistent whether or not this runs)."""
