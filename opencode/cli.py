@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import contextlib
 import importlib
+import os
+import sqlite3
 import sys
 
 from opencode import __version__
@@ -57,6 +59,14 @@ def main(argv: list[str] | None = None) -> int:
             return int(args.handler(args) or 0)
     except OpenCodeError as error:
         print(f"oecode {args.verb}: {terminal_text(str(error))}", file=sys.stderr)
+        return 1
+    except (OSError, sqlite3.DatabaseError) as error:  # a failure no library call turned into a message yet
+        if os.environ.get("OECODE_DEBUG") == "1":
+            raise
+        where = getattr(error, "filename", None) or getattr(args, "study", None) or "a file"
+        reason = getattr(error, "strerror", None) or str(error) or type(error).__name__
+        print(f"oecode {args.verb}: {terminal_text(str(where))}: {terminal_text(reason)} (OECODE_DEBUG=1 shows "
+              "the details)", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
         print(f"oecode {args.verb}: interrupted; nothing was half-written", file=sys.stderr)
