@@ -24,7 +24,7 @@ from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies,
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
 from opencode.ingest.readers import RawTable, read_survey_file
-from opencode.ingest.text_cells import as_text
+from opencode.ingest.text_cells import respondent_keys
 from opencode.study import survey_data
 from opencode.study.store import Study
 
@@ -100,8 +100,7 @@ def _check_columns(table: RawTable, options: ImportOptions) -> None:
 
 def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
     raw = table.frame[id_column]
-    keys = as_text(raw).str.strip()
-    keys = keys.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_float_dtype(raw) else keys
+    keys = respondent_keys(raw)
     blank = keys.isin(["", "\\N", "NULL", "nan"]).to_numpy(dtype=bool)
     if blank.any():
         rows = [table.row_name(i) for i in np.flatnonzero(blank)[:5]]
@@ -110,9 +109,13 @@ def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
     if len(set(listed)) < len(listed):
         duplicated = keys.duplicated(keep=False)
         first = keys[duplicated].iloc[0]
-        rows = [table.row_name(i) for i in np.flatnonzero((keys == first).to_numpy())[:5]]
+        where = np.flatnonzero((keys == first).to_numpy())[:5]
+        rows = [table.row_name(i) for i in where]
+        written = [str(v).strip() for v in raw.iloc[where]]
+        same = f" (written {', '.join(repr(w) for w in dict.fromkeys(written))}: one number)" \
+            if len(set(written)) > 1 else ""
         raise OpenCodeError(f"{table.path}: column {id_column}: respondent id {first!r} appears more than once "
-                            f"({', '.join(rows)})")
+                            f"({', '.join(rows)}){same}")
     return listed
 
 
