@@ -75,22 +75,23 @@ def _utf16_without_bom(raw: bytes) -> str | None:
         return None
     even = sample[0:pairs * 2:2].count(0)
     odd = sample[1:pairs * 2:2].count(0)
-    if odd >= 0.3 * pairs and even <= 0.05 * pairs:
+    if odd >= 0.3 * pairs and even <= odd / 4:
         return "utf-16-le"
-    if even >= 0.3 * pairs and odd <= 0.05 * pairs:
+    if even >= 0.3 * pairs and odd <= even / 4:
         return "utf-16-be"
     return None
 
 
 def _mostly_utf8(raw: bytes) -> tuple[bool, list[int], int]:
     """Whether a file that is not valid UTF-8 is still UTF-8 apart from some bad bytes (it holds valid
-    multi-byte sequences at least as often as bad bytes), the byte offsets of the first bad bytes, and
+    multi-byte sequences, at least a quarter as many as bad bytes: in legacy code-page text a valid UTF-8
+    sequence is a rare accident), the byte offsets of the first bad bytes, and
     how many there are."""
     text = raw.decode("utf-8", errors="surrogateescape")
     bad = [m.start() for m in _ESCAPED.finditer(text)]
     valid = len(_NON_ASCII.findall(text)) - len(bad)
     offsets = [len(text[:i].encode("utf-8", errors="surrogateescape")) for i in bad[:SHOWN_BAD_BYTES]]
-    return valid > 0 and valid >= len(bad), offsets, len(bad)
+    return valid > 0 and 4 * valid >= len(bad), offsets, len(bad)
 
 
 def _misread_signs(text: str) -> int:
