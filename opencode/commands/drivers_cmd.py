@@ -6,6 +6,7 @@ import argparse
 import csv
 
 from opencode.analysis.drivers import study as sdr
+from opencode.files.targets import check_targets
 from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_row
@@ -74,6 +75,7 @@ def run_drivers(args: argparse.Namespace) -> int:
         raise OpenCodeError(f"--top {args.top}: give at least 1")
     if args.chart and not args.chart.lower().endswith(".png"):
         raise OpenCodeError(f"--chart {args.chart}: the chart is a PNG file; end the name in .png")
+    check_targets([(path, None) for path in (args.chart, args.csv) if path])  # before the slow work
     with Study.open(args.study) as study:
         result = sdr.question_drivers(
             study, args.question, args.outcome, split=args.split, one_vs_rest=args.one_vs_rest,

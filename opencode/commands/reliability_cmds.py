@@ -11,6 +11,7 @@ from opencode.coding import adjudication, reliability
 from opencode.errors import OpenCodeError
 from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
+from opencode.files.targets import check_target
 from opencode.commands.common import add_overwrite_option
 
 SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
@@ -122,6 +123,8 @@ def _write_html(path: str, fragment: str, title: str) -> None:
 
 
 def run_agree(args: argparse.Namespace) -> int:
+    if args.csv:
+        check_target(args.csv)  # before the slow work
     with Study.open(args.study) as study:
         if args.adjudicate:
             _adjudicate(study, args)

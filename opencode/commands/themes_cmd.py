@@ -9,6 +9,7 @@ from opencode.analysis.themes import study as sth
 from opencode.analysis.themes.charts import plot_k_curve, plot_theme_terms
 from opencode.analysis.themes.format import format_comparison
 from opencode.analysis.themes.finder import SHORT_TEXT_NOTE
+from opencode.files.targets import check_target
 from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
@@ -106,6 +107,8 @@ def _whole(value: str, what: str) -> int:
 
 def run_themes(args: argparse.Namespace) -> int:
     _check_args(args)
+    if getattr(args, "chart", None):
+        check_target(args.chart)  # before the slow work
     with Study.open(args.study) as study:
         return HANDLERS[args.action](study, args)
 
