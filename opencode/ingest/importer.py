@@ -18,8 +18,8 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from opencode.errors import OpenCodeError
-from opencode.files.safe_write import make_temporary, normal_file_mode
+from opencode.errors import OpenCodeError, WriteFailed
+from opencode.files.safe_write import describe_os_error, make_temporary, normal_file_mode
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
@@ -202,6 +202,10 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
         finally:
             study.close()
         os.replace(temp, target)
+    except WriteFailed as error:  # name the study the user asked for, not the temporary file
+        raise WriteFailed(str(error).replace(str(temp), str(target))) from None
+    except OSError as error:
+        raise WriteFailed(describe_os_error(error, target)) from None
     finally:
         for extra in ("", "-wal", "-shm"):
             with contextlib.suppress(FileNotFoundError):
