@@ -210,6 +210,8 @@ def _assign_positions(fields: list[_Field], data_format: str) -> None:
         if var.type == "character" and data_format == "fixed":
             f.cells = [[t.ljust(span) for t in f.cells[0]]]
             var.size = None
+        elif var.type == "character":
+            continue  # text cells are already cleaned and guarded (_one_line): never stripped after the guard
         elif data_format == "csv":
             f.cells = [[c.strip() for c in column] for column in f.cells]
 
