@@ -108,7 +108,7 @@ _FR_NIR = re.compile(
     r"(?<![\d])[1-478] ?\d{2} ?(?:0[1-9]|1[0-2]|[2-9]\d) ?(?:\d{2}|2[AB]) ?\d{3} ?\d{3} ?\d{2}(?![\d])",
     re.IGNORECASE)
 # Spanish DNI (8 digits) and NIE (X, Y or Z and 7 digits), then the check letter.
-_ES_DNI = re.compile(r"\b([XYZ]?)[ -]?(\d{7,8})[ -]?([A-HJ-NP-TV-Z])\b", re.IGNORECASE)
+_ES_DNI = re.compile(r"\b(?:([XYZ])[ -]?)?(\d{7,8})[ -]?([A-HJ-NP-TV-Z])\b", re.IGNORECASE)
 _ES_LETTERS = "TRWAGMYFPDXBNJZSQVHLCKE"
 # Dutch BSN: 9 digits (also written 1234.56.789) passing the 11-test.
 _NL_BSN = re.compile(r"(?<![\d.,-])\d{4}[. ]?\d{2}[. ]?\d{3}(?![\d]|[.,]\d)")
@@ -134,7 +134,7 @@ def fr_nir_valid(text: str) -> bool:
     return body.isdigit() and key.isdigit() and 97 - int(body) % 97 == int(key)
 
 
-def es_dni_valid(prefix: str, number: str, letter: str) -> bool:
+def es_dni_valid(prefix: str | None, number: str, letter: str) -> bool:
     """The DNI / NIE check letter: the number (NIE: X=0, Y=1, Z=2 in front) modulo 23 picks the letter."""
     if prefix:
         if len(number) != 7:
