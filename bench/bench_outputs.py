@@ -51,14 +51,14 @@ def build(folder: Path, rng: np.random.Generator) -> Path:
     with Study.open(path) as study:
         frame_io.import_frame(study, "why", frame)
         verbatim_ids = survey_data.verbatims(study, "why")["verbatim_id"].to_numpy()
-        code_ids = dict(study.db.execute("SELECT number, id FROM codes"))
+        code_ids = dict(study._db.execute("SELECT number, id FROM codes"))
         per = rng.integers(0, 4, size=verbatim_ids.size)
         rows = np.repeat(verbatim_ids, per)
         numbers = rng.integers(1, CODES + 1, size=rows.size)
         pairs = pd.DataFrame({"v": rows, "c": numbers}).drop_duplicates()
         stamp = now()
         with study.transaction():  # fixture building only: bulk rows straight into the table
-            study.db.executemany(
+            study._db.executemany(
                 "INSERT INTO assignments (verbatim_id, code_id, coder, source, confidence, created_at) "
                 "VALUES (?, ?, 'final', 'hand', NULL, ?)",
                 ((int(v), code_ids[int(c)], stamp) for v, c in zip(pairs["v"], pairs["c"])))
@@ -72,7 +72,7 @@ def reference(path: Path) -> tuple[float, int]:
         rows = pd.read_sql_query(
             "SELECT r.key, c.number FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
             "JOIN respondents r ON r.id = v.respondent_id JOIN codes c ON c.id = a.code_id "
-            "WHERE a.coder = 'final' AND a.source = 'hand'", study.db)
+            "WHERE a.coder = 'final' AND a.source = 'hand'", study._db)
     table = pd.crosstab(rows["key"], rows["number"])
     return time.perf_counter() - start, int(table.to_numpy().sum())
 

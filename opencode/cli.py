@@ -9,7 +9,7 @@ import os
 import sqlite3
 import sys
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import OpenCodeError
 from opencode.files.targets import output_policy
 from opencode.files.terminal_text import TerminalStream, terminal_text
@@ -25,6 +25,8 @@ VERBS = {
     "frame": "frame_cmd", "model": "model_cmd", "code": "desk_cmd",
     "sample": "reliability_cmds", "agree": "reliability_cmds",
     "tables": "output_cmds", "export": "output_cmds", "report": "output_cmds",
+    "push": "team_cmds", "pull": "team_cmds", "team": "team_cmds", "handout": "team_cmds", "merge": "team_cmds",
+    "sentiment": "sentiment_cmd",
 }
 
 

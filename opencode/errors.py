@@ -36,3 +36,7 @@ class WriteFailed(OpenCodeError):
 
 class UnsafeTarget(OpenCodeError):
     """An output path that would overwrite the study, a companion file, an input or a special file."""
+
+
+class NotPermitted(OpenCodeError):
+    """The study's server refused a change this coder's role may not make (another coder's codes, the frame)."""

@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import contextlib
+import io
 import shutil
+from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
@@ -128,3 +131,35 @@ def locked_folder(tmp_path: Path, monkeypatch) -> Path:
         monkeypatch.setattr(builtins, "open", builtin_open)
     yield folder
     folder.chmod(0o755)
+
+
+@dataclass(frozen=True)
+class DemoRun:
+    """What one `oecode demo` left behind: its output folder, its exit status and what it printed."""
+
+    folder: Path
+    status: int
+    printed: str
+
+
+@pytest.fixture(scope="session")
+def demo_run(tmp_path_factory) -> DemoRun:
+    """`oecode demo` run once per test session (per worker): tests read it or copy its folder."""
+    from opencode.cli import main
+
+    folder = tmp_path_factory.mktemp("demo-run") / "oecode-demo"
+    printed = io.StringIO()
+    with contextlib.redirect_stdout(printed):
+        status = main(["demo", "--out", str(folder)])
+    return DemoRun(folder, status, printed.getvalue())
+
+
+@pytest.fixture
+def demo_folder(demo_run: DemoRun, tmp_path: Path) -> Path:
+    """A private copy of the demo's output folder at tmp_path/oecode-demo (the README's paths work from tmp_path)."""
+    target = tmp_path / "oecode-demo"
+    shutil.copytree(demo_run.folder, target)
+    return target
+
+
+from team_server import pg_server  # noqa: E402,F401  (the session's PostgreSQL cluster, for tests/test_team_*.py)

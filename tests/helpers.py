@@ -180,6 +180,7 @@ PROGRAM_HINTS = {
     "tmux": "apt-get install -y tmux",
     "pg_ctl": "apt-get install -y postgresql",
     "initdb": "apt-get install -y postgresql",
+    "Rscript": "apt-get install -y r-cran-survey (R with the survey package: the Rao-Scott reference)",
 }
 
 

@@ -62,7 +62,7 @@ def test_take_union_set_and_undo_write_final(demo_copy):
         assert adj.set_final(study, "why", v, [d.codes["bryn"][0]]) == (d.codes["bryn"][0],)
         assert final_hand(study, v) == [d.codes["bryn"][0]]
         # every decision is audited as final's change and undone one at a time, newest first
-        actions = study.db.execute("SELECT actor, action FROM audit WHERE actor = 'final'").fetchall()
+        actions = study._db.execute("SELECT actor, action FROM audit WHERE actor = 'final'").fetchall()
         assert actions == [("final", "assign")] * 3
         assert adj.undo_last(study) == "assign"
         assert final_hand(study, v) == list(union)
@@ -91,7 +91,7 @@ def test_bad_decisions_are_clear_errors(demo_copy):
             adj.set_final(study, "why", lone, [77])
         with pytest.raises(OpenCodeError, match="is a net"):
             adj.set_final(study, "why", lone, [90])
-        assert study.db.execute("SELECT COUNT(*) FROM assignments WHERE coder = 'final'").fetchone()[0] == 0
+        assert study._db.execute("SELECT COUNT(*) FROM assignments WHERE coder = 'final'").fetchone()[0] == 0
 
 
 def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_copy, csv_sets):
@@ -108,11 +108,11 @@ def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_c
                 assert set(final_hand(study, ids[r])) == codes
         assert final_hand(study, settled_first) == []
         assert adj.accept_agreed(study, "why", "ash,bryn") == 0
-        payload = study.db.execute("SELECT payload FROM audit WHERE actor = 'final' ORDER BY id DESC LIMIT 1"
+        payload = study._db.execute("SELECT payload FROM audit WHERE actor = 'final' ORDER BY id DESC LIMIT 1"
                                    ).fetchone()[0]
         assert '"accept-agreed"' in payload and '"by": "lead"' in payload
         assert adj.undo_last(study) == "assign"
-        in_final = study.db.execute("SELECT COUNT(DISTINCT verbatim_id) FROM assignments WHERE coder = 'final'"
+        in_final = study._db.execute("SELECT COUNT(DISTINCT verbatim_id) FROM assignments WHERE coder = 'final'"
                                     ).fetchone()[0]
         assert in_final == 0 and coding.is_done(study, settled_first, "final")
 

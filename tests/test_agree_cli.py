@@ -60,9 +60,9 @@ def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys, csv_sets):
                        "--adjudicate", "agreed")
     assert code == 0 and f"final: {agreed:,} verbatims" in out
     with Study.open(demo_copy) as study:
-        settled = study.db.execute("SELECT COUNT(DISTINCT verbatim_id) FROM assignments WHERE coder = 'final'"
+        settled = study._db.execute("SELECT COUNT(DISTINCT verbatim_id) FROM assignments WHERE coder = 'final'"
                                    ).fetchone()[0]
-        marked = study.db.execute("SELECT COUNT(*) FROM coded_marks WHERE coder = 'final'").fetchone()[0]
+        marked = study._db.execute("SELECT COUNT(*) FROM coded_marks WHERE coder = 'final'").fetchone()[0]
     assert settled + marked == agreed
     code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate", "undo")
     assert code == 0 and "undid final's last change" in out

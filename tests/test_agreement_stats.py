@@ -20,7 +20,9 @@ from opencode.analysis.agreement.stats import (
 
 # Cohen (1960) textbook 2x2 example (CHECKS.md, from memory): both yes 20, A yes B no 5, A no B yes 10, both no 15.
 COHEN_TABLE = [[20, 5], [10, 15]]
-# Fleiss (1971): 10 subjects x 14 raters x 5 categories (CHECKS.md).
+# The widely reproduced 10 subjects x 14 raters x 5 categories table (CHECKS.md). It is not Fleiss (1971)'s
+# own example: that paper's data are 30 patients x 6 psychiatrists x 5 diagnoses, kappa 0.430 (from memory);
+# irrCAC ships 15 patients with those diagnoses (distrib_6raters), checked in tests/test_agreement_weighted.py.
 FLEISS_TABLE = [[0, 0, 0, 0, 14], [0, 2, 6, 4, 2], [0, 0, 3, 5, 6], [0, 3, 9, 2, 0], [2, 2, 8, 1, 1],
                 [7, 7, 0, 0, 0], [3, 2, 6, 3, 0], [2, 5, 3, 2, 2], [6, 5, 2, 1, 0], [0, 2, 2, 3, 7]]
 N = np.nan
@@ -48,7 +50,7 @@ def test_cohen_published_example():
 
 
 def test_fleiss_published_example():
-    # Fleiss (1971) table -> 0.210 (CHECKS.md); reference statsmodels.stats.inter_rater.fleiss_kappa.
+    # The 10 x 14 table -> 0.210 (CHECKS.md); reference statsmodels.stats.inter_rater.fleiss_kappa.
     assert fleiss_kappa(FLEISS_TABLE) == pytest.approx(0.210, abs=5e-4)
     assert fleiss_kappa(FLEISS_TABLE) == pytest.approx(sm_fleiss_kappa(np.array(FLEISS_TABLE), method="fleiss"))
 

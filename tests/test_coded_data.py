@@ -163,7 +163,9 @@ def test_base_of_zero_gives_no_percentages(study_path, tmp_path):
 def test_coded_dataset_for_export(study):
     dataset, codings = coded_data.coded_dataset(study, ["why"], "final", closed=["age_band"], with_text=True)
     assert dataset.id_name == "resp_id"
-    assert [v.name for v in dataset.closed] == ["age_band", "why_status"]
+    # The study's weight always comes along (so the file can be weighted like the tables), as scale.
+    assert [v.name for v in dataset.closed] == ["age_band", "weight", "why_status"]
+    assert [v.measure for v in dataset.closed] == ["nominal", "scale", None]
     question = dataset.questions[0]
     numbers = {f.code for f in question.frame}
     assert numbers == {c.number for c in codings[0].codes + codings[0].nets}

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from opencode.cli import main
 from opencode.demo_job import build_demo_study
 from opencode.study import survey_data
 from opencode.study.store import Study
@@ -32,8 +31,7 @@ def test_csv_and_sav_give_the_same_study(tmp_path):
         assert verb_csv[question].equals(verb_sav[question]), question
 
 
-def test_oecode_demo_builds_the_study_and_prints_where(tmp_path, capsys):
-    assert main(["demo", "--out", str(tmp_path / "out")]) == 0
-    printed = capsys.readouterr().out
-    assert "2,400 respondents" in printed and "wrenfield.study" in printed
-    assert (tmp_path / "out" / "wrenfield.study").exists()
+def test_oecode_demo_builds_the_study_and_prints_where(demo_run):
+    assert demo_run.status == 0
+    assert "2,400 respondents" in demo_run.printed and "wrenfield.study" in demo_run.printed
+    assert (demo_run.folder / "wrenfield.study").exists()

@@ -250,7 +250,7 @@ def test_locked_study_offers_retry_and_loses_nothing(study_path):
     async def scenario():
         app = make_app(study_path)
         async with app.run_test(size=(100, 30)) as pilot:
-            app.session.study.db.execute("PRAGMA busy_timeout = 50")
+            app.session.study._db.execute("PRAGMA busy_timeout = 50")
             blocker = sqlite3.connect(study_path, isolation_level=None)
             blocker.execute("BEGIN IMMEDIATE")
             await pilot.press("s")
@@ -447,7 +447,7 @@ def test_themes_screen_promotes_a_theme_to_a_draft_code(study_path):
             await pilot.press("enter")
             with Study.open(study_path) as study:
                 code = frames.get_code(study, "why", 91)  # one past the highest number
-                assert code.label == "Staff / night / safe"
+                assert code.label == "staff / night / safe"  # the top terms as they are
                 assert code.rule == "staff OR night OR safe OR help"
                 assert "theme run" in code.description
     run(scenario)

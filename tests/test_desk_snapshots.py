@@ -71,5 +71,5 @@ def test_themes_screen(tmp_path, snap_compare):
     with Study.open(path) as study:
         run_id = theme_runs_store.save_run(study, get_question(study, "why").id, "nmf", 2, {}, summary, {})
         with study.transaction():  # a fixed time, so the picture does not change from run to run
-            study.db.execute("UPDATE theme_runs SET created_at = '2030-01-02T03:04:05' WHERE id = ?", (run_id,))
+            study._db.execute("UPDATE theme_runs SET created_at = '2030-01-02T03:04:05' WHERE id = ?", (run_id,))
     assert snap_compare(make_app(path), press=["f5", "tab"], terminal_size=SIZE, run_before=settle)

@@ -123,7 +123,7 @@ def test_frame_import_errors_name_the_row(study, tmp_path, body, message):
     path.write_text(body)
     with pytest.raises(OpenCodeError, match=message):
         frame_io.import_frame(study, "why", path)
-    assert study.db.execute("SELECT COUNT(*) FROM codes").fetchone()[0] == 0
+    assert study._db.execute("SELECT COUNT(*) FROM codes").fetchone()[0] == 0
 
 
 def test_codebook_counts_nets_once_and_masks_examples(study, tmp_path):

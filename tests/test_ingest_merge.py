@@ -15,10 +15,10 @@ def test_later_wave_adds_respondents_and_keeps_codes(tmp_path):
     target = tmp_path / "s.study"
     import_survey(target, first, ImportOptions("rid", ["why"]))
     with Study.open(target) as study, study.transaction():
-        frame_id = study.db.execute("INSERT INTO frames (name) VALUES ('why')").lastrowid
-        code_id = study.db.execute("INSERT INTO codes (frame_id, number, label) VALUES (?, 1, 'Staff')",
+        frame_id = study._db.execute("INSERT INTO frames (name) VALUES ('why')").lastrowid
+        code_id = study._db.execute("INSERT INTO codes (frame_id, number, label) VALUES (?, 1, 'Staff')",
                                    (frame_id,)).lastrowid
-        study.db.execute("INSERT INTO assignments (verbatim_id, code_id, coder, source, created_at) "
+        study._db.execute("INSERT INTO assignments (verbatim_id, code_id, coder, source, created_at) "
                          "VALUES (2, ?, 'ash', 'hand', ?)", (code_id, now()))
     second = tmp_path / "wave2.csv"
     second.write_text("rid,why,age\nR2,keep the staff please,3\nR3,great for students,1\n", encoding="utf-8")
@@ -31,7 +31,7 @@ def test_later_wave_adds_respondents_and_keeps_codes(tmp_path):
         texts = survey_data.verbatims(study, "why")["text"].tolist()
         assert texts == ["too late for me", "keep the staff", "great for students"]  # changed text reported, kept
         np.testing.assert_array_equal(survey_data.raw_values(study, "age"), [1, 3, 1])  # corrected value taken
-        assert study.db.execute("SELECT COUNT(*) FROM assignments").fetchone()[0] == 1
+        assert study._db.execute("SELECT COUNT(*) FROM assignments").fetchone()[0] == 1
 
 
 def test_new_variable_in_a_later_wave_is_missing_for_earlier_respondents(tmp_path):

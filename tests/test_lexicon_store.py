@@ -35,7 +35,7 @@ def test_default_row_is_replaced_not_duplicated(study):
     for language in ("english", "french", "german"):
         with study.transaction():
             ls.write_lexicon_data(study, None, {"language": language})
-    rows = study.db.execute("SELECT data FROM lexicons WHERE question_id IS NULL").fetchall()
+    rows = study._db.execute("SELECT data FROM lexicons WHERE question_id IS NULL").fetchall()
     assert len(rows) == 1
     assert ls.read_lexicon_data(study, None) == {"language": "german"}
 
@@ -52,7 +52,7 @@ def test_delete_lexicon_row(study):
 def test_corrupt_lexicon_row_is_a_clear_error(study):
     why, _ = study.question_ids
     with study.transaction():
-        study.db.execute("INSERT INTO lexicons (question_id, data, updated_at) VALUES (?, 'not json', 'now')", (why,))
+        study._db.execute("INSERT INTO lexicons (question_id, data, updated_at) VALUES (?, 'not json', 'now')", (why,))
     with pytest.raises(OpenCodeError, match=f"question id {why} is not valid JSON"):
         ls.read_lexicon_data(study, why)
 

@@ -72,16 +72,18 @@ def test_banner_table_with_letters_and_files(study_path, tmp_path, capsys):
     assert page.startswith("<!DOCTYPE html>") and 'class="oc-table"' in page
 
 
-def _expected_indicators(study_path: Path, question: str, coder: str) -> tuple[list[str], pd.DataFrame]:
-    """0/1 per code from the study's coding, nets as any-of-members (frame parents, one nested level)."""
+def _expected_indicators(study_path: Path, question: str, coder: str) -> tuple[list, pd.DataFrame]:
+    """0/1 per code from the study's coding, nets as any-of-members (frame parents, one nested level);
+    missing (NaN) for every respondent outside the base of `oecode tables`."""
     with Study.open(study_path) as study:
         coding = coded_data.load_coding(study, question, coder)
-    dense = pd.DataFrame(coding.indicators.toarray(), columns=[c.number for c in coding.codes])
+    dense = pd.DataFrame(coding.indicators.toarray().astype(float), columns=[c.number for c in coding.codes])
     parent = {c.number: c.net for c in coding.codes + coding.nets}
     for net in coding.nets:
         inside = [c.number for c in coding.codes if parent[c.number] == net.number or parent.get(parent[c.number]) == net.number]
         dense[net.number] = dense[inside].max(axis=1)
-    return coding.respondent_ids, dense
+    dense.loc[~coding.answered, :] = np.nan
+    return coded_data.export_ids(coding.respondent_ids), dense
 
 
 def test_sav_export_reads_back_with_the_studys_codes(study_path, tmp_path, capsys):
@@ -114,8 +116,13 @@ def test_triple_s_export_reads_back(study_path, tmp_path, capsys):
     numbers = expected.columns.to_numpy()
     held = expected.to_numpy() > 0
     assert held.any()
-    for row in range(len(keys)):  # the multiple variable holds codes and nets
-        assert set(chosen.iloc[row]) == set(numbers[held[row]].tolist())
+    in_base = expected.notna().all(axis=1).to_numpy()
+    assert in_base.any() and not in_base.all()
+    for row in range(len(keys)):  # the multiple variable holds codes and nets; blank (None) outside the base
+        if in_base[row]:
+            assert set(chosen.iloc[row]) == set(numbers[held[row]].tolist())
+        else:
+            assert chosen.iloc[row] is None
 
 
 def test_other_formats_and_verbatim_reminders(study_path, tmp_path, capsys):

@@ -50,7 +50,7 @@ def test_draw_is_stored_reproducible_and_leaves_out_nonanswers(demo_copy, tmp_pa
         nonanswers = set(pool.loc[pool["nonanswer"], "verbatim_id"])
         assert nonanswers and not nonanswers & set(first.verbatim_ids)
         assert first.params["population"] == len(pool) - len(nonanswers)
-        audited = a.db.execute("SELECT actor, entity FROM audit WHERE action = 'draw-sample'").fetchall()
+        audited = a._db.execute("SELECT actor, entity FROM audit WHERE action = 'draw-sample'").fetchall()
         assert audited == [("oecode", "sample"), ("oecode", "sample")]
         whole = rel.draw_sample(a, "why", "all", percent=100, include_nonanswers=True)
         assert len(whole.verbatim_ids) == len(pool)
@@ -89,7 +89,7 @@ def test_bad_draws_are_clear_errors(demo_copy, kwargs, message):
     with Study.open(demo_copy) as study:
         with pytest.raises(OpenCodeError, match=message):
             rel.draw_sample(study, "why", "bad", **kwargs)
-        assert study.db.execute("SELECT COUNT(*) FROM samples").fetchone()[0] == 0
+        assert study._db.execute("SELECT COUNT(*) FROM samples").fetchone()[0] == 0
 
 
 def test_duplicate_and_unknown_names(demo_copy):
@@ -124,7 +124,7 @@ def test_assign_and_status_count_finished_verbatims(demo_copy, csv_sets):
         coding.assign(study, first, 7, "cy")
         coding.mark_done(study, second, "cy")
         status = rel.sample_status(study, "why", "rel1")
-        audited = study.db.execute("SELECT actor, payload FROM audit WHERE action = 'assign-sample'").fetchall()
+        audited = study._db.execute("SELECT actor, payload FROM audit WHERE action = 'assign-sample'").fetchall()
     done = {p.coder: p.finished for p in status.progress}
     assert done == {"ash": len(in_sample & set(sets["ash"])), "bryn": len(in_sample & set(sets["bryn"])), "cy": 2}
     assert all(p.finished + p.remaining == len(sample.verbatim_ids) for p in status.progress)

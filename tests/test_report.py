@@ -72,8 +72,8 @@ def test_report_holds_every_part(report):
 def test_quoted_verbatims_are_masked_by_default(study_path, tmp_path):
     with Study.open(study_path) as study:
         coding = coded_data.load_coding(study, "why")
-        raw = example_verbatims(coding, per_code=500, mask=False)
-        masked = example_verbatims(coding, per_code=500)
+        raw = example_verbatims(study, coding, per_code=500, mask=False)
+        masked = example_verbatims(study, coding, per_code=500)
         out = build_report(study, tmp_path / "r.html", questions=["why"], quotes_per_code=500)
         kept = build_report(study, tmp_path / "raw.html", questions=["why"], quotes_per_code=500, mask_verbatims=False)
     assert any("@" in t for t in raw[97])  # the fixture's e-mail verbatim is quoted under code 97

@@ -80,7 +80,7 @@ def test_dry_run_and_apply_never_touch_hand_codes(tmp_path):
     frames.add_code(study, "why", "Staff", 2)
     v = A.uncoded_ids(study, "why", "ash")
     hits = rules.rule_hits(study, "why", "parking")
-    assert hits.count == 4 and hits.total == 5 and study.db.execute("SELECT COUNT(*) FROM assignments").fetchone()[0] == 0
+    assert hits.count == 4 and hits.total == 5 and study._db.execute("SELECT COUNT(*) FROM assignments").fetchone()[0] == 0
     A.assign(study, v[0], 1, "ash")          # already hand-coded
     A.mark_done(study, v[4], "ash")          # finished by a person with no code
     assert rules.apply_rules(study, "why", coder="ash") == {1: 2}

@@ -13,8 +13,8 @@ from opencode.study.store import Study
 
 def test_new_study_uses_wal_foreign_keys_and_current_schema(tmp_path):
     with Study.create(tmp_path / "a.study") as study:
-        assert study.db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
-        assert study.db.execute("PRAGMA foreign_keys").fetchone()[0] == 1
+        assert study._db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert study._db.execute("PRAGMA foreign_keys").fetchone()[0] == 1
         assert study.schema_version() == SCHEMA_VERSION
     with Study.open(tmp_path / "a.study") as study:
         assert study.schema_version() == SCHEMA_VERSION
@@ -42,7 +42,7 @@ def test_sqlite_file_from_elsewhere_is_refused(tmp_path):
 def test_study_from_newer_version_is_refused(tmp_path):
     path = tmp_path / "new.study"
     with Study.create(path) as study, study.transaction():
-        study.db.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", (str(SCHEMA_VERSION + 5),))
+        study._db.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", (str(SCHEMA_VERSION + 5),))
     with pytest.raises(OpenCodeError, match="newer opencode"):
         Study.open(path)
 
@@ -51,7 +51,7 @@ def test_failed_transaction_leaves_nothing(tmp_path):
     with Study.create(tmp_path / "t.study") as study:
         with pytest.raises(RuntimeError):
             with study.transaction():
-                study.db.execute("INSERT INTO settings (key, value) VALUES ('x', '1')")
+                study._db.execute("INSERT INTO settings (key, value) VALUES ('x', '1')")
                 raise RuntimeError("boom")
         assert study.get_setting("x") is None
 
@@ -63,7 +63,7 @@ def test_second_writer_gets_a_clear_lock_message(tmp_path, monkeypatch):
     holder.execute("BEGIN IMMEDIATE")
     try:
         study = Study.open(path)
-        study.db.execute("PRAGMA busy_timeout = 100")
+        study._db.execute("PRAGMA busy_timeout = 100")
         with pytest.raises(OpenCodeError, match="locked"):
             with study.transaction():
                 pass
@@ -77,5 +77,5 @@ def test_settings_are_audited(tmp_path):
     with Study.create(tmp_path / "s.study") as study:
         study.set_setting("language", "english", actor="ash")
         assert study.get_setting("language") == "english"
-        actor, action = study.db.execute("SELECT actor, action FROM audit ORDER BY id DESC").fetchone()
+        actor, action = study._db.execute("SELECT actor, action FROM audit ORDER BY id DESC").fetchone()
         assert (actor, action) == ("ash", "set")

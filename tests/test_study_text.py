@@ -15,7 +15,7 @@ from opencode.study.matrix_cache_store import KEEP_PER_QUESTION, cached_keys
 from opencode.study.store import Study
 from opencode.study.survey_data import add_variable, analysis_values, get_question, get_variable, raw_values, verbatims
 from opencode.text import study_text as st
-from opencode.text.analyzer import Analyzer
+from opencode.text.analyzer import Analyzer, Vocabulary
 from opencode.text.lexicon import Lexicon
 
 
@@ -36,19 +36,19 @@ def study(demo_template, tmp_path):
 def stream_calls(monkeypatch):
     """Counts calls of the analyzer's tokenizing step (a cache hit must make none)."""
     calls = []
-    original = Analyzer.stream_chunk
+    original = Vocabulary.stream_chunk
 
     def counted(self, texts):
         calls.append(len(texts))
         return original(self, texts)
 
-    monkeypatch.setattr(Analyzer, "stream_chunk", counted)
+    monkeypatch.setattr(Vocabulary, "stream_chunk", counted)
     return calls
 
 
 def audit_rows(study):
     return [(actor, action, entity, entity_id, json.loads(payload)) for actor, action, entity, entity_id, payload in
-            study.db.execute("SELECT actor, action, entity, entity_id, payload FROM audit WHERE entity = 'lexicon' "
+            study._db.execute("SELECT actor, action, entity, entity_id, payload FROM audit WHERE entity = 'lexicon' "
                              "ORDER BY id")]
 
 
@@ -213,7 +213,7 @@ def test_lexicon_change_invalidates(study, stream_calls):
 def test_verbatim_change_invalidates(study, stream_calls):
     before, _ = st.term_matrix(study, "why")
     with study.transaction():  # edit one verbatim's text in place (as a correction would)
-        study.db.execute("UPDATE verbatims SET text = 'quokka quokka' WHERE id = "
+        study._db.execute("UPDATE verbatims SET text = 'quokka quokka' WHERE id = "
                          "(SELECT MIN(id) FROM verbatims WHERE question_id = ? AND nonanswer = 0)",
                          (get_question(study, "why").id,))
     calls = len(stream_calls)

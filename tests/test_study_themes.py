@@ -190,7 +190,7 @@ def test_promote_adds_a_draft_code_with_the_rule(study, fitted):
     dominated = set(fitted.run.doc_ids[fitted.run.dominant == 1].tolist())
     frame = verbatims(study, "why").set_index("verbatim_id")
     assert dominated & set(frame.loc[hits.verbatim_ids, "respondent"])
-    audit = study.db.execute("SELECT payload FROM audit WHERE action = 'promote-theme' AND entity_id = ?",
+    audit = study._db.execute("SELECT payload FROM audit WHERE action = 'promote-theme' AND entity_id = ?",
                              (code.id,)).fetchone()
     assert json.loads(audit[0])["run"] == fitted.run_id and json.loads(audit[0])["theme"] == 2
     assert undo(study, "ash") == "add-code"  # the code is an ordinary undoable change
@@ -214,9 +214,9 @@ def test_promote_with_a_label_and_bad_promotions(study, fitted, searched):
 
 def test_theme_rule_skips_placeholders_and_quotes_phrases(study):
     analyzer = analyzer_for(study, "why")
-    assert sth.theme_rule(["_num_", "opening hours", "staff", "staff"], analyzer) == '"opening hours" OR staff'
+    assert sth.theme_rule(["#number", "opening hours", "staff", "staff"], analyzer) == '"opening hours" OR staff'
     with pytest.raises(OpenCodeError, match="no word"):
-        sth.theme_rule(["_num_", "the"], analyzer)
+        sth.theme_rule(["#number", "the"], analyzer)
 
 
 def test_k_search_is_kept_and_reloads(study, searched):

@@ -224,15 +224,16 @@ def test_lower_case_letters_and_pair_adjustment():
     assert (adjusted.higher[:, 1, 2] | adjusted.higher[:, 2, 1]).astype(bool).tolist() == (q_pairs < 0.05).tolist()
 
 
-def test_small_and_empty_columns_are_flagged_and_not_tested():
-    # common practice (no published source): bases under 30 flagged, not tested.
+def test_small_and_empty_columns_are_flagged_and_not_z_tested():
+    # common practice (no published source): bases under 30 flagged, not z-tested; with exact_small=False they
+    # are not tested at all (by default Fisher's exact test compares them, see test_significance.py).
     n = 600
     rng = np.random.default_rng(9)
     area = np.where(np.arange(n) < 20, 3.0, rng.integers(1, 3, n).astype(float))
     indicators = np.column_stack([np.where(area == 3, True, rng.random(n) < 0.2), rng.random(n) < 0.5])
     q = CodedQuestion("q", indicators, [Code(1, "a"), Code(2, "b")], np.ones(n, bool))
     labels = [(1, "north"), (2, "east"), (3, "west"), (4, "nowhere")]
-    t = banner_table(q, [BannerVariable("area", area, labels)])
+    t = banner_table(q, [BannerVariable("area", area, labels)], exact_small=False)
     assert t.base_n.tolist()[3:] == [20, 0]
     assert t.small_base.tolist() == [False, False, False, True, True]
     assert np.isnan(t.column_share[:, 4]).all()

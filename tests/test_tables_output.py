@@ -38,7 +38,8 @@ def test_terminal_text_shows_letters_bases_and_marks():
     row = next(line for line in lines if "opening hours" in line)
     assert " BC" in row or "BC " in row  # Ashmoor (A) higher than B and C
     assert "!" in row and " - " in row + " "
-    assert "Row test q" in text and "not tested" in text
+    assert "Row test q" in text and "exact test only, left out of the row test" in text
+    assert "compared by Fisher's exact test (two-sided, 2 x 2 counts)" in text
     widths = {len(line) for line in lines[3:3 + len(table.rows) + 1]}
     assert len(widths) <= 2  # aligned columns
     ftext = format_table(freq)
@@ -69,7 +70,7 @@ def test_csv_cells_are_inert(tmp_path):
     assert header[:4] == ["Code", "Label", "Total", ""] and "'=cmd|' /C calc'!A0" in header
     hours = next(r for r in rows if len(r) > 1 and r[1] == "opening hours")
     assert float(hours[4]) == pytest.approx(round(100 * table.column_share[1, 1], 1))
-    assert hours[5] == "BC"
+    assert hours[5] == "BCD"  # D (Dunmere, 12 respondents) is compared by Fisher's exact test
 
 
 def test_xlsx_cells_are_inert_and_formatted(tmp_path):
@@ -93,7 +94,7 @@ def test_xlsx_cells_are_inert_and_formatted(tmp_path):
     hours = next(row for row in banner.iter_rows(min_row=4) if row[1].value == "opening hours")
     assert hours[4].number_format == "0.0%"
     assert hours[4].value == pytest.approx(table.column_share[1, 1])
-    assert hours[5].value == "BC"
+    assert hours[5].value == "BCD"  # D compared by Fisher's exact test
     cells = [c.value for c in hours]
     assert "-" in cells and "!" in cells
 

@@ -123,7 +123,7 @@ def test_lexicon_actions(path, tmp_path, capsys):
     assert run(capsys, "lexicon", path, "import", str(export), "--question", "improve")[0] == 0
     with Study.open(path) as study:
         assert st.get_lexicon(study, "improve") == st.get_lexicon(study, "why")
-        actions = [row[0] for row in study.db.execute("SELECT action FROM audit WHERE entity = 'lexicon' ORDER BY id")]
+        actions = [row[0] for row in study._db.execute("SELECT action FROM audit WHERE entity = 'lexicon' ORDER BY id")]
     assert actions == ["lexicon-stop-add", "lexicon-merge-add", "lexicon-merge-remove", "lexicon-exception",
                        "lexicon-stemmer", "lexicon-import"]
 

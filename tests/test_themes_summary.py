@@ -155,11 +155,14 @@ def test_unexplained_listing(data):
 
 
 def test_propose_code_label():
-    # Common practice (no published source): a draft label is the first few distinct top terms.
-    assert propose_code_label(["staff", "staffing", "safety", "evenings", "late"]) == "Staff / safety / evenings"
-    assert propose_code_label(["opening_hours", "open", "weekend", "staff"]) == "Opening hours / weekend / staff"
-    assert propose_code_label(["dog", "dogs", "food"], n_words=2) == "Dog / food"
+    # Common practice (no published source): a draft label is the first few top-weighted terms, as they are.
+    assert propose_code_label(["staff", "staffing", "safety", "evenings", "late"]) == "staff / staffing / safety"
+    assert propose_code_label(["opening_hours", "open", "weekend", "staff"]) == "opening hours / open / weekend"
+    assert propose_code_label(["dog", "dog", "food"], n_words=2) == "dog / food"
     assert propose_code_label([]) == "Unnamed theme"
+    # A negation and a short word are kept: "no" before "damage" is the theme's meaning, "ce" an abbreviation.
+    assert propose_code_label(["no", "damage", "ce", "#number"]) == "no / damage / ce"
+    assert propose_code_label(["no damage", "#number", "ce"]) == "no damage / #number / ce"
 
 
 def test_text_tables_and_charts(tmp_path, run):
@@ -171,7 +174,10 @@ def test_text_tables_and_charts(tmp_path, run):
                           "rank_npmi": [3.0, 1.0, 2.0], "rank_stability": [3.0, 1.0, 2.0],
                           "combined_rank": [3.0, 1.0, 2.0], "seconds": [0.1, 0.1, 0.1]})
     search = KSearch(table=table, recommended_k=4, note="note")
-    assert "*  4" in format_k_search(search)
+    assert "*  4" in format_k_search(search)  # a search kept before the largest share was measured
+    flagged = KSearch(table=table.assign(largest=[0.6, 0.2, 0.1], catch_all=[True, False, False]),
+                      recommended_k=4, note="note")
+    assert "catch-all" in format_k_search(flagged).splitlines()[2] and "60%" in format_k_search(flagged)
     for path in (plot_theme_terms(run, tmp_path / "terms.png"), plot_k_curve(search, tmp_path / "k.png")):
         assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["k.png", "terms.png"]

@@ -32,15 +32,9 @@ def terms_of(analyzer: Any, text: str) -> list[str]:
 
 def term_lists(analyzer: Any, texts: Sequence[str]) -> list[list[str]]:
     """The terms of many texts, chunk by chunk when the analyzer can (fast path), else one by one."""
-    if not hasattr(analyzer, "iter_chunks"):
-        return [terms_of(analyzer, t) for t in texts]
-    out: list[list[str]] = [[] for _ in texts]
-    for start, chunk in analyzer.iter_chunks(list(texts)):
-        names = np.asarray(analyzer.key_names_, dtype=object)[chunk.key]
-        bounds = np.searchsorted(chunk.doc, np.arange(chunk.n_docs + 1))
-        for i in range(chunk.n_docs):
-            out[start + i] = names[bounds[i]:bounds[i + 1]].tolist()
-    return out
+    if hasattr(analyzer, "term_lists"):
+        return analyzer.term_lists(list(texts))
+    return [terms_of(analyzer, t) for t in texts]
 
 
 class TermVectorizer:

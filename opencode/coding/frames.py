@@ -105,9 +105,7 @@ def share_frame(study: Study, question: str, with_question: str, actor: str = "o
     variable = survey_data.get_question(study, question)
     current = fstore.frame_of_question(study, variable.id)
     if current is not None and current[0] != target:
-        in_use = study.db.execute("SELECT 1 FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
-                                  "WHERE v.question_id = ? LIMIT 1", (variable.id,)).fetchone()
-        if in_use:
+        if astore.question_has_assignments(study, variable.id):
             raise OpenCodeError(f"question {question!r} already has codes given in frame {current[1]!r}; "
                                 "it cannot switch frames")
     with study.transaction():
@@ -120,7 +118,7 @@ def load_frame(study: Study, question: str) -> Frame:
     fid = frame_id(study, question)
     rows = fstore.code_rows(study, fid)
     numbers = {r["id"]: r["number"] for r in rows}
-    name = study.db.execute("SELECT name FROM frames WHERE id = ?", (fid,)).fetchone()[0]
+    name = fstore.frame_name(study, fid)
     return Frame(fid, name, fstore.questions_of_frame(study, fid), [_to_code(r, numbers) for r in rows])
 
 

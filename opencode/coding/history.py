@@ -21,7 +21,7 @@ LIVE, UNDONE, CLEARED = 0, 1, 2
 UNDOABLE = frozenset({
     "assign", "unassign", "toggle", "accept", "reject", "mark", "unmark", "note", "import-codes",
     "apply-rules", "apply-machine", "add-code", "edit-code", "net", "retire", "restore", "renumber", "merge",
-    "delete-code", "import-frame", "set-rule"})
+    "delete-code", "import-frame", "set-rule", "merge-handout"})
 
 
 class Change:

@@ -6,6 +6,13 @@ with a coder column and optionally a question column; the demo's double-coded fi
 numbers or labels; labels match case- and space-insensitively. Unknown labels are an error naming the row
 and label unless `create` adds them as new codes. Imported codes are hand codes and the verbatims they
 cover are marked done for their coder; each coder's import is one undoable change.
+
+Codes read from a variable already in the study come as its value labels (a single-choice "Loss, Theft"
+is split into Loss and Theft at the delimiter), skipping its missing codes; a created code takes the
+variable's number for that label when it is free. A blank code cell on an answered verbatim means "not
+coded yet" (`blank_means="uncoded"`, the default for one row per respondent) or "coded, no code applies"
+(`"no-code"`: the verbatim is marked done and enters the base with no code; the default for the long layout,
+whose every row is a coder's statement).
 """
 
 from __future__ import annotations
@@ -28,6 +35,9 @@ from opencode.study import survey_data
 from opencode.study.store import Study, now
 
 LAYOUTS = ("auto", "delimited", "flags", "mentions", "long")
+BLANK_MEANINGS = ("uncoded", "no-code")
+#: Where a cell of several codes is split unless a delimiter is given: at any of these characters.
+DEFAULT_DELIMITERS = ",;|"
 _SPLIT = re.compile(r"\s*[;,|]\s*")
 _TRAILING_NUMBER = re.compile(r"(\d+)$")
 _BLANK = {"", "nan", "none", "null", "\\n", "."}
@@ -43,6 +53,8 @@ class CodesImportReport:
     already: int = 0                                          # codes the coder already held by hand
     created: list[tuple[int, str]] = field(default_factory=list)
     unmatched_respondents: list[str] = field(default_factory=list)
+    blank_means: str = "uncoded"
+    blank_answered: dict[str, int] = field(default_factory=dict)  # coder -> answered verbatims with a blank cell
 
 
 @dataclass
@@ -51,6 +63,8 @@ class _Source:
     row_name: callable
     variable_labels: dict[str, str]
     origin: str
+    numbers: dict[str, dict[str, int]] = field(default_factory=dict)  # column -> label key -> its value code
+    raw: pd.DataFrame | None = None  # study variables as stored (numbers), for 0/1 flag columns
 
 
 def _read_source(study: Study, path: str | Path | None, id_column: str) -> _Source:
@@ -60,13 +74,34 @@ def _read_source(study: Study, path: str | Path | None, id_column: str) -> _Sour
         frame.columns = [str(c) for c in frame.columns]
         return _Source(frame, table.row_name, dict(table.variable_labels), str(table.path))
     data = {id_column: survey_data.respondent_keys(study)}
+    raw = dict(data)
+    numbers: dict[str, dict[str, int]] = {}
     for variable in survey_data.list_variables(study):
         if variable.role not in ("id", "question"):
-            values = survey_data.raw_values(study, variable.name)
-            data[variable.name] = [";".join(str(v) for v in x) if isinstance(x, list) else x for x in values]
+            data[variable.name], numbers[variable.name] = _labelled_values(study, variable)
+            raw[variable.name] = list(survey_data.raw_values(study, variable.name))
     keys = data[id_column]
     return _Source(pd.DataFrame(data), lambda i: f"respondent {keys[i]}",
-                   {v.name: v.label for v in survey_data.list_variables(study)}, str(study.path))
+                   {v.name: v.label for v in survey_data.list_variables(study)}, str(study.path), numbers,
+                   pd.DataFrame(raw))
+
+
+def _labelled_values(study: Study, variable: survey_data.Variable) -> tuple[list, dict[str, int]]:
+    """A study variable's cells as their value labels (lists stay lists), missing codes left out, and the
+    value code of each label (the number a code created from that label takes when it is free)."""
+    labels, missing = variable.value_labels, set(variable.missing_codes)
+
+    def shown(value):
+        if value is None or (isinstance(value, float) and np.isnan(value)) or value in missing:
+            return None
+        label = labels.get(value)
+        return label if label else _cell_text(value)
+
+    cells = [[t for t in map(shown, x) if t] if isinstance(x, list) else shown(x)
+             for x in survey_data.raw_values(study, variable.name)]
+    numbers = {label_key(label): int(code) for code, label in labels.items()
+               if float(code).is_integer() and code not in missing and code > 0}
+    return cells, numbers
 
 
 def _id_column_name(study: Study, id_column: str | None) -> str:
@@ -109,14 +144,19 @@ def _key(value) -> str:
 class _CodeMatcher:
     """Turns numbers and labels into code ids, creating codes on request, naming the row when it cannot."""
 
-    def __init__(self, study: Study, fid: int, create: bool, change: Change, report: CodesImportReport):
+    def __init__(self, study: Study, fid: int, create: bool, change: Change, report: CodesImportReport,
+                 delimiter: str | None = None, numbers: dict[str, int] | None = None):
         self.study, self.fid, self.create, self.change, self.report = study, fid, create, change, report
         self.rows = fstore.code_rows(study, fid)
         self.by_number = {r["number"]: r for r in self.rows}
         self.by_label = {label_key(r["label"]): r for r in self.rows}
+        self.split = _SPLIT if delimiter is None else re.compile(r"\s*" + re.escape(delimiter) + r"\s*")
+        self.numbers = numbers or {}
 
     def _new(self, number: int | None, label: str) -> dict:
-        number = number if number is not None else max([0, *self.by_number]) + 1
+        if number is None:
+            hinted = self.numbers.get(label_key(label))
+            number = hinted if hinted is not None and hinted not in self.by_number else max([0, *self.by_number]) + 1
         code_id = self.change.put_code({"frame_id": self.fid, "number": number, "label": label, "kind": "code",
                                         "active": True})
         row = fstore.code_row(self.study, code_id)
@@ -145,22 +185,34 @@ class _CodeMatcher:
             raise OpenCodeError(f"{where}: {token!r} is net {row['number']}; codes, not nets, are assigned")
         return int(row["id"])
 
-    def cell(self, text: str, where: str) -> list[int]:
-        """The code ids in one cell: the whole cell as a label first, else its parts."""
+    def cell(self, value, where: str) -> list[int]:
+        """The code ids in one cell: a list's items, else the whole cell as a label first, else its parts."""
+        if isinstance(value, (list, tuple)):
+            return [self.one(str(token), where) for token in value if str(token).strip()]
+        text = _cell_text(value)
         if not text:
             return []
         if label_key(text) in self.by_label and not re.fullmatch(r"[\d\s;,|.]+", text):
             return [self.one(text, where)]
-        return [self.one(token, where) for token in _SPLIT.split(text) if token]
+        return [self.one(token, where) for token in self.split.split(text) if token]
 
 
 def import_codes(study: Study, question: str, columns: list[str], coder: str | None = None,
                  source_path: str | Path | None = None, *, id_column: str | None = None,
                  coder_column: str | None = None, question_column: str | None = None, layout: str = "auto",
-                 create: bool = False, actor: str = "oecode") -> CodesImportReport:
-    """Import codes for a question from `columns` of a file (or of the study's own variables)."""
+                 create: bool = False, actor: str = "oecode", delimiter: str | None = None,
+                 blank_means: str | None = None) -> CodesImportReport:
+    """Import codes for a question from `columns` of a file (or of the study's own variables).
+
+    `delimiter` splits a cell of several codes (default: any of , ; |); `blank_means` says what a blank cell
+    on an answered verbatim means (see the module's docstring).
+    """
     if layout not in LAYOUTS:
         raise OpenCodeError(f"layout {layout!r} is not one of {', '.join(LAYOUTS)}")
+    if blank_means is not None and blank_means not in BLANK_MEANINGS:
+        raise OpenCodeError(f"blank cells: {blank_means!r} is not one of {', '.join(BLANK_MEANINGS)}")
+    if delimiter is not None and (not delimiter or delimiter.isspace() or delimiter.isalnum()):
+        raise OpenCodeError(f"delimiter {delimiter!r}: give a punctuation character or string such as ; or /")
     if coder_column is None and not coder:
         raise OpenCodeError("name the coder the codes belong to (--coder), or the file's coder column")
     id_name = _id_column_name(study, id_column)
@@ -169,6 +221,7 @@ def import_codes(study: Study, question: str, columns: list[str], coder: str | N
         raise OpenCodeError(f"{source.origin}: no respondent id column {id_name!r} (name it with --id)")
     names = _pick_columns(source, columns)
     frame = source.frame
+    flag_frame = source.raw if source.raw is not None else frame
     rows = np.arange(len(frame))
     if question_column:
         _pick_columns(source, [question_column])
@@ -182,29 +235,37 @@ def import_codes(study: Study, question: str, columns: list[str], coder: str | N
     else:
         coders = np.full(len(frame), coder, dtype=object)
     if layout == "auto":
-        layout = "delimited" if len(names) == 1 else ("flags" if _is_flags(frame, names) else "mentions")
+        layout = "delimited" if len(names) == 1 else ("flags" if _is_flags(flag_frame, names) else "mentions")
     if layout in ("delimited", "long") and len(names) != 1:
         raise OpenCodeError(f"{source.origin}: the {layout} layout reads one column; got {', '.join(names)}")
-    report = CodesImportReport(layout)
+    blank_means = blank_means or ("no-code" if layout == "long" else "uncoded")
+    report = CodesImportReport(layout, blank_means=blank_means)
     question_id = survey_data.get_question(study, question).id
     fid = frame_id(study, question, create=True)
     verbatim_of = astore.verbatim_ids_by_respondent(study, question_id)
+    texts = survey_data.verbatims(study, question)
+    non_answers = set(texts.loc[texts["nonanswer"], "verbatim_id"].tolist())
     keys = frame[id_name].map(_key).to_numpy()
+    numbers = {k: v for name in names for k, v in source.numbers.get(name, {}).items()}
     with study.transaction():
         created = Change(study)
-        matcher = _CodeMatcher(study, fid, create, created, report)
+        matcher = _CodeMatcher(study, fid, create, created, report, delimiter, numbers)
         found: dict[str, dict[int, set[int]]] = {}
         for i in rows.tolist():
             where = f"{source.origin}: {source.row_name(i)}"
             who = coders[i]
             if not who:
                 raise OpenCodeError(f"{where}, column {coder_column}: the coder is empty")
-            codes = _row_codes(matcher, frame, names, i, layout, where, source.variable_labels)
-            if not codes and layout != "long":
-                continue
+            codes = _row_codes(matcher, flag_frame if layout == "flags" else frame, names, i, layout, where,
+                               source.variable_labels)
             verbatim_id = verbatim_of.get(keys[i])
+            if not codes and verbatim_id is not None and verbatim_id not in non_answers:
+                report.blank_answered[who] = report.blank_answered.get(who, 0) + 1
+            if not codes and blank_means == "uncoded":
+                continue
             if verbatim_id is None:
-                report.unmatched_respondents.append(keys[i])
+                if codes:
+                    report.unmatched_respondents.append(keys[i])
                 continue
             found.setdefault(who, {}).setdefault(verbatim_id, set()).update(codes)
         created.commit(actor, "add-code", "frame", fid, question=question, created=len(report.created))
@@ -231,10 +292,9 @@ def import_codes(study: Study, question: str, columns: list[str], coder: str | N
 def _row_codes(matcher: _CodeMatcher, frame: pd.DataFrame, names: list[str], i: int, layout: str, where: str,
                labels: dict[str, str]) -> list[int]:
     if layout in ("delimited", "long"):
-        return matcher.cell(_cell_text(frame[names[0]].iat[i]), f"{where}, column {names[0]}")
+        return matcher.cell(frame[names[0]].iat[i], f"{where}, column {names[0]}")
     if layout == "mentions":
-        return [code for name in names for code in matcher.cell(_cell_text(frame[name].iat[i]),
-                                                                 f"{where}, column {name}")]
+        return [code for name in names for code in matcher.cell(frame[name].iat[i], f"{where}, column {name}")]
     codes = []
     for name in names:
         value = _cell_text(frame[name].iat[i])

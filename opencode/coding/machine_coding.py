@@ -2,6 +2,8 @@
 
 Machine codes are suggestions until a person accepts them: `apply_machine` writes source=machine rows only
 on verbatims the coder has not touched (no hand code, not marked done), never over or beside a hand code.
+Non-answers and empty verbatims are left out of training, cross-validation, the curve, suggestions and the
+queues: the non-answer flag codes them, not the model (and the frame's non-answer code is not learned).
 """
 
 from __future__ import annotations
@@ -12,10 +14,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from opencode.coding.features import default_analyzer, term_lists
+from opencode.coding.features import default_analyzer
 from opencode.coding.frames import load_frame
 from opencode.coding.history import Change
-from opencode.coding.machine import MachineCoder, coverage_curve, pick_threshold
+from opencode.coding.machine import (CURVE_DEFINITIONS, PUBLISHED_EXAMPLE, MachineCoder, code_precision_recall,
+                                     coverage_curve, pick_threshold)
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
 from opencode.study import models_store
@@ -27,21 +30,58 @@ FINAL = "final"
 
 @dataclass
 class TrainedModel:
-    """A stored model with what it was trained on."""
+    """A stored model with what it was trained on (and what was left out)."""
 
     id: int
     question: str
     question_id: int
     created_at: str
     model: MachineCoder
-    analyzer: Any
     train_ids: np.ndarray
     train_coders: list[str]
     meta: dict[str, Any] = field(default_factory=dict)
 
+    @property
+    def analyzer(self) -> Any:
+        """The analyzer the model reads verbatims with."""
+        return self.model.analyzer_
+
+    @property
+    def notes(self) -> list[str]:
+        """What a reader should know about the training: verbatims used and left out, codes not learned."""
+        left_out = int(self.meta.get("left_out", 0))
+        notes = [f"trained on {len(self.train_ids):,} hand-coded verbatims; {left_out:,} coded non-answer or empty "
+                 "verbatims left out (the non-answer flag codes them, not the model)"]
+        if self.meta.get("nonanswer_codes"):
+            notes.append("not learned: the frame's non-answer code(s) "
+                         + ", ".join(str(c) for c in self.meta["nonanswer_codes"]))
+        for code, n in self.model.skipped_:
+            notes.append(f"cannot suggest code {code}: {n} coded example(s) (needs {self.model.min_examples}, and as "
+                         "many without it)")
+        return notes
+
+
+@dataclass
+class TrainingSet:
+    """Hand-coded verbatims to learn from: ids, texts, 0/1 codes, code numbers, coder per verbatim, and how
+    many coded verbatims were left out as non-answers or empty."""
+
+    ids: np.ndarray
+    texts: list[str]
+    Y: np.ndarray
+    codes: list[int]
+    coders: list[str]
+    left_out: int = 0
+    nonanswer_codes: list[int] = field(default_factory=list)
+
 
 _CACHE: dict[tuple[str, int], TrainedModel] = {}
-_QUESTION_NAMES: dict[tuple[str, int], str] = {}
+
+
+def _answered(frame: pd.DataFrame) -> np.ndarray:
+    """Mask of verbatims that are answers: not flagged as non-answers and not empty."""
+    text = frame["text"].fillna("").astype(str)
+    return ~frame["nonanswer"].to_numpy(dtype=bool) & (text.str.strip() != "").to_numpy(dtype=bool)
 
 
 def _coder_priority(study: Study, question_id: int, coder: str | None) -> list[str]:
@@ -51,15 +91,18 @@ def _coder_priority(study: Study, question_id: int, coder: str | None) -> list[s
     return [FINAL] + [name for name in active if name != FINAL]
 
 
-def training_data(study: Study, question: str, coder: str | None = None):
-    """(verbatim ids, texts, 0/1 labels, code numbers, coder per verbatim) from hand codes.
+def training_data(study: Study, question: str, coder: str | None = None) -> TrainingSet:
+    """The hand-coded answers of a question to learn from.
 
     One coder when named; otherwise the `final` coder where it has coded a verbatim, else the most active
     coder who did. A verbatim counts as coded once it holds a hand code or is marked done (so "done, no
-    code" teaches the model what is not each code).
+    code" teaches the model what is not each code). Non-answers and empty verbatims are left out and counted;
+    the frame's non-answer code (special "nonanswer") is not learned.
     """
     question_id = survey_data.get_question(study, question).id
-    codes = [c.number for c in load_frame(study, question).codes if not c.is_net and c.active]
+    usable = [c for c in load_frame(study, question).codes if not c.is_net and c.active]
+    codes = [c.number for c in usable if c.special != "nonanswer"]
+    nonanswer_codes = [c.number for c in usable if c.special == "nonanswer"]
     owner: dict[int, str] = {}
     for name in _coder_priority(study, question_id, coder):
         for verbatim_id in astore.coded_verbatim_ids(study, question_id, name).tolist():
@@ -67,42 +110,44 @@ def training_data(study: Study, question: str, coder: str | None = None):
     if not owner:
         raise OpenCodeError(f"question {question!r}: no hand-coded verbatims" + (f" by {coder}" if coder else "")
                             + " to learn from")
-    ids = np.array(sorted(owner), dtype=np.int64)
+    frame = survey_data.verbatims(study, question)
+    frame = frame[frame["verbatim_id"].isin(owner)]
+    answered = _answered(frame)
+    left_out = int((~answered).sum())
+    frame = frame[answered]
+    if frame.empty:
+        raise OpenCodeError(f"question {question!r}: the {left_out} hand-coded verbatims are all non-answers or "
+                            "empty; there is no answer to learn from")
+    ids = frame["verbatim_id"].to_numpy(dtype=np.int64)
+    order = np.argsort(ids)
+    ids, texts = ids[order], frame["text"].to_numpy()[order].tolist()
     table = astore.assignments_table(study, question_id, sorted(set(owner.values())), ("hand",))
     table = table[[owner.get(v) == c for v, c in zip(table["verbatim_id"], table["coder"])]]
     row_of = {v: i for i, v in enumerate(ids.tolist())}
     col_of = {c: j for j, c in enumerate(codes)}
     Y = np.zeros((len(ids), len(codes)), dtype=bool)
     for v, number in zip(table["verbatim_id"].tolist(), table["number"].tolist()):
-        if number in col_of:
+        if number in col_of and v in row_of:
             Y[row_of[v], col_of[number]] = True
-    texts_by_id = survey_data.verbatims(study, question).set_index("verbatim_id")["text"]
-    return ids, texts_by_id.loc[ids].tolist(), Y, codes, [owner[v] for v in ids.tolist()]
+    return TrainingSet(ids, texts, Y, codes, [owner[v] for v in ids.tolist()], left_out, nonanswer_codes)
 
 
 def train(study: Study, question: str, coder: str | None = None, analyzer: Any = None,
           **params: Any) -> TrainedModel:
-    """Train and store a model for a question; codes with too few examples are skipped (see model.skipped_)."""
+    """Train and store a model for a question; codes with too few examples are not learned (model.skipped_),
+    non-answers and empty verbatims are left out (counted in the result's notes)."""
     analyzer = analyzer or default_analyzer(study, question)
-    ids, texts, Y, codes, owners = training_data(study, question, coder)
-    model = MachineCoder(**params).fit(term_lists(analyzer, texts), Y, codes)
+    data = training_data(study, question, coder)
+    model = MachineCoder(analyzer=analyzer, **params).fit(data.texts, pd.DataFrame(data.Y, columns=data.codes))
     meta, blob = model.to_state()
     question_id = survey_data.get_question(study, question).id
-    meta.update({"question": question, "train_ids": ids.tolist(), "train_coders": owners, "n_train": len(ids),
-                 "n_codes": len(model.codes_), "trained_by": coder or "oecode",
-                 "analyzer": analyzer.to_dict() if hasattr(analyzer, "to_dict") else None})
+    meta.update({"question": question, "train_ids": data.ids.tolist(), "train_coders": data.coders,
+                 "n_train": len(data.ids), "n_codes": len(model.classes_), "trained_by": coder or "oecode",
+                 "left_out": data.left_out, "nonanswer_codes": data.nonanswer_codes})
     model_id = models_store.save_model(study, question_id, meta, blob)
-    trained = TrainedModel(model_id, question, question_id, now(), model, analyzer, ids, owners, meta)
+    trained = TrainedModel(model_id, question, question_id, now(), model, data.ids, data.coders, meta)
     _CACHE[(str(study.path), question_id)] = trained
     return trained
-
-
-def _analyzer_from(meta: dict[str, Any], study: Study, question: str) -> Any:
-    if meta.get("analyzer"):
-        from opencode.text.analyzer import Analyzer
-
-        return Analyzer.from_dict(meta["analyzer"])
-    return default_analyzer(study, question)
 
 
 def load_model(study: Study, question: str) -> TrainedModel:
@@ -123,50 +168,108 @@ def _load(study: Study, question_id: int, question: str | None) -> TrainedModel:
     meta, blob, created = models_store.load_model_row(study, model_id)
     model = MachineCoder.from_state(meta, blob)
     question = question or meta.get("question")
-    trained = TrainedModel(model_id, question, question_id, created, model, _analyzer_from(meta, study, question),
+    trained = TrainedModel(model_id, question, question_id, created, model,
                            np.asarray(meta["train_ids"], dtype=np.int64), list(meta["train_coders"]), meta)
     _CACHE[key] = trained
     return trained
 
 
 def suggest_one(study: Study, verbatim_id: int) -> list[tuple[int, float]]:
-    """(code, probability) for one verbatim, most likely first, from its question's newest model."""
+    """(code, probability) for one verbatim, most likely first, from its question's newest model; nothing for
+    a non-answer or an empty verbatim (the non-answer flag codes those)."""
     question_id = astore.verbatim_question(study, verbatim_id)
     if question_id is None:
         raise OpenCodeError(f"verbatim {verbatim_id}: no such verbatim in {study.path.name}")
     trained = _load(study, question_id, None)
-    return trained.model.suggest_text(trained.analyzer, astore.verbatim_text(study, verbatim_id) or "")
+    text = astore.verbatim_text(study, verbatim_id) or ""
+    if not text.strip() or astore.verbatim_is_nonanswer(study, verbatim_id):
+        return []
+    return trained.model.suggest_text(text)
 
 
 def suggest(study: Study, question: str, verbatim_ids: list[int] | None = None, coder: str | None = None
             ) -> pd.DataFrame:
     """Probabilities (rows: verbatim ids; columns: code numbers) for the given verbatims, or those `coder`
-    has not coded, or all of the question's verbatims."""
+    has not coded, or all of the question's verbatims; non-answers and empty verbatims are left out."""
     trained = load_model(study, question)
     frame = survey_data.verbatims(study, question)
+    frame = frame[_answered(frame)]
     if verbatim_ids is None and coder is not None:
-        verbatim_ids = astore.uncoded_ids(study, trained.question_id, coder, None, None, True)
+        verbatim_ids = astore.uncoded_ids(study, trained.question_id, coder, None, None, False)
     if verbatim_ids is not None:
         frame = frame[frame["verbatim_id"].isin(verbatim_ids)]
-    proba = trained.model.predict_proba(trained.model.transform(trained.analyzer, frame["text"].tolist()))
-    return pd.DataFrame(proba, index=frame["verbatim_id"].to_numpy(), columns=trained.model.codes_.tolist())
+    proba = trained.model.predict_proba(frame["text"].tolist()) if len(frame) else \
+        np.zeros((0, len(trained.model.classes_)))
+    return pd.DataFrame(proba, index=frame["verbatim_id"].to_numpy(), columns=trained.model.classes_.tolist())
 
 
 def code_report(study: Study, question: str) -> list[dict[str, Any]]:
-    """Cross-validated precision, recall, F1 and machine-versus-human kappa per trained code."""
+    """Per code of the frame the model was trained with: cross-validated precision, recall, F1 and
+    machine-versus-human kappa at probability 0.5, or why the model cannot suggest it (suggests=False)."""
     trained = load_model(study, question)
+    model = trained.model
     labels = {c.number: c.label for c in load_frame(study, question).codes}
-    m = trained.model.metrics_
-    return [{"code": int(c), "label": labels.get(int(c), "?"), "examples": int(m["positives"][j]),
-             "precision": float(m["precision"][j]), "recall": float(m["recall"][j]), "f1": float(m["f1"][j]),
-             "kappa": float(m["kappa"][j])} for j, c in enumerate(trained.model.codes_)]
+    m = model.metrics_
+    column = {c: j for j, c in enumerate(model.classes_.tolist())}
+    rows = []
+    for code, examples in zip(model.codes_.tolist(), model.y_.sum(axis=0).tolist()):
+        row = {"code": int(code), "label": labels.get(int(code), "?"), "examples": int(examples),
+               "suggests": code in column}
+        if code in column:
+            j = column[code]
+            row.update({"precision": float(m["precision"][j]), "recall": float(m["recall"][j]),
+                        "f1": float(m["f1"][j]), "kappa": float(m["kappa"][j])})
+        else:
+            row.update({"precision": float("nan"), "recall": 0.0, "f1": 0.0, "kappa": float("nan")})
+        rows.append(row)
+    return rows
 
 
-def curve(study: Study, question: str, thresholds: list[float] | None = None) -> list[dict[str, float]]:
-    """Coverage versus accuracy per threshold, from the model's cross-validated probabilities."""
+@dataclass
+class CurveReport:
+    """The coverage-versus-accuracy curve of a question's model (cross-validated), per-code figures at one
+    threshold, the codes the model cannot suggest, and the definitions and comparison a reader needs."""
+
+    rows: list[dict[str, float]]
+    threshold: float
+    codes: list[dict[str, Any]]
+    cannot_suggest: list[tuple[int, str, int]]
+    n_verbatims: int
+    left_out: int
+    notes: list[str]
+
+
+def curve(study: Study, question: str, thresholds: list[float] | None = None, code_threshold: float = 0.8
+          ) -> CurveReport:
+    """Coverage versus accuracy per threshold from the model's cross-validated probabilities, measured against
+    every code of the frame a person gave (codes the model cannot suggest included), with per-code precision
+    and recall on the verbatims auto-coded at `code_threshold`."""
     trained = load_model(study, question)
-    return coverage_curve(trained.model.y_, trained.model.oof_proba_,
-                          None if thresholds is None else np.asarray(thresholds))
+    cv = trained.model.cross_validation()
+    rows = coverage_curve(cv.truth, cv.proba, None if thresholds is None else np.asarray(thresholds))
+    labels = {c.number: c.label for c in load_frame(study, question).codes}
+    per_code = [{"code": int(c), "label": labels.get(int(c), "?"), "suggests": bool(ok), **figures}
+                for c, ok, figures in zip(cv.codes.tolist(), cv.trained.tolist(),
+                                          code_precision_recall(cv.truth, cv.proba, code_threshold))]
+    cannot = [(int(c), labels.get(int(c), "?"), int(n)) for c, n in trained.model.skipped_]
+    notes = list(CURVE_DEFINITIONS)
+    notes.append(f"cross-validated ({trained.model.cv}-fold, out-of-fold probabilities) on {len(cv.truth):,} "
+                 f"hand-coded verbatims; {int(trained.meta.get('left_out', 0)):,} non-answer or empty verbatims "
+                 "left out (the non-answer flag codes them)")
+    if cannot:
+        notes.append("the model cannot suggest (too few examples): " + "; ".join(
+            f"{c} {label} ({n})" for c, label, n in cannot) + ". A verbatim holding one of these is never exactly "
+            "right when auto-coded; people code them.")
+    at = next((r for r in rows if abs(r["threshold"] - PUBLISHED_EXAMPLE["threshold"]) < 1e-9), None)
+    ours = (f"here at {PUBLISHED_EXAMPLE['threshold']:.2f}: {at['coverage']:.0%} auto-coded at "
+            f"{at['accuracy']:.1%} accuracy" if at and at["verbatims"] else "")
+    notes.append(f"Schonlau & Couper (2016) auto-code only when the model is confident and send the rest to people; "
+                 f"on their data a threshold of {PUBLISHED_EXAMPLE['threshold']:.1f} auto-coded about "
+                 f"{PUBLISHED_EXAMPLE['coverage']:.0%} at about {PUBLISHED_EXAMPLE['accuracy']:.0%} accuracy "
+                 "(one code per answer, top probability above t)" + (f"; {ours}" if ours else "") + ". With several "
+                 "codes per verbatim the rule here is stricter: sure about every code.")
+    return CurveReport(rows, float(code_threshold), per_code, cannot, len(cv.truth),
+                       int(trained.meta.get("left_out", 0)), notes)
 
 
 @dataclass
@@ -188,7 +291,7 @@ def apply_machine(study: Study, question: str, threshold: float | None = None, t
     if threshold is None:
         if target_accuracy is None:
             raise OpenCodeError("apply: give a threshold or a target accuracy")
-        threshold = pick_threshold(curve(study, question), target_accuracy)
+        threshold = pick_threshold(curve(study, question).rows, target_accuracy)
         if threshold is None:
             raise OpenCodeError(f"apply: no threshold reaches accuracy {target_accuracy:.2f} in cross-validation; "
                                 "code more verbatims or lower the target")
@@ -237,11 +340,11 @@ def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_sim
     trained = load_model(study, question)
     frame = survey_data.verbatims(study, question, include_nonanswers=False)
     open_ids = set(astore.uncoded_ids(study, trained.question_id, coder, None, None, False))
-    frame = frame[frame["verbatim_id"].isin(open_ids)]
+    frame = frame[frame["verbatim_id"].isin(open_ids) & _answered(frame)]
     if frame.empty:
         return []
-    X = trained.model.transform(trained.analyzer, frame["text"].tolist())
-    proba = trained.model.predict_proba(X)
+    X = trained.model.features(frame["text"].tolist())
+    proba = trained.model.proba_of_features(X)
     doubt = 1.0 - np.abs(2.0 * proba - 1.0)
     score = doubt.max(axis=1)
     order = np.argsort(-score, kind="stable")
@@ -254,7 +357,7 @@ def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_sim
             break
     ids = frame["verbatim_id"].to_numpy()
     texts = frame["text"].to_numpy()
-    codes = trained.model.codes_
+    codes = trained.model.classes_
     return [{"verbatim_id": int(ids[r]), "uncertainty": float(score[r]), "code": int(codes[doubt[r].argmax()]),
              "probability": float(proba[r, doubt[r].argmax()]), "text": texts[r]} for r in picked]
 
@@ -266,7 +369,7 @@ def second_look_queue(study: Study, question: str, coder: str | None = None, n: 
     than random re-checks (He & Schonlau 2021)."""
     trained = load_model(study, question)
     model = trained.model
-    y = model.y_.astype(bool)
+    y = model.y_[:, model.trained_]
     p = model.oof_proba_
     disagree = np.where(y, 1.0 - p, p)
     flagged = np.argwhere(disagree >= strength)
@@ -278,7 +381,7 @@ def second_look_queue(study: Study, question: str, coder: str | None = None, n: 
     out = []
     for row, j in flagged[order]:
         verbatim_id = int(trained.train_ids[row])
-        out.append({"verbatim_id": verbatim_id, "coder": owners[row], "code": int(model.codes_[j]),
+        out.append({"verbatim_id": verbatim_id, "coder": owners[row], "code": int(model.classes_[j]),
                     "given": bool(y[row, j]), "probability": float(p[row, j]),
                     "why": "model doubts this code" if y[row, j] else "model expects this code",
                     "text": texts.get(verbatim_id, "")})

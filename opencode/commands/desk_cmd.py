@@ -18,10 +18,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run_code(args: argparse.Namespace) -> int:
+    from opencode.study.team import check_coder_identity
     from opencode.tui.app import DeskApp
     from opencode.tui.session import DeskSession
 
     session = DeskSession(args.study, args.question, args.coder)
+    try:  # on a server, a coder codes under their own database user name only
+        check_coder_identity(session.study, session.coder)
+    except BaseException:
+        session.close()
+        raise
     app = DeskApp(session, refresh_seconds=max(args.refresh, 0.0), first_screen=args.screen)
     app.run()
     return int(app.return_code or 0)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.coding import codebook, frame_io, frames, history, import_codes, rules
+from opencode.coding import codebook, done_marks, frame_io, frames, history, import_codes, rules
 from opencode.coding.assignments import code_counts
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
@@ -12,7 +12,7 @@ from opencode.files.textout import format_table
 from opencode.commands.common import add_overwrite_option
 
 ACTIONS = ("list", "add", "edit", "net", "merge", "renumber", "retire", "restore", "delete", "share", "import",
-           "export", "codebook", "import-codes", "rule", "undo", "redo")
+           "export", "codebook", "import-codes", "rule", "undo", "redo", "done", "not-done")
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -43,6 +43,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--question-column", help="import-codes: a column naming each row's question (long layout)")
     p.add_argument("--layout", choices=import_codes.LAYOUTS, default="auto")
     p.add_argument("--create", action="store_true", help="import-codes: add codes the frame lacks")
+    p.add_argument("--delimiter", help="import-codes: what separates several codes in one cell "
+                   f"(default: any of {' '.join(import_codes.DEFAULT_DELIMITERS)})")
+    p.add_argument("--blank-means", choices=import_codes.BLANK_MEANINGS,
+                   help="import-codes: a blank code cell on an answered verbatim is not coded yet (uncoded), or "
+                   "coded with no code (no-code: marked done, in the base); default uncoded, no-code for the long layout")
+    p.add_argument("--which", choices=tuple(done_marks.FILTERS), default="answered-without-codes",
+                   help="done / not-done: the verbatims to mark for --coder (default answered-without-codes)")
     p.add_argument("--set", dest="rule", help="rule: the keyword rule (AND OR NOT NEAR/n, quotes, parentheses)")
     p.add_argument("--dry-run", action="store_true", help="rule: show what the rule would pre-code")
     p.add_argument("--show", type=int, default=10, help="rule --dry-run: how many matches to print")
@@ -160,7 +167,7 @@ def _import_codes(study: Study, args: argparse.Namespace) -> None:
     report = import_codes.import_codes(
         study, args.question, args.column, args.coder, args.source, id_column=args.id_column,
         coder_column=args.coder_column, question_column=args.question_column, layout=args.layout,
-        create=args.create, actor=_actor(args))
+        create=args.create, actor=_actor(args), delimiter=args.delimiter, blank_means=args.blank_means)
     print(f"layout: {report.layout}")
     rows = [[who, report.verbatims[who], report.added[who]] for who in sorted(report.added)]
     print(format_table(["coder", "verbatims", "codes added"], rows))
@@ -168,10 +175,29 @@ def _import_codes(study: Study, args: argparse.Namespace) -> None:
         print(f"{report.already} codes were already there by hand (kept once)")
     for number, label in report.created:
         print(f"created code {number}: {label}")
+    for who, blank in sorted(report.blank_answered.items()):
+        if report.blank_means == "uncoded":
+            print(f"{blank:,} answered verbatims have a blank code cell for {who}: left not coded (out of the base); "
+                  f"if blank means no code applies, run again with --blank-means no-code or mark them with: "
+                  f"oecode frame {args.study} done --question {args.question} --coder {who}")
+        else:
+            print(f"{blank:,} answered verbatims have a blank code cell for {who}: marked done with no code")
     if report.unmatched_respondents:
         shown = ", ".join(report.unmatched_respondents[:10])
         print(f"warning: {len(report.unmatched_respondents)} rows name respondents without a verbatim for "
               f"{args.question}: {shown}")
+
+
+def _done(study: Study, args: argparse.Namespace, done: bool = True) -> None:
+    _need(args, "coder")
+    report = done_marks.set_done(study, args.question, args.coder, args.which, done=done)
+    state = "done" if done else "not done"
+    print(f"{args.question}: {report.changed:,} of {report.chosen:,} verbatims ({args.which}) marked {state} for "
+          f"{args.coder}; undo with: oecode frame {args.study} undo --coder {args.coder}")
+
+
+def _not_done(study: Study, args: argparse.Namespace) -> None:
+    _done(study, args, done=False)
 
 
 def _rule(study: Study, args: argparse.Namespace) -> None:

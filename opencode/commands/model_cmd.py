@@ -24,7 +24,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--question", required=True)
     p.add_argument("--coder", help="train: learn from this coder only; apply/rules/suggest/queue: for this coder "
                    "(default final)")
-    p.add_argument("--threshold", type=float, help="apply: code only verbatims the model is this sure about")
+    p.add_argument("--threshold", type=float, help="apply: code only verbatims the model is this sure about; "
+                   "curve: show per-code precision and recall at this threshold (default 0.80)")
     p.add_argument("--target-accuracy", type=float, help="apply: pick the threshold reaching this accuracy")
     p.add_argument("--kind", choices=("learn", "second-look"), default="learn", help="queue: which queue")
     p.add_argument("--limit", type=int, default=20, help="suggest/queue: how many to show")
@@ -45,26 +46,45 @@ def _coder(args: argparse.Namespace) -> str:
 def _train(study: Study, args: argparse.Namespace) -> None:
     progress_line("analysing verbatims and cross-validating each code")
     trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
-    print(f"model {trained.id}: {len(trained.model.codes_)} codes from {len(trained.train_ids)} hand-coded verbatims")
-    for code, n in trained.model.skipped_:
-        print(f"  skipped code {code}: {n} coded examples (needs {args.min_examples}, and as many without it)")
+    print(f"model {trained.id}: suggests {len(trained.model.classes_)} of {len(trained.model.codes_)} codes")
     _report(study, args)
 
 
 def _report(study: Study, args: argparse.Namespace) -> None:
+    trained = machine_coding.load_model(study, args.question)
+    for note in trained.notes:
+        print(note)
     rows = machine_coding.code_report(study, args.question)
-    print("cross-validated, machine versus human:")
+    print("cross-validated, machine versus human (probability 0.5):")
     print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
                        [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
+                        if r["suggests"] else [r["code"], r["label"][:40], r["examples"], "cannot suggest", "", "", ""]
                         for r in rows]))
+
+
+def _share(value: float) -> str:
+    return "-" if value != value else f"{value:.1%}"
+
+
+def _ratio(value: float) -> str:
+    return "-" if value != value else f"{value:.3f}"
 
 
 def _curve(study: Study, args: argparse.Namespace) -> None:
-    rows = machine_coding.curve(study, args.question)
-    print("semi-automatic coding: the model codes a verbatim only when sure of every code")
-    print(format_table(["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"],
-                       [[r["threshold"], r["coverage"], r["accuracy"], r["precision"], r["recall"], r["verbatims"]]
-                        for r in rows]))
+    report = machine_coding.curve(study, args.question, code_threshold=0.8 if args.threshold is None
+                                  else args.threshold)
+    print("semi-automatic coding: the model codes a verbatim only when sure of every code it can suggest; "
+          "people code the rest")
+    print(format_table(["threshold", "auto-coded", "accuracy", "precision", "recall", "verbatims"],
+                       [[f"{r['threshold']:.2f}", _share(r["coverage"]), _share(r["accuracy"]), _ratio(r["precision"]),
+                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr"))
+    print(f"per code on the verbatims auto-coded at {report.threshold:.2f}:")
+    print(format_table(["code", "label", "machine", "person", "both", "precision", "recall", ""],
+                       [[c["code"], c["label"][:40], c["machine"], c["person"], c["both"], _ratio(c["precision"]),
+                         _ratio(c["recall"]), "" if c["suggests"] else "cannot suggest"] for c in report.codes],
+                       align="rlrrrrrl"))
+    for note in report.notes:
+        print(f"- {note}")
     print("pick a threshold whose accuracy you accept; then: oecode model STUDY apply --question Q --threshold T")
 
 

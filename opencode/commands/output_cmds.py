@@ -32,6 +32,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _weight_options(tables)
     tables.add_argument("--confidence", type=float, default=95, help="significance level in %% (default 95)")
     tables.add_argument("--lower", type=float, help="a second, lower level in %% marked in lower case (e.g. 90)")
+    tables.add_argument("--ci", action="store_true", help="show each percentage's Wilson score interval at the "
+                        "--confidence level (on the Kish effective base when weighted)")
     tables.add_argument("--out", help="also write the tables: .csv, .xlsx (a sheet per table) or .html")
     add_overwrite_option(tables)
     tables.set_defaults(handler=run_tables)
@@ -105,7 +107,7 @@ def run_tables(args: argparse.Namespace) -> int:
         made = question_tables(study, args.question, args.banner, coder=args.coder,
                                include_suggestions=args.with_suggestions, weight=args.weight,
                                unweighted=args.unweighted, confidence=_level(args.confidence, "--confidence"),
-                               lower_confidence=_level(args.lower, "--lower"))
+                               lower_confidence=_level(args.lower, "--lower"), intervals=args.ci)
     print(format_table(made.tables[-1]))
     _warn(made.warnings)
     if args.out:

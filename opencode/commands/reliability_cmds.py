@@ -5,8 +5,11 @@ from __future__ import annotations
 import argparse
 import html
 
-from opencode.analysis.agreement.report import format_agreement_html, format_agreement_text, write_agreement_csv
-from opencode.analysis.agreement.study import question_agreement
+from opencode.analysis.agreement.report import (format_agreement_html, format_agreement_text,
+                                               format_scale_agreement_text, write_agreement_csv,
+                                               write_scale_agreement_csv)
+from opencode.analysis.agreement.scale import ScaleAgreementResult
+from opencode.analysis.agreement.study import LEVELS, question_agreement, remember_level
 from opencode.coding import adjudication, reliability
 from opencode.errors import OpenCodeError
 from opencode.files.safe_write import atomic_open
@@ -47,6 +50,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--csv", help="also write the results as a long CSV file")
     a.add_argument("--html", help="also write the results as an HTML page")
     a.add_argument("--differences", type=int, metavar="N", help="list N verbatims where the coders differ")
+    a.add_argument("--level", choices=LEVELS, help="the codes' level of measurement: nominal (per-code statistics, "
+                   "the default) or ordinal / interval / ratio when the codes form a scale (one per verbatim); "
+                   "remembered for the question and used by the report")
+    a.add_argument("--weights", choices=("linear", "quadratic"), help="credit for near misses on a scale "
+                   "(default: linear for ordinal, quadratic for interval and ratio)")
+    a.add_argument("--scale", help="the codes forming the scale, low to high, comma-separated (default: every "
+                   "code of the frame by number)")
     a.add_argument("--adjudicate", choices=ADJUDICATE, help="agreed: put verbatims all coders coded alike into "
                    "final; take / union / set: settle one --verbatim; undo: reverse final's last change")
     a.add_argument("--verbatim", type=int, help="adjudicate take / union / set: the verbatim id")
@@ -116,6 +126,15 @@ def _adjudicate(study: Study, args: argparse.Namespace) -> None:
     print(f"final now holds {', '.join(map(str, held)) or 'no code'} on verbatim {args.verbatim}")
 
 
+def _scale_codes(text: str | None) -> list[int] | None:
+    if text is None:
+        return None
+    try:
+        return [int(x) for x in text.split(",") if x.strip()]
+    except ValueError:
+        raise OpenCodeError(f"--scale {text!r} is not a comma-separated list of code numbers, e.g. 1,2,3,4,5") from None
+
+
 def _write_html(path: str, fragment: str, title: str) -> None:
     with atomic_open(path, "w") as handle:
         handle.write(f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>{html.escape(title)}'
@@ -129,13 +148,18 @@ def run_agree(args: argparse.Namespace) -> int:
         if args.adjudicate:
             _adjudicate(study, args)
             return 0
-        result = question_agreement(study, args.question, args.coders, args.sample,
-                                             n_resamples=args.resamples, random_state=args.seed, top=args.top)
+        scale = _scale_codes(args.scale)
+        result = question_agreement(study, args.question, args.coders, args.sample, n_resamples=args.resamples,
+                                    random_state=args.seed, top=args.top, level=args.level, weights=args.weights,
+                                    scale=scale)
+        if args.level:
+            remember_level(study, args.question, args.level, args.weights, scale, actor=args.actor)
         where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
         print(f"Agreement on {where}\n")
-        print(format_agreement_text(result), end="")
+        on_scale = isinstance(result, ScaleAgreementResult)
+        print((format_scale_agreement_text if on_scale else format_agreement_text)(result), end="")
         if args.csv:
-            print(f"\nwrote {write_agreement_csv(result, args.csv)}")
+            print(f"\nwrote {(write_scale_agreement_csv if on_scale else write_agreement_csv)(result, args.csv)}")
         if args.html:
             _write_html(args.html, format_agreement_html(result, f"Coder agreement: {where}"),
                         f"Coder agreement: {where}")

@@ -19,7 +19,7 @@ SMALL_BASE = 30  # common practice (no published source): read percentages on fe
 _SHOW_IDS = 20
 PHRASE_ACTIONS = ("suggest", "add", "accept", "remove")
 LEXICON_ACTIONS = ("show", "stop-add", "stop-remove", "merge", "unmerge", "stem", "language", "exception",
-                   "variants", "import", "export")
+                   "numbers", "negations", "variants", "import", "export")
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -53,7 +53,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                 "import or export it")
     lex.add_argument("study")
     lex.add_argument("action", choices=LEXICON_ACTIONS)
-    lex.add_argument("values", nargs="*", help="the words, merge ('a,b->target'), on/off, language or file")
+    lex.add_argument("values", nargs="*", help="the words, merge ('a,b->target'), on/off, language or file; "
+                     "numbers: placeholder (every number one term, shown as #number), keep (each number its own "
+                     "term) or drop; negations: keep, join (\"no damage\" becomes one term) or drop")
     where = lex.add_mutually_exclusive_group(required=True)
     where.add_argument("--question", help="the open question whose lexicon to use")
     where.add_argument("--study-default", action="store_true",
@@ -235,6 +237,10 @@ def _change(study: Study, q: str | None, args: argparse.Namespace) -> st.Lexicon
         return st.set_stemmer(study, q, stemmers[choice], actor=actor)
     if action == "language":
         return st.set_language(study, q, _one(args, "language"), actor=actor)
+    if action == "numbers":
+        return st.set_numbers(study, q, _one(args, "of placeholder, keep, drop"), actor=actor)
+    if action == "negations":
+        return st.set_negations(study, q, _one(args, "of keep, join, drop"), actor=actor)
     if action == "exception":
         word, _, stem = _one(args, "WORD or WORD=STEM").partition("=")
         return st.set_stem_exception(study, q, word, stem or None, actor=actor, remove=args.remove)

@@ -53,7 +53,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     fit = parser.add_argument_group("fit")
     size = fit.add_mutually_exclusive_group()
     size.add_argument("--k", type=int, help="the number of themes (default 10)")
-    size.add_argument("--k-range", metavar="FROM:TO", help="score each k in the range (e.g. 4:20) and recommend one")
+    size.add_argument("--k-range", metavar="FROM:TO", help="score each k in the range (e.g. 4:20) and recommend one: "
+                      "the best mean of NPMI and stability ranks, leaving out a k with a catch-all theme (the rule "
+                      "and why it chose k are printed)")
     fit.add_argument("--method", default="nmf", choices=["nmf", "lda"], help="NMF on tf-idf (default) or LDA")
     fit.add_argument("--loss", default="frobenius", choices=["frobenius", "kl"],
                      help="NMF loss: frobenius (default) or kl (Kullback-Leibler)")

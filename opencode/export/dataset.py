@@ -2,7 +2,10 @@
 
 The study maps itself onto `CodedDataset`; the writers (tabular, spss_stata, triple_s) only read it.
 Layouts: `flags` (one 0/1 indicator per code and per net, `Q_c3`) and `mentions`
-(`Q_m1..Q_mk` holding the code numbers a respondent got, with value labels).
+(`Q_m1..Q_mk` holding the code numbers a respondent got, with value labels). Respondents outside a
+question's base (no verbatim, a non-answer, not yet coded) are missing in every code column of that
+question, so a plain frequency of `Q_c3` in any statistics program gives the base and percentage of
+`oecode tables`.
 """
 
 from __future__ import annotations
@@ -45,6 +48,8 @@ class LabelledTable:
     value_labels: dict[str, dict[int | float, str]]
     missing_codes: dict[str, list[int | float]]
     code_frame: pd.DataFrame
+    measures: dict[str, str] = field(default_factory=dict)
+    question_columns: dict[str, list[str]] = field(default_factory=dict)  # question -> its 0/1 columns
 
 
 @dataclass
@@ -143,6 +148,13 @@ def question_codes(ds: CodedDataset, q: CodedQuestion) -> QuestionCodes:
     return QuestionCodes(q, frame_codes, indicators, rows, assigned)
 
 
+def question_base(ds: CodedDataset, q: CodedQuestion) -> np.ndarray:
+    """Respondents whose coding of `q` is known (its `base`; everyone when the question gives none)."""
+    if q.base is None:
+        return np.ones(ds.n_respondents, dtype=bool)
+    return np.asarray(q.base, dtype=bool)
+
+
 def category_matrix(qc: QuestionCodes, n_rows: int) -> np.ndarray:
     """Multiple-category layout: row i holds its assigned codes ascending, padded with NaN (at least one column)."""
     counts = np.bincount(qc.rows, minlength=n_rows)
@@ -223,6 +235,7 @@ def build_table(
     labels: dict[str, str] = {id_col: "Respondent id"}
     value_labels: dict[str, dict[int | float, str]] = {}
     missing: dict[str, list[int | float]] = {}
+    measures: dict[str, str] = {}
     for v in ds.closed:
         name = safe_name(v.name, taken=taken)
         columns[name] = _closed_column(v)
@@ -231,30 +244,41 @@ def build_table(
             value_labels[name] = dict(v.value_labels)
         if v.missing_codes:
             missing[name] = list(v.missing_codes)
+        measures[name] = v.measure or ("nominal" if v.value_labels else "scale")
     indicator_names: dict[tuple[str, int], str] = {}
+    question_columns: dict[str, list[str]] = {}
     for q, stem in zip(ds.questions, question_stems(ds)):
         qc = question_codes(ds, q)
+        outside = ~question_base(ds, q)
         code_labels = {c.code: c.label for c in q.frame}
+        question_columns[q.name] = []
         for j, c in enumerate(q.frame):
             name = safe_name(f"{stem}_c{c.code}", taken=taken)
             indicator_names[(q.name, c.code)] = name
-            columns[name] = qc.indicators[:, j]
+            column = qc.indicators[:, j].astype(float)
+            column[outside] = np.nan
+            columns[name] = column
             kind = "net " if c.is_net else ""
             labels[name] = f"{q.name}: {kind}{c.label}"
             value_labels[name] = dict(DICHOTOMY_LABELS)
+            measures[name] = "nominal"
+            question_columns[q.name].append(name)
         if mention_columns:
             matrix = category_matrix(qc, n)
+            matrix[outside] = np.nan
             for k in range(matrix.shape[1]):
                 name = safe_name(f"{stem}_m{k + 1}", taken=taken)
                 columns[name] = matrix[:, k]
                 labels[name] = f"{q.name}: code {k + 1} of {matrix.shape[1]}"
                 value_labels[name] = dict(code_labels)
+                measures[name] = "nominal"
         if verbatims != "omit":
             name = safe_name(f"{stem}_text", taken=taken)
             columns[name] = pd.array(verbatim_texts(q, verbatims), dtype=object)
             labels[name] = f"{q.name}: {q.label}" + (" (masked)" if verbatims == "masked" else "")
     data = pd.DataFrame(columns, copy=False)
-    return LabelledTable(data, labels, value_labels, missing, frame_table(ds, indicator_names))
+    return LabelledTable(data, labels, value_labels, missing, frame_table(ds, indicator_names), measures,
+                         question_columns)
 
 
 def sibling_path(path: str | os.PathLike, suffix: str = "-frame.csv") -> Path:

@@ -16,15 +16,15 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Mapping, Sequence
 
-import numpy as np
-
-from opencode import __version__
+from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
 from opencode.analysis.tables.study import coding_tables
 from opencode.analysis.tables.crosstab import MIN_BASE
+from opencode.analysis.tables.examples import example_verbatims as typical_verbatims
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.files.html_embed import png_img
@@ -35,14 +35,13 @@ from opencode.files.palette import OKABE_ITO
 from opencode.study.store import Study
 from opencode.study.summary import summarise
 
-QUOTE_LENGTH = (15, 280)  # example verbatims of a readable length are preferred (characters)
-
 CAUTIONS = (
     "Verbatims can identify respondents. Quoted verbatims here have e-mail addresses, phone numbers and web "
     "addresses masked, but names and other details may remain: read before sharing.",
     "Machine and rule codes are suggestions until a person accepts them; unless stated, tables count confirmed "
     "(hand) codes only.",
-    f"Percentages on bases under {MIN_BASE} are flagged (!) and not tested: read them with caution.",
+    f"Percentages on bases under {MIN_BASE} are flagged (!): read them with caution; such banner columns are "
+    "compared by Fisher's exact test only.",
     "The organisation's data-protection rules and the research codes of conduct it follows come first: "
     "they decide who may see this report and its verbatims.",
 )
@@ -131,9 +130,11 @@ def build_report(
     sections: list[tuple[str, str, str]] = []  # (anchor, title, html)
     for index, question in enumerate(coded_data.coded_questions(study, questions)):
         coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
-        body, question_notes = _question_section(coding, banners, survey_weight, agreement, quotes_per_code,
-                                                 mask_verbatims)
+        quotes = example_verbatims(study, coding, quotes_per_code, mask_verbatims)
+        body, question_notes = _question_section(coding, banners, survey_weight, agreement, quotes, mask_verbatims)
         said += question_notes
+        body += sentiment_report_section(study, question, coder=coder, include_suggestions=include_suggestions,
+                                         weight=weight, unweighted=unweighted)
         sections.append((f"q{index + 1}", f"{question}: {coding.label}", body))
     for index, section in enumerate(extra_sections):
         sections.append((f"extra{index + 1}", section.title, section.html))
@@ -146,7 +147,7 @@ def build_report(
     return target
 
 
-def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreement, quotes_per_code: int,
+def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreement, quotes: dict[int, list[str]],
                       mask: bool) -> tuple[str, list[str]]:
     """One question: notes, frame with example verbatims, frequencies and chart, banner table, agreement."""
     made = coding_tables(coding, banners, weight)
@@ -160,7 +161,7 @@ def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreem
                   css_class="oc-chart-image")
     parts.append(f'<figure class="oc-chart">{img}'
                  "<figcaption>% of respondents in the base per code; nets count a respondent once.</figcaption></figure>")
-    parts.append("<h3>Code frame with example verbatims</h3>" + _frame_table(coding, quotes_per_code, mask))
+    parts.append("<h3>Code frame with example verbatims</h3>" + _frame_table(coding, quotes, mask))
     if made.banner is not None:
         parts.append('<div class="oc-scroll">' + to_html(made.banner) + "</div>")
     if agreement and coding.question in agreement:
@@ -169,24 +170,15 @@ def _question_section(coding: coded_data.QuestionCoding, banners, weight, agreem
     return "\n".join(parts), notes
 
 
-def example_verbatims(coding: coded_data.QuestionCoding, per_code: int, mask: bool = True) -> dict[int, list[str]]:
-    """Up to `per_code` verbatims per code from the base (readable lengths first, study order), masked by default."""
-    lengths = np.array([len(t) if t else 0 for t in coding.verbatim_text])
-    readable = (lengths >= QUOTE_LENGTH[0]) & (lengths <= QUOTE_LENGTH[1])
-    matrix = coding.indicators.tocsc()
-    out: dict[int, list[str]] = {}
-    for j, code in enumerate(coding.codes):
-        rows = matrix.indices[matrix.indptr[j]:matrix.indptr[j + 1]]
-        rows = np.sort(rows[coding.answered[rows]])
-        ordered = np.concatenate([rows[readable[rows]], rows[~readable[rows]]])[:per_code]
-        texts = [coding.verbatim_text[r] or "" for r in ordered]
-        out[code.number] = [mask_identifiers(t) if mask else t for t in texts]
-    return out
+def example_verbatims(study: Study, coding: coded_data.QuestionCoding, per_code: int,
+                      mask: bool = True) -> dict[int, list[str]]:
+    """Up to `per_code` typical verbatims per code, from codes a person gave (see analysis.tables.examples)."""
+    picked = typical_verbatims(study, coding, per_code)
+    return {number: [mask_identifiers(e.text) if mask else e.text for e in found] for number, found in picked.items()}
 
 
-def _frame_table(coding: coded_data.QuestionCoding, per_code: int, mask: bool) -> str:
+def _frame_table(coding: coded_data.QuestionCoding, quotes: dict[int, list[str]], mask: bool) -> str:
     """The frame: number, label, kind, parent net, description and example verbatims."""
-    quotes = example_verbatims(coding, per_code, mask) if per_code > 0 else {}
     rows = []
     for code in sorted(coding.codes + coding.nets, key=lambda c: c.number):
         state = "" if code.active else " (retired)"

@@ -10,6 +10,11 @@ from pathlib import Path
 import numpy as np
 import pyreadstat
 
+try:
+    from pyreadstat import PyreadstatError, ReadstatError
+except ImportError:  # pyreadstat before 1.3 exports them from its parser module only
+    from pyreadstat._readstat_parser import PyreadstatError, ReadstatError
+
 from opencode.errors import OpenCodeError
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode
 from opencode.files.safe_write import atomic_path
@@ -26,7 +31,7 @@ def _format_errors(target: Path):
     """Turn a refusal by the file-format library into an error naming the file."""
     try:
         yield
-    except (pyreadstat.PyreadstatError, pyreadstat.ReadstatError) as exc:
+    except (PyreadstatError, ReadstatError) as exc:
         raise OpenCodeError(f"{target}: could not write: {exc}") from None
 
 
@@ -64,7 +69,7 @@ def write_sav(
     """Write an SPSS .sav (labels, value labels, missing codes) and the sibling frame CSV; return the paths."""
     target, table = checked_table(dataset, path, mention_columns=mention_columns, verbatims=verbatims,
                                   frame_csv=frame_csv)
-    numeric_coded = [c for c in table.value_labels if c in table.data and table.data[c].dtype.kind in "iuf"]
+    numeric = {c for c in table.data.columns if table.data[c].dtype.kind in "iuf"}
     with atomic_path(target, suffix=".sav") as tmp, _format_errors(target):
         pyreadstat.write_sav(
             table.data,
@@ -76,7 +81,7 @@ def write_sav(
                 for name, labels in table.value_labels.items()
             },
             missing_ranges=_spss_missing(table),
-            variable_measure={name: "nominal" for name in numeric_coded},
+            variable_measure={name: measure for name, measure in table.measures.items() if name in numeric},
         )
     return write_frame_beside(table, target, frame_csv)
 

@@ -11,7 +11,11 @@ Written from the published standard (Triple-S XML 2.0, December 2006, triple-s.o
   inclusive; numbers are right-justified (codes zero-filled, quantities space-filled); blank = no answer.
 - csv format: positions are 1-based field numbers; a spread multiple takes one field per subfield.
 - a multiple is a bitstring by default: one character per code from 1 to the highest code, "1" = chosen;
-  in spread layout each subfield holds one chosen code (unused subfields are zeros / empty fields).
+  in spread layout each subfield holds one chosen code (unused subfields are zeros).
+- missing data is a blank field: spaces in fixed format, an empty field in csv format (from memory). A
+  respondent outside a question's base (no verbatim, a non-answer, not yet coded) gets a blank multiple,
+  while a respondent in the base with no code gets all zeros, so counts over the non-blank records give
+  the base and percentages of `oecode tables`.
 The respondent id is the `use="serial"` variable (quantity for whole-number ids, character for text ids).
 """
 
@@ -36,6 +40,7 @@ from opencode.export.dataset import (
     CodedQuestion,
     VerbatimMode,
     check_verbatim_mode,
+    question_base,
     question_codes,
     question_stems,
     safe_name,
@@ -72,7 +77,7 @@ class TripleS:
     """A parsed Triple-S survey: header fields, variables in record order and the data as a DataFrame.
 
     Data columns: single -> Int64, quantity -> float (int64 for a whole-number serial), multiple ->
-    frozenset of chosen codes, character -> str.
+    frozenset of chosen codes (None: missing, outside the base), character -> str.
     """
 
     header: dict[str, str]
@@ -146,12 +151,14 @@ def _multiple_fields(
 ) -> tuple[SSSVariable, list[list[str]]]:
     """A question as one multiple variable over its whole frame (codes and nets): bitstring or spread."""
     qc = question_codes(ds, q)
+    outside = ~question_base(ds, q)
     labels = {int(c.code): c.label for c in q.frame}
     chosen = qc.indicators.astype(bool)
     if layout == "bitstring":
         highest = int(qc.frame_codes.max())
         bits = np.full((ds.n_respondents, highest), ord("0"), dtype=np.uint8)
         bits[:, qc.frame_codes - 1] += chosen
+        bits[outside] = ord(" ")
         text = bits.tobytes().decode("ascii")
         cells = [text[i:i + highest] for i in range(0, len(text), highest)]
         return SSSVariable("", name, q.label or q.name, "multiple", 0, 0, values=labels), [cells]
@@ -160,8 +167,10 @@ def _multiple_fields(
     chosen = chosen[:, order]
     subfields = max(1, int(chosen.sum(axis=1).max()))
     width = len(str(int(sorted_codes.max())))
-    empty = "" if data_format == "csv" else "0" * width
-    columns = [[empty] * ds.n_respondents for _ in range(subfields)]
+    blank = "" if data_format == "csv" else " " * width
+    unused = np.where(outside, blank, "0" * width).tolist()
+    columns = [list(unused) for _ in range(subfields)]
+    chosen[outside] = False
     rows, cols = np.nonzero(chosen)
     starts = np.searchsorted(rows, np.arange(ds.n_respondents))
     for r, c, k in zip(rows, cols, np.arange(len(rows)) - starts[rows]):
@@ -319,14 +328,15 @@ def _decode(var: SSSVariable, cells: list[str]) -> list:
     if var.type == "character":
         return cells
     if var.type == "multiple" and var.spread is None:
-        return [frozenset(i + 1 for i, ch in enumerate(c) if ch == "1") for c in cells]
+        return [None if not c.strip() else frozenset(i + 1 for i, ch in enumerate(c) if ch == "1") for c in cells]
     if var.type == "multiple":
         width = var.spread[1]
 
         def parts(c: str) -> list[str]:
             return c.split("\x1f") if "\x1f" in c else [c[i:i + width] for i in range(0, len(c), width)]
 
-        return [frozenset(int(p) for p in parts(c) if p.strip() and int(p) != 0) for c in cells]
+        return [None if not c.replace("\x1f", "").strip() else
+                frozenset(int(p) for p in parts(c) if p.strip() and int(p) != 0) for c in cells]
     return [np.nan if not c.strip() else float(c) for c in cells]
 
 

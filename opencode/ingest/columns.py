@@ -109,11 +109,11 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
     elif kind == "multiple":
         text = as_text(series).str.strip()
         blank = text.isin(NULL_MARKERS)
-        bad = ~blank & ~text.str.match(_MULTI_CELL)
-        if bad.any():
-            raise _bad_cell(table, name, bad, "a list of code numbers such as 1,4,12")
-        plan.values = [[] if empty else [float(c) for c in _MULTI_SPLIT.split(cell)]
-                       for cell, empty in zip(text, blank)]
+        if (blank | text.str.match(_MULTI_CELL)).all():
+            plan.values = [[] if empty else _unique([float(c) for c in _MULTI_SPLIT.split(cell)])
+                           for cell, empty in zip(text, blank)]
+        else:
+            plan.values, plan.value_labels = _label_lists(text, blank, plan.value_labels)
     elif kind == "date":
         text = as_text(series).str.strip()
         blank = text.isin(NULL_MARKERS)
@@ -127,6 +127,46 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
     else:
         raise OpenCodeError(f"{table.path}: column {name}: unknown kind {kind!r}")
     return plan
+
+
+def _unique(items: list) -> list:
+    """Items in first-seen order, each once ("Theft, Theft" is one mention)."""
+    return list(dict.fromkeys(items))
+
+
+def _label_key(label: str) -> str:
+    return " ".join(label.split()).casefold()
+
+
+def _label_lists(text: pd.Series, blank: pd.Series, known: dict[float, str]) -> tuple[list[list[float]], dict[float, str]]:
+    """Delimited labels ("Loss, Theft") as lists of codes with value labels built from them.
+
+    A label already in `known` (from the file or a data map) keeps its code, a whole number stays that code, and
+    new labels get the next free codes in alphabetical order. Labels match case- and space-insensitively; the
+    most frequent spelling (the first seen of equals) becomes the value label.
+    """
+    cells = [[] if empty else [part for part in _MULTI_SPLIT.split(cell) if part] for cell, empty in zip(text, blank)]
+    spellings: dict[str, dict[str, int]] = {}
+    numbers: set[float] = set()
+    for cell in cells:
+        for part in cell:
+            if part.isdigit():
+                numbers.add(float(part))
+                continue
+            counts = spellings.setdefault(_label_key(part), {})
+            counts[part] = counts.get(part, 0) + 1
+    code_of = {_label_key(label): code for code, label in known.items()}
+    labels = dict(known)
+    next_code = max([0.0, *known, *numbers]) + 1
+    for key in sorted(spellings, key=lambda k: (k not in code_of, k)):
+        if key not in code_of:
+            code_of[key] = next_code
+            labels[next_code] = max(spellings[key].items(), key=lambda item: item[1])[0]  # ties: first seen
+            next_code += 1
+    def code(part: str) -> float:
+        return float(part) if part.isdigit() else code_of[_label_key(part)]
+
+    return [_unique([code(part) for part in cell]) for cell in cells], labels
 
 
 def combine_dichotomies(table: RawTable, name: str, columns: list[str]) -> ColumnPlan:

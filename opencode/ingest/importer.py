@@ -26,7 +26,8 @@ from opencode.ingest.nonanswers import flag_nonanswers
 from opencode.ingest.readers import RawTable, read_survey_file
 from opencode.ingest.text_cells import respondent_keys
 from opencode.study import survey_data
-from opencode.study.store import Study
+from opencode.study.address import ServerAddress
+from opencode.study.store import Study, as_study_target, study_exists
 
 #: The largest single answer accepted (characters); a bigger cell is almost always a broken export.
 MAX_CELL_CHARS = 1_000_000
@@ -64,7 +65,7 @@ class ChangedVerbatim:
 class ImportReport:
     """What an import did."""
 
-    study_path: Path
+    study_path: Path | ServerAddress
     source: Path
     created: bool
     respondents_added: int = 0
@@ -162,7 +163,7 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
                   progress: Callable[[str], None] | None = None) -> ImportReport:
     """Import `source` into the study at `study_path` (created if missing, else merged by respondent id)."""
     say = progress or (lambda message: None)
-    study_path = Path(study_path)
+    study_path = as_study_target(study_path)
     say(f"reading {source}")
     table = read_survey_file(source, sheet=options.sheet, encoding=options.encoding, delimiter=options.delimiter,
                              text_columns=(options.id_column, *options.questions))
@@ -172,14 +173,16 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
         raise OpenCodeError(f"{table.path}: name at least one open question column (--question)")
     _check_columns(table, options)
     _check_cell_sizes(table, options)
-    report = ImportReport(study_path, Path(source), created=not study_path.exists(), encoding=table.encoding)
+    report = ImportReport(study_path, Path(source), created=not study_exists(study_path), encoding=table.encoding)
     say("writing the study")
     # Columns are converted on the second core while this thread checks the ids and SQLite writes the
     # respondents (SQLite and the Arrow string kernels release the GIL).
     with ThreadPoolExecutor(max_workers=1) as pool:
         plans = pool.submit(plan_columns, table, options)
         keys = _respondent_keys(table, options.id_column)
-        if report.created:
+        if report.created and isinstance(study_path, ServerAddress):  # created and filled in one transaction
+            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report)).close()
+        elif report.created:
             _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
         else:
             with Study.open(study_path) as study, study.transaction():
@@ -213,12 +216,10 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
 
 
 def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport) -> None:
-    existing = dict(study.db.execute("SELECT key, id FROM respondents"))
+    existing = survey_data.respondent_ids_by_key(study)
     next_id = len(existing) + 1
     new_keys = [k for k in keys if k not in existing] if existing else keys
-    # One statement over a JSON array: far faster than a Python-level insert per respondent.
-    study.db.execute("INSERT INTO respondents (id, key) SELECT ? + key, value FROM json_each(?)",
-                     (next_id, json.dumps(new_keys)))
+    survey_data.add_respondents(study, next_id, new_keys)
     report.respondents_added = len(new_keys)
     report.respondents_updated = len(keys) - len(new_keys)
     if existing:
@@ -243,7 +244,7 @@ def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]],
 
 
 def _upsert_variable(study: Study, plan: ColumnPlan, report: ImportReport) -> int:
-    row = study.db.execute("SELECT id, kind, role FROM variables WHERE name = ?", (plan.name,)).fetchone()
+    row = survey_data.variable_identity(study, plan.name)
     if row is None:
         report.variables_added.append(plan.name)
         return survey_data.add_variable(study, plan.name, label=plan.label, kind=plan.kind, role=plan.role,
@@ -253,29 +254,26 @@ def _upsert_variable(study: Study, plan: ColumnPlan, report: ImportReport) -> in
         raise OpenCodeError(f"{report.source}: column {plan.name} is {plan.kind} here but {kind} in the study "
                             f"{study.path.name}; use --kind {plan.name}={kind}")
     if plan.label:
-        study.db.execute("UPDATE variables SET label = ? WHERE id = ?", (plan.label, variable_id))
+        survey_data.set_variable_label(study, variable_id, plan.label)
     labels = survey_data.get_variable(study, plan.name).value_labels
     for code, label in plan.value_labels.items():
         labels.setdefault(code, label)
     survey_data.set_value_labels(study, variable_id, labels)
-    study.db.executemany("INSERT OR IGNORE INTO missing_codes (variable_id, code) VALUES (?, ?)",
-                         [(variable_id, float(c)) for c in plan.missing_codes])
+    survey_data.add_missing_codes(study, variable_id, plan.missing_codes)
     return variable_id
 
 
 def _write_values(study: Study, variable_id: int, plan: ColumnPlan, respondent_ids: np.ndarray, total: int) -> None:
-    row = study.db.execute("SELECT encoding, data FROM variable_data WHERE variable_id = ?", (variable_id,)).fetchone()
+    old = survey_data.stored_values(study, variable_id)
     positions = respondent_ids - 1
     if isinstance(plan.values, np.ndarray):
         values = np.full(total, np.nan)
-        if row is not None:
-            old = survey_data.decode_values(*row)
+        if old is not None:
             values[: len(old)] = old
         values[positions] = plan.values
     else:
         values = [None] * total
-        if row is not None:
-            old = survey_data.decode_values(*row)
+        if old is not None:
             values[: len(old)] = old
         for position, value in zip(positions.tolist(), plan.values):
             values[position] = value
@@ -285,25 +283,21 @@ def _write_values(study: Study, variable_id: int, plan: ColumnPlan, respondent_i
 def _write_verbatims(study: Study, question_id: int, plan: ColumnPlan, respondent_ids: np.ndarray,
                      report: ImportReport) -> None:
     texts: pd.Series = plan.values
-    has_any = study.db.execute("SELECT 1 FROM verbatims WHERE question_id = ? LIMIT 1", (question_id,)).fetchone()
+    has_any = survey_data.question_has_verbatims(study, question_id)
     consecutive = len(respondent_ids) > 0 and bool(np.all(np.diff(respondent_ids) == 1))
     if not has_any and consecutive:  # a new question over a block of respondents: one bulk statement
         # Flag non-answers on the second core while SQLite writes (both release the GIL), then mark them.
         with ThreadPoolExecutor(max_workers=1) as pool:
             pending = pool.submit(flag_nonanswers, texts)
-            study.db.execute("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) "
-                             "SELECT ?, ? + key, value, 0 FROM json_each(?)",
-                             (question_id, int(respondent_ids[0]), plan.values_json or json.dumps(texts.tolist())))
+            survey_data.add_verbatim_block(study, question_id, int(respondent_ids[0]),
+                                           plan.values_json or json.dumps(texts.tolist()))
             flags = pending.result()
-        study.db.executemany("UPDATE verbatims SET nonanswer = 1 WHERE question_id = ? AND respondent_id = ?",
-                             [(question_id, int(rid)) for rid in respondent_ids[flags]])
+        survey_data.flag_nonanswer_rows(study, question_id, respondent_ids[flags])
         report.verbatims_added += len(texts)
         report.nonanswers += int(flags.sum())
         return
     flags = flag_nonanswers(texts)
-    known = {rid: (text, key) for rid, text, key in study.db.execute(
-        "SELECT v.respondent_id, v.text, r.key FROM verbatims v JOIN respondents r ON r.id = v.respondent_id "
-        "WHERE v.question_id = ?", (question_id,))}
+    known = survey_data.verbatims_by_respondent(study, question_id)
     rows = []
     for rid, text, flag in zip(respondent_ids.tolist(), texts.tolist(), flags.tolist()):
         if rid in known:
@@ -312,7 +306,6 @@ def _write_verbatims(study: Study, question_id: int, plan: ColumnPlan, responden
                 report.changed_verbatims.append(ChangedVerbatim(plan.name, key, old_text, text))
             continue
         rows.append((question_id, rid, text, flag))
-    study.db.executemany("INSERT INTO verbatims (question_id, respondent_id, text, nonanswer) VALUES (?, ?, ?, ?)",
-                         rows)
+    survey_data.add_verbatims(study, rows)
     report.verbatims_added += len(rows)
     report.nonanswers += sum(row[3] for row in rows)

@@ -18,6 +18,12 @@ NULL_MARKERS = frozenset({"", "\\N", "NULL", "null", "NaN", "nan", "#NULL!", "."
 # Characters that break a terminal or a table: C0/C1 controls (not tab or newline) and bidi overrides.
 _BREAKS_DISPLAY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
 _NEEDS_CLEANING = "[\r" + _BREAKS_DISPLAY.pattern[1:]
+# A run of control characters between a word and a final "s" stands for a character lost in conversion, in
+# practice the apostrophe of a possessive ("entity\x1a\x1as"): it becomes ’ instead of vanishing, so the text
+# reads "entity’s" and the analyzer folds it into "entity" (dropping it would make a new word, "entitys").
+# No lookaround: pyarrow strings run the pattern with RE2, which has none; the word character and the "s" are
+# captured and written back.
+_LOST_APOSTROPHE = r"(\w)[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]+(s\b)"
 
 
 def as_text(series: pd.Series) -> pd.Series:
@@ -34,7 +40,8 @@ def clean_text(series: pd.Series) -> pd.Series:
     # Most columns hold none of these characters: one fast look, and replace only where needed.
     if text.str.contains(_NEEDS_CLEANING, regex=True).any():
         text = (text.str.replace("\r\n", "\n", regex=False).str.replace("\r", "\n", regex=False)
-                .str.replace(_BREAKS_DISPLAY.pattern, "", regex=True))
+                .str.replace(_LOST_APOSTROPHE, "\\1\u2019\\2", regex=True))
+        text = text.str.replace(_BREAKS_DISPLAY.pattern, "", regex=True)
     return text.astype(str)
 
 

@@ -30,66 +30,71 @@ def _row(values, study: Study) -> dict[str, Any]:
 
 def frame_of_question(study: Study, question_id: int) -> tuple[int, str] | None:
     """(frame id, frame name) attached to a question, or None."""
-    return study.db.execute(
+    return study._db.execute(
         "SELECT f.id, f.name FROM frame_questions fq JOIN frames f ON f.id = fq.frame_id WHERE fq.question_id = ?",
         (question_id,)).fetchone()
 
 
 def frame_by_name(study: Study, name: str) -> int | None:
     """A frame's id by name, or None."""
-    row = study.db.execute("SELECT id FROM frames WHERE name = ?", (name,)).fetchone()
+    row = study._db.execute("SELECT id FROM frames WHERE name = ?", (name,)).fetchone()
     return None if row is None else int(row[0])
+
+
+def frame_name(study: Study, frame_id: int) -> str:
+    """A frame's name by id."""
+    return study._db.execute("SELECT name FROM frames WHERE id = ?", (frame_id,)).fetchone()[0]
 
 
 def frame_names(study: Study) -> list[str]:
     """Every frame's name."""
-    return [row[0] for row in study.db.execute("SELECT name FROM frames ORDER BY name")]
+    return [row[0] for row in study._db.execute("SELECT name FROM frames ORDER BY name")]
 
 
 def insert_frame(study: Study, name: str) -> int:
     """Create an empty frame; returns its id."""
-    return int(study.db.execute("INSERT INTO frames (name) VALUES (?)", (name,)).lastrowid)
+    return int(study._db.execute("INSERT INTO frames (name) VALUES (?)", (name,)).lastrowid)
 
 
 def attach_question(study: Study, question_id: int, frame_id: int) -> None:
     """Attach (or re-attach) a question to a frame."""
-    study.db.execute("INSERT OR REPLACE INTO frame_questions (question_id, frame_id) VALUES (?, ?)",
+    study._db.execute("INSERT OR REPLACE INTO frame_questions (question_id, frame_id) VALUES (?, ?)",
                      (question_id, frame_id))
 
 
 def questions_of_frame(study: Study, frame_id: int) -> list[int]:
     """Ids of the questions sharing a frame."""
-    return [row[0] for row in study.db.execute(
+    return [row[0] for row in study._db.execute(
         "SELECT question_id FROM frame_questions WHERE frame_id = ? ORDER BY question_id", (frame_id,))]
 
 
 def code_rows(study: Study, frame_id: int) -> list[dict[str, Any]]:
     """All codes of a frame as dicts, by number."""
-    rows = study.db.execute(f"{_SELECT_CODES} WHERE frame_id = ? ORDER BY number", (frame_id,))
+    rows = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? ORDER BY number", (frame_id,))
     return [_row(r, study) for r in rows]
 
 
 def code_row(study: Study, code_id: int) -> dict[str, Any] | None:
     """One code by id, or None."""
-    found = study.db.execute(f"{_SELECT_CODES} WHERE id = ?", (code_id,)).fetchone()
+    found = study._db.execute(f"{_SELECT_CODES} WHERE id = ?", (code_id,)).fetchone()
     return None if found is None else _row(found, study)
 
 
 def code_by_number(study: Study, frame_id: int, number: int) -> dict[str, Any] | None:
     """One code by its number in a frame, or None."""
-    found = study.db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND number = ?", (frame_id, number)).fetchone()
+    found = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND number = ?", (frame_id, number)).fetchone()
     return None if found is None else _row(found, study)
 
 
 def code_by_hotkey(study: Study, frame_id: int, hotkey: str) -> dict[str, Any] | None:
     """The code holding a hotkey in a frame, or None."""
-    found = study.db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND hotkey = ?", (frame_id, hotkey)).fetchone()
+    found = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND hotkey = ?", (frame_id, hotkey)).fetchone()
     return None if found is None else _row(found, study)
 
 
 def max_number(study: Study, frame_id: int) -> int:
     """The highest code number in a frame (0 when empty)."""
-    return int(study.db.execute("SELECT COALESCE(MAX(number), 0) FROM codes WHERE frame_id = ?",
+    return int(study._db.execute("SELECT COALESCE(MAX(number), 0) FROM codes WHERE frame_id = ?",
                                 (frame_id,)).fetchone()[0])
 
 
@@ -107,7 +112,7 @@ def insert_code(study: Study, row: dict[str, Any]) -> int:
     stored = {k: v for k, v in _stored(row).items() if k in CODE_COLUMNS and not (k == "id" and v is None)}
     names = ", ".join(stored)
     marks = ", ".join("?" for _ in stored)
-    return int(study.db.execute(f"INSERT INTO codes ({names}) VALUES ({marks})", tuple(stored.values())).lastrowid)
+    return int(study._db.execute(f"INSERT INTO codes ({names}) VALUES ({marks})", tuple(stored.values())).lastrowid)
 
 
 def update_code(study: Study, code_id: int, fields: dict[str, Any]) -> None:
@@ -115,17 +120,17 @@ def update_code(study: Study, code_id: int, fields: dict[str, Any]) -> None:
     stored = {k: v for k, v in _stored(fields).items() if k in CODE_COLUMNS and k not in ("id", "frame_id")}
     if stored:
         assignments = ", ".join(f"{k} = ?" for k in stored)
-        study.db.execute(f"UPDATE codes SET {assignments} WHERE id = ?", (*stored.values(), code_id))
+        study._db.execute(f"UPDATE codes SET {assignments} WHERE id = ?", (*stored.values(), code_id))
 
 
 def delete_code(study: Study, code_id: int) -> None:
     """Remove one code row (its assignments must be gone first)."""
-    study.db.execute("DELETE FROM codes WHERE id = ?", (code_id,))
+    study._db.execute("DELETE FROM codes WHERE id = ?", (code_id,))
 
 
 def children_of(study: Study, code_id: int) -> list[dict[str, Any]]:
     """Codes and nets whose parent net is `code_id`."""
-    return [_row(r, study) for r in study.db.execute(f"{_SELECT_CODES} WHERE net_id = ? ORDER BY number", (code_id,))]
+    return [_row(r, study) for r in study._db.execute(f"{_SELECT_CODES} WHERE net_id = ? ORDER BY number", (code_id,))]
 
 
 def code_for_verbatim(study: Study, verbatim_id: int, number: int) -> tuple | None:
@@ -134,7 +139,7 @@ def code_for_verbatim(study: Study, verbatim_id: int, number: int) -> tuple | No
     None when the verbatim does not exist or its question has no frame; the code fields are None when the
     frame has no such number.
     """
-    return study.db.execute(
+    return study._db.execute(
         "SELECT fq.frame_id, c.id, c.kind, c.active, c.label FROM verbatims v "
         "JOIN frame_questions fq ON fq.question_id = v.question_id "
         "LEFT JOIN codes c ON c.frame_id = fq.frame_id AND c.number = ? WHERE v.id = ?",

@@ -14,7 +14,7 @@ _SUGGESTIONS_KEY = "text.phrase_suggestions.{}"
 
 def read_lexicon_data(study: Study, question_id: int | None) -> dict[str, Any] | None:
     """The stored lexicon dict of a question (None: the study default), or None when there is none."""
-    row = study.db.execute("SELECT data FROM lexicons WHERE question_id IS ?", (question_id,)).fetchone()
+    row = study._db.execute("SELECT data FROM lexicons WHERE question_id IS ?", (question_id,)).fetchone()
     if row is None:
         return None
     try:
@@ -29,26 +29,26 @@ def read_lexicon_data(study: Study, question_id: int | None) -> dict[str, Any] |
 
 def write_lexicon_data(study: Study, question_id: int | None, data: dict[str, Any]) -> None:
     """Store (replace) a question's lexicon dict; call inside study.transaction()."""
-    study.db.execute("DELETE FROM lexicons WHERE question_id IS ?", (question_id,))
-    study.db.execute("INSERT INTO lexicons (question_id, data, updated_at) VALUES (?, ?, ?)",
+    study._db.execute("DELETE FROM lexicons WHERE question_id IS ?", (question_id,))
+    study._db.execute("INSERT INTO lexicons (question_id, data, updated_at) VALUES (?, ?, ?)",
                      (question_id, json.dumps(data, ensure_ascii=False, sort_keys=True), now()))
 
 
 def delete_lexicon_data(study: Study, question_id: int | None) -> bool:
     """Drop a question's own lexicon (it falls back to the study default); True if there was one."""
-    cursor = study.db.execute("DELETE FROM lexicons WHERE question_id IS ?", (question_id,))
+    cursor = study._db.execute("DELETE FROM lexicons WHERE question_id IS ?", (question_id,))
     return cursor.rowcount > 0
 
 
 def save_phrase_suggestions(study: Study, question_id: int, rows: list[dict[str, Any]]) -> None:
     """Remember a question's latest phrase suggestions (derived output: not audited)."""
     with study.transaction():
-        study.db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
+        study._db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
                          (_SUGGESTIONS_KEY.format(question_id), json.dumps(rows, ensure_ascii=False)))
 
 
 def load_phrase_suggestions(study: Study, question_id: int) -> list[dict[str, Any]]:
     """The latest phrase suggestions saved for a question (empty when none were made)."""
-    row = study.db.execute("SELECT value FROM settings WHERE key = ?",
+    row = study._db.execute("SELECT value FROM settings WHERE key = ?",
                            (_SUGGESTIONS_KEY.format(question_id),)).fetchone()
     return json.loads(row[0]) if row else []

@@ -11,7 +11,7 @@ from opencode.study.store import Study, now
 def save_model(study: Study, question_id: int, meta: dict[str, Any], arrays: bytes) -> int:
     """Store a trained model for a question; returns its id (the newest model is the one used)."""
     with study.transaction():
-        cursor = study.db.execute(
+        cursor = study._db.execute(
             "INSERT INTO models (question_id, created_at, meta, arrays) VALUES (?, ?, ?, ?)",
             (question_id, now(), json.dumps(meta, ensure_ascii=False), arrays))
         model_id = int(cursor.lastrowid)
@@ -22,12 +22,12 @@ def save_model(study: Study, question_id: int, meta: dict[str, Any], arrays: byt
 
 def latest_model_id(study: Study, question_id: int) -> int | None:
     """The id of a question's newest model, or None."""
-    row = study.db.execute("SELECT MAX(id) FROM models WHERE question_id = ?", (question_id,)).fetchone()
+    row = study._db.execute("SELECT MAX(id) FROM models WHERE question_id = ?", (question_id,)).fetchone()
     return None if row[0] is None else int(row[0])
 
 
 def load_model_row(study: Study, model_id: int) -> tuple[dict[str, Any], bytes, str]:
     """(metadata, npz bytes, created_at) of one model."""
-    meta, arrays, created = study.db.execute("SELECT meta, arrays, created_at FROM models WHERE id = ?",
+    meta, arrays, created = study._db.execute("SELECT meta, arrays, created_at FROM models WHERE id = ?",
                                              (model_id,)).fetchone()
     return json.loads(meta), bytes(arrays), created

@@ -8,11 +8,12 @@ import json
 import os
 import sqlite3
 from pathlib import Path
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Callable, Iterator
 
-from opencode import __version__
+from opencode.version import __version__
 from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound, WriteFailed
 from opencode.files.targets import protect
+from opencode.study.address import ServerAddress, is_server_address, parse_address
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 SUFFIX = ".study"
@@ -29,17 +30,42 @@ def _is_locked(error: sqlite3.OperationalError) -> bool:
     return "locked" in text or "busy" in text
 
 
-class Study:
-    """One open study file. Use `Study.open` / `Study.create`; close it (or use `with`) when done."""
+if TYPE_CHECKING:  # pandas is imported only when codes are read
+    import pandas as pd
 
-    def __init__(self, path: Path, connection: sqlite3.Connection):
+
+class Study:
+    """One open study: a file (SQLite) or a schema on a PostgreSQL server, with the same API.
+
+    Use `Study.open` / `Study.create` with a path or a server address; close it (or use `with`) when done.
+    `path` is the file's Path, or the ServerAddress (str(), .name and .stem work for both in messages).
+    """
+
+    def __init__(self, path: "Path | ServerAddress", connection, dialect: str = "sqlite"):
         self.path = path
-        self.db = connection
+        self._db = connection
+        #: Which SQL the connection speaks ("sqlite" or "postgresql"); store modules branch on it only where
+        #: the two stores differ.
+        self.dialect = dialect
+
+    @property
+    def on_server(self) -> bool:
+        """Whether the study lives on a PostgreSQL server (a coding team's shared store)."""
+        return self.dialect == "postgresql"
 
     # -- opening ---------------------------------------------------------------------------------------------
     @classmethod
-    def create(cls, path: str | os.PathLike, *, overwrite: bool = False) -> "Study":
-        """Create a new empty study file at `path` (must end in .study)."""
+    def create(cls, path: "str | os.PathLike | ServerAddress", *, overwrite: bool = False,
+               fill: Callable[["Study"], None] | None = None) -> "Study":
+        """Create a new study: a file at `path` (must end in .study), or a study on a server address.
+
+        `fill(study)` writes its first contents; on a server it runs in the transaction that creates the
+        study, so a failed fill leaves no study behind.
+        """
+        if is_server_address(path):
+            from opencode.study import server
+
+            return server.create_study(cls, parse_address(path), overwrite=overwrite, fill=fill)
         target = Path(path)
         if target.suffix != SUFFIX:
             raise BadInput(f"{target}: a study file name must end in {SUFFIX}")
@@ -55,13 +81,24 @@ class Study:
         study = cls(target, connection)
         study._migrate(from_version=0)
         with study.transaction():
-            study.db.execute("INSERT INTO meta (key, value) VALUES ('created_at', ?), ('created_by', ?)",
+            study._db.execute("INSERT INTO meta (key, value) VALUES ('created_at', ?), ('created_by', ?)",
                              (now(), f"opencode {__version__}"))
+        if fill is not None:
+            try:
+                with study.transaction():
+                    fill(study)
+            except BaseException:
+                study.close()
+                raise
         return study
 
     @classmethod
     def open(cls, path: str | os.PathLike) -> "Study":
-        """Open an existing study, migrating it forward if it was written by an older opencode."""
+        """Open an existing study (a file path or a server address), migrating it forward if it is older."""
+        if is_server_address(path):
+            from opencode.study import server
+
+            return server.open_study(cls, parse_address(path))
         target = Path(path)
         if not target.is_file():
             raise StudyNotFound(f"{target}: no such study file")
@@ -94,7 +131,7 @@ class Study:
     def import_sources(self) -> list[Path]:
         """The survey files this study was imported from (absolute where recorded), so no output replaces them."""
         found: list[Path] = []
-        for (payload,) in self.db.execute("SELECT payload FROM audit WHERE actor = 'import' AND action = 'import'"):
+        for (payload,) in self._db.execute("SELECT payload FROM audit WHERE actor = 'import' AND action = 'import'"):
             try:
                 data = json.loads(payload)
             except (TypeError, ValueError):
@@ -108,7 +145,7 @@ class Study:
 
     def close(self) -> None:
         """Close the connection (the study stays consistent whether or not this runs)."""
-        self.db.close()
+        self._db.close()
 
     def __enter__(self) -> "Study":
         return self
@@ -121,20 +158,24 @@ class Study:
         """Fill a study no one else can see yet (a temporary file) without journaling; WAL again afterwards.
 
         Only for a file that is thrown away if anything fails: without a journal a failed write is not undone.
+        On a server this changes nothing (the caller's transaction already keeps a failed load invisible).
         """
-        self.db.execute("PRAGMA journal_mode = OFF")
-        self.db.execute("PRAGMA synchronous = OFF")
+        if self.on_server:
+            yield self
+            return
+        self._db.execute("PRAGMA journal_mode = OFF")
+        self._db.execute("PRAGMA synchronous = OFF")
         try:
             yield self
         finally:
-            self.db.execute("PRAGMA journal_mode = WAL")
-            self.db.execute("PRAGMA synchronous = NORMAL")
+            self._db.execute("PRAGMA journal_mode = WAL")
+            self._db.execute("PRAGMA synchronous = NORMAL")
 
     # -- schema ----------------------------------------------------------------------------------------------
     def schema_version(self) -> int:
         """The schema version this file is at."""
         try:
-            row = self.db.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
+            row = self._db.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
         except sqlite3.DatabaseError as error:
             raise OpenCodeError(f"{self.path}: is not a readable study ({error})") from error
         if row is None:
@@ -148,12 +189,17 @@ class Study:
         return version
 
     def _migrate(self, from_version: int) -> None:
+        if self.on_server:
+            from opencode.study import server
+
+            server.migrate(self, from_version)
+            return
         with self.transaction():
             for version in range(from_version, SCHEMA_VERSION):
                 for statement in _split_sql(MIGRATIONS[version]):
-                    self.db.execute(statement)
-            self.db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-            self.db.execute("INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
+                    self._db.execute(statement)
+            self._db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+            self._db.execute("INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
                             (str(SCHEMA_VERSION),))
 
     # -- transactions and audit ------------------------------------------------------------------------------
@@ -164,11 +210,20 @@ class Study:
         Takes the write lock up front (BEGIN IMMEDIATE) so a second writer waits up to the busy timeout and
         then gets a clear message instead of failing half-way.
         """
-        if self.db.in_transaction:
-            yield self.db  # nested: the outer transaction decides
+        if self._db.in_transaction:
+            yield self._db  # nested: the outer transaction decides
+            return
+        if self.on_server:  # READ COMMITTED; row locks and unique keys keep concurrent coders apart
+            self._db.begin()
+            try:
+                yield self._db
+            except BaseException:
+                self._db.rollback()
+                raise
+            self._db.commit()
             return
         try:
-            self.db.execute("BEGIN IMMEDIATE")
+            self._db.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as error:
             if _is_locked(error):
                 raise StudyBusy(
@@ -176,18 +231,18 @@ class Study:
                     "try again in a moment") from error
             raise
         try:
-            yield self.db
+            yield self._db
         except sqlite3.OperationalError as error:
-            self.db.rollback()
+            self._db.rollback()
             raise _write_error(self.path, error) from None
         except BaseException:
-            self.db.rollback()
+            self._db.rollback()
             raise
         else:
             try:
-                self.db.commit()
+                self._db.commit()
             except sqlite3.OperationalError as error:
-                self.db.rollback()
+                self._db.rollback()
                 if _is_locked(error):
                     raise StudyBusy(f"{self.path}: the study is locked by another program; try again") from error
                 raise _write_error(self.path, error) from None
@@ -195,7 +250,7 @@ class Study:
     def audit(self, actor: str, action: str, entity: str, entity_id: int | None = None,
               payload: dict[str, Any] | None = None) -> int:
         """Record one change in the audit trail (call inside the transaction making the change)."""
-        cursor = self.db.execute(
+        cursor = self._db.execute(
             "INSERT INTO audit (at, actor, action, entity, entity_id, payload) VALUES (?, ?, ?, ?, ?, ?)",
             (now(), actor, action, entity, entity_id, json.dumps(payload or {}, ensure_ascii=False)))
         return int(cursor.lastrowid)
@@ -203,7 +258,7 @@ class Study:
     # -- settings --------------------------------------------------------------------------------------------
     def get_setting(self, key: str, default: Any = None) -> Any:
         """A study setting (JSON value), or `default`."""
-        row = self.db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
+        row = self._db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
         if not row:
             return default
         try:
@@ -215,9 +270,41 @@ class Study:
         """Store a study setting (JSON-serialisable) and audit the change."""
         with self.transaction():
             old = self.get_setting(key)
-            self.db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
+            self._db.execute("INSERT OR REPLACE INTO settings (key, value) VALUES (?, ?)",
                             (key, json.dumps(value, ensure_ascii=False)))
             self.audit(actor, "set", "setting", None, {"key": key, "before": old, "after": value})
+
+    # -- reading codes (the public API's door for notebooks) ---------------------------------------------------
+    def codes(self, question: str, coder: str = "final") -> "pd.DataFrame":
+        """One coder's codes on a question: respondent (the survey's id), code, label, net, source."""
+        from opencode.study.codes_table import question_codes
+
+        return question_codes(self, question, coder)
+
+
+def as_study_target(target: "str | os.PathLike | ServerAddress") -> "Path | ServerAddress":
+    """A study argument as a Path, or as a ServerAddress when it names a server study."""
+    return parse_address(target) if is_server_address(target) else Path(target)
+
+
+def study_exists(target: "str | os.PathLike | ServerAddress") -> bool:
+    """Whether a study is at this path or address (a server is asked; a file is looked for)."""
+    if not is_server_address(target):
+        return Path(target).exists()
+    from opencode.study import server
+
+    return server.study_exists(parse_address(target))
+
+
+def read_frame(study: Study, sql: str, params=()):
+    """A query's rows as a pandas DataFrame (the same column types from either store)."""
+    import pandas as pd
+
+    if not study.on_server:
+        return pd.read_sql_query(sql, study._db, params=params)
+    cursor = study._db.execute(sql, params)
+    columns = [c.name for c in cursor.description]
+    return pd.DataFrame.from_records(cursor.fetchall(), columns=columns, coerce_float=True)
 
 
 def _write_error(path: Path, error: sqlite3.OperationalError) -> Exception:

@@ -33,10 +33,10 @@ def summarise(study: Study) -> StudySummary:
     """Counts per question and the closed-ended variables with kinds, labels and missing codes."""
     questions = []
     for question in survey_data.list_questions(study):
-        total, nonanswers = study.db.execute(
+        total, nonanswers = study._db.execute(
             "SELECT COUNT(*), COALESCE(SUM(nonanswer), 0) FROM verbatims WHERE question_id = ?",
             (question.id,)).fetchone()
-        coded = study.db.execute(
+        coded = study._db.execute(
             "SELECT COUNT(DISTINCT a.verbatim_id) FROM assignments a JOIN verbatims v ON v.id = a.verbatim_id "
             "WHERE v.question_id = ?", (question.id,)).fetchone()[0]
         questions.append(QuestionSummary(question.name, question.label, total, nonanswers, coded))

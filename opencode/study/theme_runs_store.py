@@ -48,7 +48,7 @@ def save_run(study: Study, question_id: int, method: str, k: int, params: dict[s
     """Store a run (one transaction, audited); returns its id."""
     blob = arrays_to_bytes(arrays)
     with study.transaction():
-        cursor = study.db.execute(
+        cursor = study._db.execute(
             "INSERT INTO theme_runs (question_id, created_at, method, k, params, summary, arrays) "
             "VALUES (?, ?, ?, ?, ?, ?, ?)",
             (question_id, now(), method, int(k), json.dumps(params, ensure_ascii=False),
@@ -62,7 +62,7 @@ def save_run(study: Study, question_id: int, method: str, k: int, params: dict[s
 def run_rows(study: Study, question_id: int | None = None) -> list[dict[str, Any]]:
     """Every stored run (of one question, or all) without its arrays, oldest first."""
     query = "SELECT id, question_id, created_at, method, k, params FROM theme_runs"
-    rows = study.db.execute(query + (" WHERE question_id = ?" if question_id is not None else "") + " ORDER BY id",
+    rows = study._db.execute(query + (" WHERE question_id = ?" if question_id is not None else "") + " ORDER BY id",
                             () if question_id is None else (question_id,)).fetchall()
     return [{"id": r[0], "question_id": r[1], "created_at": r[2], "method": r[3], "k": r[4],
              "params": json.loads(r[5])} for r in rows]
@@ -70,7 +70,7 @@ def run_rows(study: Study, question_id: int | None = None) -> list[dict[str, Any
 
 def load_run(study: Study, run_id: int) -> StoredRun:
     """One stored run; a clear error names the run ids there are."""
-    row = study.db.execute("SELECT id, question_id, created_at, method, k, params, summary, arrays "
+    row = study._db.execute("SELECT id, question_id, created_at, method, k, params, summary, arrays "
                            "FROM theme_runs WHERE id = ?", (int(run_id),)).fetchone()
     if row is None:
         raise OpenCodeError(f"{study.path}: no theme run {run_id} (runs: {_ids(study)})")
@@ -80,25 +80,25 @@ def load_run(study: Study, run_id: int) -> StoredRun:
 
 def delete_run(study: Study, run_id: int, actor: str = "oecode") -> None:
     """Delete a stored run (audited with its parameters)."""
-    row = study.db.execute("SELECT question_id, method, k, params FROM theme_runs WHERE id = ?",
+    row = study._db.execute("SELECT question_id, method, k, params FROM theme_runs WHERE id = ?",
                            (int(run_id),)).fetchone()
     if row is None:
         raise OpenCodeError(f"{study.path}: no theme run {run_id} (runs: {_ids(study)})")
     with study.transaction():
-        study.db.execute("DELETE FROM theme_runs WHERE id = ?", (int(run_id),))
+        study._db.execute("DELETE FROM theme_runs WHERE id = ?", (int(run_id),))
         study.audit(actor, "delete-theme-run", "theme_run", int(run_id),
                     {"question_id": row[0], "method": row[1], "k": row[2], "params": json.loads(row[3])})
 
 
 def _ids(study: Study) -> str:
     """The stored run ids as text for error messages."""
-    ids = [str(r[0]) for r in study.db.execute("SELECT id FROM theme_runs ORDER BY id")]
+    ids = [str(r[0]) for r in study._db.execute("SELECT id FROM theme_runs ORDER BY id")]
     return ", ".join(ids) if ids else "none yet"
 
 
 def run_created_at(study: Study, run_id: int) -> str:
     """When a stored run was made (ISO 8601, UTC)."""
-    row = study.db.execute("SELECT created_at FROM theme_runs WHERE id = ?", (int(run_id),)).fetchone()
+    row = study._db.execute("SELECT created_at FROM theme_runs WHERE id = ?", (int(run_id),)).fetchone()
     if row is None:
         raise OpenCodeError(f"{study.path}: no theme run {run_id} (runs: {_ids(study)})")
     return str(row[0])

@@ -1,13 +1,13 @@
 """The Analyzer: normalise, tokenize, stop lists, phrases, merges, stems, negations -> term stream.
 
-Every distinct raw token is resolved once (stemmed, checked against stop lists and merges) and the
-result kept in lookup arrays, so analysing a corpus is a few dictionary and numpy operations per
-token. Phrases and negations are applied on integer arrays, chunk by chunk.
+The Analyzer holds only its parameters (scikit-learn style). The ids of the terms and word forms met while
+analysing live in a Vocabulary (`analyzer.vocabulary()`), one per corpus, so analysing text never changes
+the analyzer. Phrases and negations are applied on integer arrays,
+chunk by chunk.
 """
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -143,19 +143,24 @@ class Analyzer:
 
     @classmethod
     def from_lexicon(cls, lexicon: Lexicon, **options: Any) -> Analyzer:
-        """An analyzer for a study lexicon; options set the remaining parameters (negations, links...)."""
-        return cls(
-            language=lexicon.language,
-            stemmer=lexicon.stemmer,
-            stop_add=list(lexicon.stop_add),
-            stop_remove=list(lexicon.stop_remove),
-            phrases=list(lexicon.phrases),
-            merges=dict(lexicon.merges),
-            stem_exceptions=dict(lexicon.stem_exceptions),
-            **options,
-        )
+        """An analyzer for a study lexicon (its numbers and negations settings included); options set or
+        override the remaining parameters (links, emoji...)."""
+        params: dict[str, Any] = {
+            "language": lexicon.language,
+            "stemmer": lexicon.stemmer,
+            "stop_add": list(lexicon.stop_add),
+            "stop_remove": list(lexicon.stop_remove),
+            "phrases": list(lexicon.phrases),
+            "merges": dict(lexicon.merges),
+            "stem_exceptions": dict(lexicon.stem_exceptions),
+            "numbers": lexicon.numbers,
+            "join_negations": lexicon.negations == "join",
+            "keep_negations": lexicon.negations != "drop",
+        }
+        params.update(options)
+        return cls(**params)
 
-    # -- preparation --------------------------------------------------------------------------------
+    # -- compiled rules and vocabularies ------------------------------------------------------------
 
     def _validate(self) -> None:
         """Check parameter values, naming the parameter and its allowed values."""
@@ -169,77 +174,129 @@ class Analyzer:
             if isinstance(getattr(self, name), str):
                 raise OpenCodeError(f"analyzer {name}: expected a list of entries, got a single string")
 
-    def _prepare(self) -> None:
-        """Build (or reuse) the lookup state for the current parameters."""
-        signature = json.dumps(self.to_dict(), sort_keys=True)
-        if getattr(self, "_signature", None) == signature:
-            return
+    def _rules(self) -> _Rules:
+        """The rules these parameters compile to (built afresh: well under a millisecond, and it keeps the
+        analyzer free of any state but its parameters)."""
         self._validate()
-        self.warnings_: list[str] = []
-        self._stem_fn = make_stemmer(self.language, self.stemmer)
-        stop = set(bundled_stop_words(self.language)) if self.stop_words else set()
-        if self.stop_words and not has_stop_list(self.language):
-            self.warnings_.append(
-                f"no bundled stop list for language {self.language!r}; only the study's own stop words apply"
+        return _Rules(self)
+
+    def vocabulary(self) -> Vocabulary:
+        """A new, empty vocabulary for analysing a corpus with these settings (term ids grow there)."""
+        return Vocabulary(self._rules())
+
+    def check(self) -> list[str]:
+        """Raise a clear error when these settings cannot analyse text (stemmer, merge loops, phrases);
+        return notes for the user about them (e.g. no bundled stop list for the language)."""
+        self.vocabulary()
+        return self.notes()
+
+    def notes(self) -> list[str]:
+        """Notes for the user about these settings (prose for a result object to carry, not analyzer state)."""
+        return list(self._rules().notes)
+
+    def tokens(self, text: str) -> list[str]:
+        """The terms of one text, in order (the stream the term-document matrix counts); the analyzer is
+        left unchanged."""
+        return self.vocabulary().terms(text)
+
+    def term_lists(self, texts: Sequence[str]) -> list[list[str]]:
+        """The terms of many texts, in order, through one vocabulary (chunk by chunk)."""
+        return self.vocabulary().term_lists(texts)
+
+    @property
+    def language_name(self) -> str:
+        """The language's full lower-case name."""
+        return language_name(self.language)
+
+
+class _Rules:
+    """What an analyzer's parameters compile to: stemmer, stop sets, merges and phrases. Built once per
+    parameter set and never changed afterwards."""
+
+    def __init__(self, analyzer: Analyzer) -> None:
+        self.notes: list[str] = []
+        self.language = analyzer.language
+        self.stem_fn = make_stemmer(analyzer.language, analyzer.stemmer)
+        self.keep_negations = bool(analyzer.keep_negations)
+        self.join_negations = bool(analyzer.join_negations)
+        self.urls, self.emails, self.numbers = analyzer.urls, analyzer.emails, analyzer.numbers
+        self.digits, self.emoji, self.min_length = analyzer.digits, analyzer.emoji, analyzer.min_length
+        stop = set(bundled_stop_words(analyzer.language)) if analyzer.stop_words else set()
+        if analyzer.stop_words and not has_stop_list(analyzer.language):
+            self.notes.append(
+                f"no bundled stop list for language {analyzer.language!r}; only the study's own stop words apply"
             )
-        stop_add = {tk.normalise(w).strip() for w in self.stop_add}
-        self._explicit_stop = stop_add
+        stop_add = {tk.normalise(w).strip() for w in analyzer.stop_add}
+        self.explicit_stop = frozenset(stop_add)
         stop |= stop_add
-        stop -= {tk.normalise(w).strip() for w in self.stop_remove}
+        stop -= {tk.normalise(w).strip() for w in analyzer.stop_remove}
         if self.keep_negations:
             stop -= {w for w in stop if tk.is_negation(w) and w not in stop_add}
-        self._stop = stop
-        self._exceptions = {tk.normalise(w): tk.normalise(s) for w, s in (self.stem_exceptions or {}).items()}
-        self._stem_cache: dict[str, str] = {}
-        self._merge_map: dict[str, str] = {}
-        self._merge_map = self._resolve_merges()
-        self._stop_keys = {self._merge_map.get(k, k) for k in (self._base_key(w) for w in stop_add) if k}
-        self._vocab: dict[str, int] = {}
-        self._kind = np.zeros(0, dtype=np.int8)
-        self._key = np.zeros(0, dtype=np.int64)
-        self._surf = np.zeros(0, dtype=np.int64)
-        self.key_names_: list[str] = []
-        self._key_ids: dict[str, int] = {}
-        self.surface_names_: list[str] = []
-        self._surface_ids: dict[str, int] = {}
-        self._phrase_parts: dict[tuple[str, ...], str] = {}
-        self._matcher = self._build_matcher()
-        self._signature = signature
+        self.stop = frozenset(stop)
+        self.exceptions = {tk.normalise(w): tk.normalise(s) for w, s in (analyzer.stem_exceptions or {}).items()}
+        self._stems: dict[str, str] = {}
+        self.merge_map = self._resolve_merges(analyzer.merges or {})
+        self.stop_keys = frozenset(self.merge_map.get(k, k) for k in (self.base_key(w) for w in stop_add) if k)
+        self.phrases: list[tuple[str, list[str], str]] = []
+        self.phrase_parts: dict[tuple[str, ...], str] = {}
+        for phrase in analyzer.phrases:
+            words = self.words_of(phrase)
+            if len(words) < 2:
+                raise OpenCodeError(f"phrase {phrase!r}: a phrase needs at least two words")
+            name = "_".join(self.phrase_word(w) for w in words)
+            name = self.merge_map.get(name, name)
+            self.phrases.append((phrase, words, name))
+            self.phrase_parts[tuple(self.stem(self.strip_possessive(w)) for w in words)] = name
+        self._stems = {}  # the compile-time memo is dropped: a vocabulary keeps its own
 
-    def _stem(self, word: str) -> str:
-        """Stem of one word (cached; exceptions first; hyphenated words stem each part)."""
-        cached = self._stem_cache.get(word)
+    @staticmethod
+    def words_of(text: str) -> list[str]:
+        """The cleaned word forms of a lexicon entry (punctuation and separators left out)."""
+        return [f for kind, f in (tk.classify(t) for t in tk.TOKEN_RE.findall(tk.normalise(text)))
+                if kind not in (tk.SEP, tk.BOUND, tk.DROP)]
+
+    def phrase_word(self, form: str) -> str:
+        """A phrase word as it names the phrase term: a number or link stands as its placeholder when the
+        settings turn it into one (the phrase "unit 1" matches "unit 579" too, so it is named unit_#number)."""
+        kind, _ = tk.classify(form)
+        if kind == tk.NUM and self.numbers == "placeholder":
+            return tk.NUMBER_PLACEHOLDER
+        return form
+
+    def stem(self, word: str, cache: dict[str, str] | None = None) -> str:
+        """Stem of one word (exceptions first; hyphenated words stem each part)."""
+        cache = self._stems if cache is None else cache
+        cached = cache.get(word)
         if cached is not None:
             return cached
-        if word in self._exceptions:
-            stem = self._exceptions[word]
+        if word in self.exceptions:
+            stem = self.exceptions[word]
         elif "-" in word:
-            stem = "_".join(self._stem(part) for part in word.split("-") if part)
-        elif self._stem_fn is None or "'" in word:
+            stem = "_".join(self.stem(part, cache) for part in word.split("-") if part)
+        elif self.stem_fn is None or "'" in word:
             stem = word
         else:
-            stem = self._stem_fn(word)
-        self._stem_cache[word] = stem
+            stem = self.stem_fn(word)
+        cache[word] = stem
         return stem
 
     @staticmethod
-    def _strip_possessive(form: str) -> str:
+    def strip_possessive(form: str) -> str:
         """people's -> people, parents' -> parents."""
         if form.endswith("'s"):
             return form[:-2]
         return form.rstrip("'")
 
-    def _base_key(self, text: str) -> str:
+    def base_key(self, text: str) -> str:
         """The unmerged term key of a word or a multi-word entry (words joined with '_')."""
-        words = [f for kind, f in (tk.classify(t) for t in tk.TOKEN_RE.findall(tk.normalise(text)))
-                 if kind not in (tk.SEP, tk.BOUND, tk.DROP)]
-        return "_".join(words) if len(words) > 1 else (self._stem(self._strip_possessive(words[0])) if words else "")
+        words = self.words_of(text)
+        return "_".join(words) if len(words) > 1 else (self.stem(self.strip_possessive(words[0])) if words else "")
 
-    def _resolve_merges(self) -> dict[str, str]:
+    def _resolve_merges(self, merges: dict[str, str]) -> dict[str, str]:
         """Merge map on term keys, chains followed (a -> b -> c gives a -> c); cycles are an error."""
         direct = {}
-        for source, target in (self.merges or {}).items():
-            s, t = self._base_key(source), self._base_key(target)
+        for source, target in merges.items():
+            s, t = self.base_key(source), self.base_key(target)
             if not s or not t:
                 raise OpenCodeError(f"merge {source!r} -> {target!r}: both sides need a word")
             if s != t:
@@ -255,94 +312,104 @@ class Analyzer:
             resolved[s] = t
         return resolved
 
-    def _key_id(self, name: str) -> int:
+
+class Vocabulary:
+    """The growing part of analysis: ids of the raw tokens, term keys and surface forms met so far.
+
+    Every distinct raw token is resolved once (stemmed, checked against stop lists and merges) and the result
+    kept in lookup arrays, so analysing a corpus is a few dictionary and numpy operations per token. One
+    vocabulary serves one corpus (or one text); the analyzer that made it is not changed by using it.
+    """
+
+    def __init__(self, rules: _Rules) -> None:
+        self.rules = rules
+        self._raw: dict[str, int] = {}
+        self._kind = np.zeros(0, dtype=np.int8)
+        self._key = np.zeros(0, dtype=np.int64)
+        self._surf = np.zeros(0, dtype=np.int64)
+        self._stems: dict[str, str] = {}
+        self.key_names: list[str] = []
+        self._key_ids: dict[str, int] = {}
+        self.surface_names: list[str] = []
+        self._surface_ids: dict[str, int] = {}
+        self.phrase_keys: dict[str, int] = {}
+        table: dict[tuple[int, ...], int] = {}
+        for phrase, words, name in rules.phrases:
+            ids = tuple(self._resolve(w)[1] for w in words)
+            table[ids] = self.key_id(name)
+            self.phrase_keys[phrase] = table[ids]
+        self._matcher = PhraseMatcher(table)
+
+    def key_id(self, name: str) -> int:
         """Id of a term key, added on first sight."""
         kid = self._key_ids.get(name)
         if kid is None:
-            kid = self._key_ids[name] = len(self.key_names_)
-            self.key_names_.append(name)
+            kid = self._key_ids[name] = len(self.key_names)
+            self.key_names.append(name)
         return kid
 
-    def _surface_id(self, form: str) -> int:
+    def surface_id(self, form: str) -> int:
         """Id of a surface form, added on first sight."""
         sid = self._surface_ids.get(form)
         if sid is None:
-            sid = self._surface_ids[form] = len(self.surface_names_)
-            self.surface_names_.append(form)
+            sid = self._surface_ids[form] = len(self.surface_names)
+            self.surface_names.append(form)
         return sid
 
     def _resolve(self, token: str) -> tuple[int, int, int]:
         """Kind, term key id and surface id of one distinct raw token."""
+        rules = self.rules
         kind, form = tk.classify(token)
         if kind == tk.SEP:
             return K_SEP, -1, -1
         if kind in (tk.BOUND, tk.DROP):
             return (K_BOUND if kind == tk.BOUND else K_DROP), -1, -1
-        surf = self._surface_id(form)
+        surf = self.surface_id(form)
         if kind == tk.PLACEHOLDER:
-            return K_TERM, self._key_id(form), surf
+            return K_TERM, self.key_id(form), surf
         if kind == tk.EMOJI:
-            return (K_TERM if self.emoji == "keep" else K_DROP), self._key_id(form), surf
+            return (K_TERM if rules.emoji == "keep" else K_DROP), self.key_id(form), surf
         if kind == tk.NUM:
-            if self.numbers == "drop":
-                return K_DROP, self._key_id(tk.NUMBER_PLACEHOLDER), surf
-            name = tk.NUMBER_PLACEHOLDER if self.numbers == "placeholder" else form
-            return K_TERM, self._key_id(name), surf
-        base = self._strip_possessive(form)
-        key = self._stem(base)
-        parts = tuple(self._stem(p) for p in base.split("-") if p) if "-" in base else ()
-        key = self._phrase_parts.get(parts, key)
-        key = self._merge_map.get(key, key)
-        kid = self._key_id(key)
-        if self.keep_negations and tk.is_negation(form) and form not in self._explicit_stop:
-            return K_NEG, self._key_id(form), surf
-        if form in self._stop or base in self._stop or key in self._stop_keys:
+            if rules.numbers == "drop":
+                return K_DROP, self.key_id(tk.NUMBER_PLACEHOLDER), surf
+            name = tk.NUMBER_PLACEHOLDER if rules.numbers == "placeholder" else form
+            return K_TERM, self.key_id(name), surf
+        base = rules.strip_possessive(form)
+        key = rules.stem(base, self._stems)
+        parts = tuple(rules.stem(p, self._stems) for p in base.split("-") if p) if "-" in base else ()
+        key = rules.phrase_parts.get(parts, key)
+        key = rules.merge_map.get(key, key)
+        kid = self.key_id(key)
+        if rules.keep_negations and tk.is_negation(form) and form not in rules.explicit_stop:
+            return K_NEG, self.key_id(form), surf
+        if form in rules.stop or base in rules.stop or key in rules.stop_keys:
             return K_STOP, kid, surf
-        if (len(base) < self.min_length) or (self.digits == "drop" and any(c.isdigit() for c in base)):
+        if (len(base) < rules.min_length) or (rules.digits == "drop" and any(c.isdigit() for c in base)):
             return K_DROP, kid, surf
         return K_TERM, kid, surf
-
-    def _build_matcher(self) -> PhraseMatcher:
-        """The phrase matcher for the user phrases (key-id sequences -> phrase key id)."""
-        table: dict[tuple[int, ...], int] = {}
-        self.phrase_keys_: dict[str, int] = {}
-        for phrase in self.phrases:
-            words = [f for kind, f in (tk.classify(t) for t in tk.TOKEN_RE.findall(tk.normalise(phrase)))
-                     if kind not in (tk.SEP, tk.BOUND, tk.DROP)]
-            if len(words) < 2:
-                raise OpenCodeError(f"phrase {phrase!r}: a phrase needs at least two words")
-            name = "_".join(words)
-            name = self._merge_map.get(name, name)
-            ids = tuple(self._resolve(w)[1] for w in words)
-            table[ids] = self._key_id(name)
-            self.phrase_keys_[phrase] = table[ids]
-            self._phrase_parts[tuple(self._stem(self._strip_possessive(w)) for w in words)] = name
-        return PhraseMatcher(table)
 
     def _extend_lookups(self) -> None:
         """Resolve raw tokens first seen in the latest chunk."""
         start = len(self._kind)
-        if start == len(self._vocab):
+        if start == len(self._raw):
             return
-        new = list(self._vocab)[start:]
+        new = list(self._raw)[start:]
         resolved = np.array([self._resolve(t) for t in new], dtype=np.int64).reshape(-1, 3)
         self._kind = np.concatenate([self._kind, resolved[:, 0].astype(np.int8)])
         self._key = np.concatenate([self._key, resolved[:, 1]])
         self._surf = np.concatenate([self._surf, resolved[:, 2]])
 
-    # -- analysis -----------------------------------------------------------------------------------
-
     def stream_chunk(self, texts: Sequence[str]) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[int, int]]:
         """Kind, term key id and surface id of every token position (separators included) of a batch,
         with phrases and negations applied, plus how often each phrase key matched."""
-        self._prepare()
-        raw = tk.tokenize_chunk(texts, self.urls, self.emails, self._vocab)
+        rules = self.rules
+        raw = tk.tokenize_chunk(texts, rules.urls, rules.emails, self._raw)
         self._extend_lookups()
         kind = self._kind[raw]
         key = self._key[raw]
         surf = self._surf[raw]
         hits = self._matcher.apply(kind, key, surf, self)
-        if self.join_negations:
+        if rules.join_negations:
             join_negations(kind, key, surf, self)
         return kind, key, surf, hits
 
@@ -351,8 +418,8 @@ class Analyzer:
         kind, key, surf, hits = self.stream_chunk(texts)
         doc = np.cumsum(kind == K_SEP, dtype=np.int64)
         keep = (kind == K_TERM) | (kind == K_NEG)
-        if self._stop_keys:
-            stop_ids = [self._key_ids[k] for k in self._stop_keys if k in self._key_ids]
+        if self.rules.stop_keys:
+            stop_ids = [self._key_ids[k] for k in self.rules.stop_keys if k in self._key_ids]
             keep &= ~np.isin(key, stop_ids)
         return Chunk(doc=doc[keep], key=key[keep], surf=surf[keep], n_docs=len(texts), phrase_hits=hits)
 
@@ -361,12 +428,17 @@ class Analyzer:
         for start, batch in batches(texts, progress):
             yield start, self.analyse_chunk(batch)
 
-    def tokens(self, text: str) -> list[str]:
-        """The terms of one text, in order (the stream the term-document matrix counts)."""
-        chunk = self.analyse_chunk([text])
-        return [self.key_names_[k] for k in chunk.key]
+    def terms(self, text: str) -> list[str]:
+        """The terms of one text, in order."""
+        chunk = self.analyse_chunk([text if isinstance(text, str) else ""])
+        return [self.key_names[k] for k in chunk.key]
 
-    @property
-    def language_name(self) -> str:
-        """The language's full lower-case name."""
-        return language_name(self.language)
+    def term_lists(self, texts: Sequence[str]) -> list[list[str]]:
+        """The terms of many texts, in order (chunk by chunk)."""
+        out: list[list[str]] = [[] for _ in texts]
+        for start, chunk in self.iter_chunks(list(texts)):
+            names = np.asarray(self.key_names, dtype=object)[chunk.key]
+            bounds = np.searchsorted(chunk.doc, np.arange(chunk.n_docs + 1))
+            for i in range(chunk.n_docs):
+                out[start + i] = names[bounds[i]:bounds[i + 1]].tolist()
+        return out

@@ -11,7 +11,7 @@ from opencode.errors import OpenCodeError
 from opencode.text.matrix import TermMatrix
 from opencode.files.textout import format_table
 from opencode.text.tokenize import (
-    EMAIL_PLACEHOLDER, EMAIL_RE, NEGATIONS, NUMBER_PLACEHOLDER, URL_PLACEHOLDER, URL_RE, is_negation,
+    EMAIL_PLACEHOLDER, EMAIL_RE, NEGATIONS, NUMBER_PLACEHOLDER, PLACEHOLDERS, URL_PLACEHOLDER, URL_RE, is_negation,
 )
 
 _GAP = r"[^\w.!?;:,]+(?:[\w'’\-]+[^\w.!?;:,]+){0,6}?"  # words allowed between a negation and its term
@@ -33,8 +33,8 @@ def _word_pattern(word: str) -> str:
         return URL_RE.pattern
     if word == EMAIL_PLACEHOLDER:
         return EMAIL_RE.pattern
-    if word == NUMBER_PLACEHOLDER:
-        return r"\d+(?:[.,:/]\d+)*"
+    if word == NUMBER_PLACEHOLDER:  # a number token as the tokenizer reads one (not part of "3-day")
+        return r"(?<![\w'’\-])\d+(?:[.,:/]\d+)*(?:st|nd|rd|th|am|pm|s|k)?(?![\w'’\-])"
     escaped = re.escape(word).replace("'", "['’]").replace(r"\-", r"[-\s]?")
     return escaped
 
@@ -52,12 +52,27 @@ def surface_pattern(forms: Sequence[str]) -> re.Pattern[str]:
     return re.compile(r"(?<![\w'’])(?:" + "|".join(alternatives) + r")(?![\w])", re.IGNORECASE)
 
 
+def _forms(tm: TermMatrix, col: int, term: str) -> list[str]:
+    """The word forms to look for: all of the column's, except where the column stands for many values.
+    A placeholder typed as itself (#number) finds every number; a literal number typed (2014, or a phrase
+    holding one such as "unit 1") finds that number only, not every number the placeholder stands for."""
+    name = tm.terms[col]
+    if name in PLACEHOLDERS:
+        typed = " ".join(term.split()).casefold()
+        return [name] if typed in (name, tm.labels[col]) else [typed]
+    if any(p in name for p in PLACEHOLDERS):
+        typed = " ".join(term.split()).casefold()
+        forms = [form for form, _ in tm.surfaces[col]]
+        return [typed] if typed in forms else forms
+    return [form for form, _ in tm.surfaces[col]]
+
+
 def kwic(tm: TermMatrix, texts: Sequence[str], term: str, width: int = 40, limit: int | None = None) -> list[KwicLine]:
     """Occurrences of a term in the verbatims that contain it; texts is the sequence given to build_matrix."""
     if len(texts) != tm.n_input:
         raise OpenCodeError(f"kwic got {len(texts)} verbatims but the matrix was built from {tm.n_input}")
     col = tm.column(term)
-    pattern = surface_pattern([form for form, _ in tm.surfaces[col]])
+    pattern = surface_pattern(_forms(tm, col, term))
     column = tm.counts[:, col]
     lines: list[KwicLine] = []
     rows = sorted(column.nonzero()[0])

@@ -9,19 +9,31 @@ Stored as a JSON-safe dict, exchanged as a small sectioned plain-text file of ou
     [phrases]       multi-word terms, e.g. opening hours
     [merges]        source -> target   (e.g. libary -> library)
     [stems]         word -> forced stem   (or "word ->" to keep the word as it is)
+    [numbers]       placeholder (every number is one term, shown as #number), keep (each number a term of
+                    its own, e.g. a year) or drop
+    [negations]     keep (negation words stay terms: "no", "not"), join (joined to the next term: "no damage"
+                    is one term) or drop (negation words are stop words)
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
 from opencode.errors import OpenCodeError
 
-_SECTIONS = ("language", "stemmer", "stop+", "stop-", "phrases", "merges", "stems")
+_SECTIONS = ("language", "stemmer", "stop+", "stop-", "phrases", "merges", "stems", "numbers", "negations")
+NUMBER_OPTIONS = ("placeholder", "keep", "drop")
+NEGATION_OPTIONS = ("keep", "join", "drop")
+#: Settings added after the first lexicons were stored: left out of the version hash while at their default,
+#: so a lexicon that does not use them keeps the hash it always had.
+_LATER_DEFAULTS = {"numbers": "placeholder", "negations": "keep"}
 _ARROW = "->"
+# A comment starts with "#" at the start of a line or after a space, except a placeholder term (#number...).
+_COMMENT = re.compile(r"(?:^|(?<=\s))#(?!(?:number|url|email)\b).*$")
 
 
 def _clean_words(words: Any, what: str) -> list[str]:
@@ -55,6 +67,8 @@ class Lexicon:
     phrases: list[str] = field(default_factory=list)
     merges: dict[str, str] = field(default_factory=dict)
     stem_exceptions: dict[str, str] = field(default_factory=dict)
+    numbers: str = "placeholder"
+    negations: str = "keep"
 
     def __post_init__(self) -> None:
         self.language = str(self.language).strip().lower()
@@ -70,6 +84,11 @@ class Lexicon:
                 raise OpenCodeError(f"lexicon phrase {phrase!r}: a phrase needs at least two words")
         self.merges = _clean_map(self.merges, "merges")
         self.stem_exceptions = _clean_map(self.stem_exceptions, "stems")
+        for name, allowed in (("numbers", NUMBER_OPTIONS), ("negations", NEGATION_OPTIONS)):
+            value = str(getattr(self, name)).strip().lower()
+            if value not in allowed:
+                raise OpenCodeError(f"lexicon {name} {getattr(self, name)!r}: choose one of {', '.join(allowed)}")
+            setattr(self, name, value)
 
     def to_dict(self) -> dict[str, Any]:
         """A JSON-safe dict of the lexicon."""
@@ -81,6 +100,8 @@ class Lexicon:
             "phrases": list(self.phrases),
             "merges": dict(self.merges),
             "stem_exceptions": dict(self.stem_exceptions),
+            "numbers": self.numbers,
+            "negations": self.negations,
         }
 
     @classmethod
@@ -93,7 +114,8 @@ class Lexicon:
 
     def version_hash(self) -> str:
         """A stable hash of the lexicon's content (same content, same hash, on every machine)."""
-        payload = json.dumps(self.to_dict(), sort_keys=True, ensure_ascii=True, separators=(",", ":"))
+        data = {k: v for k, v in self.to_dict().items() if _LATER_DEFAULTS.get(k, object()) != v}
+        payload = json.dumps(data, sort_keys=True, ensure_ascii=True, separators=(",", ":"))
         return hashlib.sha256(payload.encode("ascii")).hexdigest()[:16]
 
     def to_text(self) -> str:
@@ -106,6 +128,7 @@ class Lexicon:
         lines.extend(f"{s} {_ARROW} {t}" for s, t in self.merges.items())
         lines.append("[stems]")
         lines.extend(f"{w} {_ARROW}" if w == s else f"{w} {_ARROW} {s}" for w, s in self.stem_exceptions.items())
+        lines += ["[numbers]", self.numbers, "[negations]", self.negations]
         return "\n".join(lines) + "\n"
 
     @classmethod
@@ -114,7 +137,7 @@ class Lexicon:
         sections: dict[str, list[tuple[int, str]]] = {name: [] for name in _SECTIONS}
         current = None
         for number, raw in enumerate(text.splitlines(), start=1):
-            line = raw.split("#", 1)[0].strip()
+            line = _COMMENT.sub("", raw).strip()
             if not line:
                 continue
             if line.startswith("[") and line.endswith("]"):
@@ -129,7 +152,8 @@ class Lexicon:
                 raise OpenCodeError(f"{source}, line {number}: {line!r} comes before any [section]")
             sections[current].append((number, line))
         fields: dict[str, Any] = {}
-        for name, key in (("language", "language"), ("stemmer", "stemmer")):
+        for name, key in (("language", "language"), ("stemmer", "stemmer"), ("numbers", "numbers"),
+                          ("negations", "negations")):
             entries = sections[name]
             if len(entries) > 1:
                 raise OpenCodeError(f"{source}, line {entries[1][0]}: [{name}] takes one line")

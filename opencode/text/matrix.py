@@ -20,8 +20,9 @@ from sklearn.feature_extraction.text import TfidfTransformer
 
 from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer, Progress
+from opencode.text.tokenize import term_label
 
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # 2: placeholders are named #number, #url, #email and shown as such
 WEIGHTINGS = ("count", "tfidf")
 _SHOW_IDS = 10
 
@@ -186,15 +187,16 @@ def build_matrix(
     n_docs = len(docs)
     low, high = _df_limit(min_df, n_docs, "min_df"), _df_limit(max_df, n_docs, "max_df")
 
+    vocabulary = analyzer.vocabulary()
     rows, cols, data, skeys, ssurf, scount = [], [], [], [], [], []
     hits: dict[int, int] = {}
-    for start, chunk in analyzer.iter_chunks(docs, progress):
-        width = len(analyzer.key_names_)
+    for start, chunk in vocabulary.iter_chunks(docs, progress):
+        width = len(vocabulary.key_names)
         uniq, cnt = np.unique(chunk.doc * width + chunk.key, return_counts=True)
         rows.append(uniq // width + start)
         cols.append(uniq % width)
         data.append(cnt)
-        swidth = len(analyzer.surface_names_)
+        swidth = len(vocabulary.surface_names)
         suniq, scnt = np.unique(chunk.key * swidth + chunk.surf, return_counts=True)
         skeys.append(suniq // swidth)
         ssurf.append(suniq % swidth)
@@ -202,14 +204,14 @@ def build_matrix(
         for pid, n in chunk.phrase_hits.items():
             hits[pid] = hits.get(pid, 0) + n
 
-    n_keys = len(analyzer.key_names_)
+    n_keys = len(vocabulary.key_names)
     row = np.concatenate(rows)
     col = np.concatenate(cols)
     val = np.concatenate(data).astype(np.int32)
     df = np.bincount(col, minlength=n_keys)
     keep_key = (df > 0) & (df >= low) & (df <= high)
     kept = np.flatnonzero(keep_key)
-    names = np.array(analyzer.key_names_, dtype=object)[kept]
+    names = np.array(vocabulary.key_names, dtype=object)[kept]
     order = np.argsort(names, kind="stable")
     col_of_key = np.full(n_keys, -1, dtype=np.int64)
     col_of_key[kept[order]] = np.arange(len(kept))
@@ -218,8 +220,8 @@ def build_matrix(
     counts = sp.csr_matrix((val[ok], (row[ok], new_col[ok])), shape=(n_docs, len(kept)), dtype=np.int32)
     counts.sort_indices()
 
-    warnings = list(analyzer.warnings_)
-    for phrase, pid in analyzer.phrase_keys_.items():
+    warnings = analyzer.notes()
+    for phrase, pid in vocabulary.phrase_keys.items():
         if hits.get(pid, 0) == 0:
             warnings.append(f"phrase {phrase!r} never occurs in the {n_docs} verbatims analysed")
     if len(kept) == 0:
@@ -234,9 +236,9 @@ def build_matrix(
         warnings.append(f"{len(empty_ids)} verbatim(s) have no term left after the lexicon: {shown}")
 
     surfaces = _surface_table(np.concatenate(skeys), np.concatenate(ssurf), np.concatenate(scount),
-                              col_of_key, len(kept), analyzer.surface_names_)
+                              col_of_key, len(kept), vocabulary.surface_names)
     terms = [str(t) for t in names[order]]
-    labels = [forms[0][0] if forms else t for forms, t in zip(surfaces, terms)]
+    labels = [term_label(t, forms[0][0]) if forms else t for forms, t in zip(surfaces, terms)]
     return TermMatrix(
         counts=counts, terms=terms, labels=labels, surfaces=surfaces,
         doc_ids=[ids[i] for i in rows_source], rows_source=rows_source, n_input=len(texts),

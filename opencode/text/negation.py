@@ -13,12 +13,12 @@ import numpy as np
 from opencode.text.tokenize import negation_prefix
 
 if TYPE_CHECKING:
-    from opencode.text.analyzer import Analyzer
+    from opencode.text.analyzer import Vocabulary
 
 _SEP, _BOUND, _TERM, _NEG, _GONE = 0, 1, 3, 5, 6  # analyzer kinds
 
 
-def join_negations(kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> None:
+def join_negations(kind: np.ndarray, key: np.ndarray, surf: np.ndarray, vocabulary: Vocabulary) -> None:
     """In place: each negation followed by a content term before the clause ends becomes one term."""
     neg_pos = np.flatnonzero(kind == _NEG)
     if len(neg_pos) == 0:
@@ -41,9 +41,9 @@ def join_negations(kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer
     neg_pos, target = neg_pos[last], target[last]
     pair = np.stack([key[neg_pos], key[target], surf[neg_pos], surf[target]], axis=1)
     uniq, inverse = np.unique(pair, axis=0, return_inverse=True)
-    names, forms = analyzer.key_names_, analyzer.surface_names_
-    new_key = np.array([analyzer._key_id(f"{negation_prefix(names[n])}_{names[t]}") for n, t, _, _ in uniq],
+    names, forms = vocabulary.key_names, vocabulary.surface_names
+    new_key = np.array([vocabulary.key_id(f"{negation_prefix(names[n])}_{names[t]}") for n, t, _, _ in uniq],
                        dtype=np.int64)
-    new_surf = np.array([analyzer._surface_id(f"{forms[a]} {forms[b]}") for _, _, a, b in uniq], dtype=np.int64)
+    new_surf = np.array([vocabulary.surface_id(f"{forms[a]} {forms[b]}") for _, _, a, b in uniq], dtype=np.int64)
     key[target] = new_key[inverse.ravel()]
     surf[target] = new_surf[inverse.ravel()]

@@ -14,9 +14,10 @@ import numpy as np
 from scipy.special import xlogy
 
 from opencode.files.textout import format_table
+from opencode.text.tokenize import term_label
 
 if TYPE_CHECKING:
-    from opencode.text.analyzer import Analyzer, Progress
+    from opencode.text.analyzer import Analyzer, Progress, Vocabulary
 
 _GONE = 6  # analyzer.K_GONE (kept here to avoid an import cycle)
 _TERM = 3  # analyzer.K_TERM
@@ -75,16 +76,17 @@ class PhraseMatcher:
             kept.append((length, starts, pids))
         return kept
 
-    def apply(self, kind: np.ndarray, key: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int, int]:
+    def apply(self, kind: np.ndarray, key: np.ndarray, surf: np.ndarray, vocabulary: Vocabulary) -> dict[int, int]:
         """Merge matched phrases in place (first position becomes the phrase term, the rest are gone)."""
         hits: dict[int, int] = {}
-        names = analyzer.surface_names_
+        names = vocabulary.surface_names
         for length, starts, pids in self.resolve(self.find(key), len(key)):
             if len(starts) == 0:
                 continue
             window = surf[starts[:, None] + np.arange(length)]
             uniq, inverse = np.unique(window, axis=0, return_inverse=True)
-            ids = np.array([analyzer._surface_id(" ".join(names[s] for s in row)) for row in uniq], dtype=np.int64)
+            ids = np.array([vocabulary.surface_id(" ".join(names[s] for s in row)) for row in uniq],
+                           dtype=np.int64)
             surf[starts] = ids[inverse.ravel()]
             key[starts] = pids
             kind[starts] = _TERM
@@ -137,11 +139,12 @@ def suggest_phrases(
     from opencode.text.matrix import check_corpus
 
     texts = [t for t, gone in zip(texts, check_corpus(texts, exclude)) if not gone]
+    vocabulary = analyzer.vocabulary()
     pair_keys: list[np.ndarray] = []
     uni_keys: list[np.ndarray] = []
     uni_surf: list[np.ndarray] = []
     for _, batch in batches(texts, progress):
-        kind, key, surf, _ = analyzer.stream_chunk(batch)
+        kind, key, surf, _ = vocabulary.stream_chunk(batch)
         content = kind == _TERM
         both = content[:-1] & content[1:]
         pair_keys.append(np.stack([key[:-1][both], key[1:][both]], axis=1))
@@ -152,16 +155,16 @@ def suggest_phrases(
         return []
     uniq, counts = np.unique(pairs, axis=0, return_counts=True)
     n = float(len(pairs))
-    first = np.bincount(pairs[:, 0], minlength=len(analyzer.key_names_))
-    second = np.bincount(pairs[:, 1], minlength=len(analyzer.key_names_))
+    first = np.bincount(pairs[:, 0], minlength=len(vocabulary.key_names))
+    second = np.bincount(pairs[:, 1], minlength=len(vocabulary.key_names))
     keep = counts >= min_count
     uniq, counts = uniq[keep], counts[keep]
     a, b = first[uniq[:, 0]], second[uniq[:, 1]]
     g2 = dunning_g2(counts, a - counts, b - counts, n - a - b + counts)
     scores = pmi(counts, a, b, n)
-    labels = _labels(np.concatenate(uni_keys), np.concatenate(uni_surf), analyzer)
+    labels = _labels(np.concatenate(uni_keys), np.concatenate(uni_surf), vocabulary)
     order = np.lexsort((-scores, -g2))[:top]
-    names = analyzer.key_names_
+    names = vocabulary.key_names
     return [
         PhraseSuggestion(
             phrase=f"{labels.get(int(uniq[i, 0]), names[uniq[i, 0]])} {labels.get(int(uniq[i, 1]), names[uniq[i, 1]])}",
@@ -174,14 +177,14 @@ def suggest_phrases(
     ]
 
 
-def _labels(keys: np.ndarray, surf: np.ndarray, analyzer: Analyzer) -> dict[int, str]:
-    """Most frequent surface form of each term key id."""
+def _labels(keys: np.ndarray, surf: np.ndarray, vocabulary: Vocabulary) -> dict[int, str]:
+    """What a reader sees for each term key id: its most frequent surface form (a placeholder as itself)."""
     pairs, counts = np.unique(np.stack([keys, surf], axis=1), axis=0, return_counts=True)
     order = np.lexsort((-counts, pairs[:, 0]))
     pairs = pairs[order]
     first = np.ones(len(pairs), bool)
     first[1:] = pairs[1:, 0] != pairs[:-1, 0]
-    return {int(k): analyzer.surface_names_[s] for k, s in pairs[first]}
+    return {int(k): term_label(vocabulary.key_names[k], vocabulary.surface_names[s]) for k, s in pairs[first]}
 
 
 def format_phrase_suggestions(rows: Sequence[PhraseSuggestion]) -> str:

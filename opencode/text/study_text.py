@@ -94,9 +94,7 @@ def check_lexicon(lexicon: Lexicon) -> list[str]:
             f"no stemmer for language {lexicon.language!r} (stemmers exist for: {', '.join(SNOWBALL_LANGUAGES)}); "
             "to analyse these verbatims unstemmed, switch stemming off first (lexicon stem off), then set the "
             "language")
-    analyzer = Analyzer.from_lexicon(lexicon)
-    analyzer.tokens("")  # builds the lookups: stemmer, merge chains and phrases are checked here
-    return list(analyzer.warnings_)
+    return Analyzer.from_lexicon(lexicon).check()  # stemmer, merge chains and phrases are checked here
 
 
 # -- changing lexicons --------------------------------------------------------------------------------------------
@@ -269,6 +267,31 @@ def set_stemmer(study: Study, question: str | None, stemmer: str | None, *, acto
     return _edit(study, question, "stemmer", actor, apply)
 
 
+def set_numbers(study: Study, question: str | None, choice: str, *, actor: str = "oecode") -> LexiconChange:
+    """How numbers are analysed: 'placeholder' (one term, shown as #number), 'keep' (each number a term of its
+    own, e.g. a year or a unit number) or 'drop'."""
+    choice = str(choice).strip().lower()
+
+    def apply(data: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
+        before = data.get("numbers", "placeholder")
+        data["numbers"] = choice
+        return {"before": before, "after": choice}, []
+    return _edit(study, question, "numbers", actor, apply)
+
+
+def set_negations(study: Study, question: str | None, choice: str, *, actor: str = "oecode") -> LexiconChange:
+    """How negation words are analysed: 'keep' (they stay terms of their own), 'join' (each joins the next
+    term of its clause: "no damage" becomes one term, so a theme or a label cannot lose the "no") or 'drop'
+    (they are stop words)."""
+    choice = str(choice).strip().lower()
+
+    def apply(data: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
+        before = data.get("negations", "keep")
+        data["negations"] = choice
+        return {"before": before, "after": choice}, []
+    return _edit(study, question, "negations", actor, apply)
+
+
 def set_stem_exception(study: Study, question: str | None, word: str, stem: str | None = None, *,
                        actor: str = "oecode", remove: bool = False) -> LexiconChange:
     """Force a word's stem (no stem: keep the word as it is); remove=True drops the exception."""
@@ -395,11 +418,12 @@ def term_matrix(
 
 def missing_phrases(tm: TermMatrix, analyzer: Analyzer, phrases: Iterable[str] | None = None) -> list[str]:
     """The lexicon phrases (or the given ones) that never occur in the matrix's verbatims."""
-    analyzer.tokens("")  # builds the phrase table
-    wanted = analyzer.phrase_keys_ if phrases is None else {
-        p: analyzer.phrase_keys_[p] for p in (" ".join(x.split()).lower() for x in phrases) if p in analyzer.phrase_keys_}
+    vocabulary = analyzer.vocabulary()  # holds the phrase table
+    keys = vocabulary.phrase_keys
+    wanted = keys if phrases is None else {
+        p: keys[p] for p in (" ".join(x.split()).lower() for x in phrases) if p in keys}
     present = set(tm.terms)
-    return [p for p, pid in wanted.items() if analyzer.key_names_[pid] not in present]
+    return [p for p, pid in wanted.items() if vocabulary.key_names[pid] not in present]
 
 
 def stop_word_effect(study: Study, question: str, before: Lexicon, progress: Progress = None) -> list[Any]:

@@ -14,9 +14,11 @@ import numpy as np
 
 DOC_SEP = "\x01"
 
-URL_PLACEHOLDER = "_url_"
-EMAIL_PLACEHOLDER = "_email_"
-NUMBER_PLACEHOLDER = "_num_"
+# Placeholder terms stand for every URL, e-mail address or number; they are shown as they are named (never as
+# one of the values they stand for) and can be typed in a phrase, a rule or kwic.
+URL_PLACEHOLDER = "#url"
+EMAIL_PLACEHOLDER = "#email"
+NUMBER_PLACEHOLDER = "#number"
 PLACEHOLDERS = frozenset({URL_PLACEHOLDER, EMAIL_PLACEHOLDER, NUMBER_PLACEHOLDER})
 
 # Kinds of raw token, decided once per distinct token.
@@ -26,7 +28,7 @@ _EMOJI_CHARS = "\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF"
 _URL = r"(?:https?://|www\.)[^\s<>\"'\x01]+"
 _EMAIL = r"[\w.+\-]+@[\w\-]+(?:\.[\w\-]+)+"
 _CORE = (
-    r"\x01|\d+(?:[.,:/]\d+)+|[\w'’\-]+|[.!?;:,]+|[" + _EMOJI_CHARS + r"][" + _EMOJI_CHARS + "\uFE0F\u200D]*"
+    r"\x01|#(?:url|email|number)\b|\d+(?:[.,:/]\d+)+|[\w'’\-]+|[.!?;:,]+|[" + _EMOJI_CHARS + r"][" + _EMOJI_CHARS + "\uFE0F\u200D]*"
 )
 TOKEN_RE = re.compile(_CORE)
 TOKEN_WITH_LINKS_RE = re.compile(_URL + "|" + _EMAIL + "|" + _CORE)
@@ -60,8 +62,20 @@ def negation_prefix(token: str) -> str:
     return token
 
 
+# An apostrophe typed as another mark between two letters (curly quotes, modifier letter, prime, acute accent,
+# backtick), and a run of control characters standing for a character lost in conversion before a final "s"
+# (a possessive whose apostrophe did not survive, e.g. "entity\x1a\x1as"): both become "'", so the possessive
+# folds into its base word. DOC_SEP (\x01) is not in the control range used here.
+_APOSTROPHE_MARKS = "\u2018\u2019\u02bc\u2032\u00b4`"
+_LOST_CHARACTERS = "\x02-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f"
+_APOSTROPHE_LIKE = re.compile(rf"(?<=\w)(?:[{_APOSTROPHE_MARKS}]|[{_LOST_CHARACTERS}]+(?=s\b))(?=\w)")
+_NEEDS_APOSTROPHE_FIX = re.compile(f"[{_APOSTROPHE_MARKS}{_LOST_CHARACTERS}]")
+
+
 def normalise(text: str) -> str:
-    """NFKC-normalise (only when non-ASCII) and case-fold a text."""
+    """Unify apostrophes, NFKC-normalise (only when non-ASCII) and case-fold a text."""
+    if _NEEDS_APOSTROPHE_FIX.search(text):
+        text = _APOSTROPHE_LIKE.sub("'", text)
     if not text.isascii():
         text = unicodedata.normalize("NFKC", text)
     return text.casefold()
@@ -159,6 +173,20 @@ def classify(token: str) -> tuple[int, str]:
     if _NUMBER_RE.fullmatch(form):
         return NUM, form
     return WORD, form
+
+
+_NUMBER_WORD = re.compile(r"(?<![\w#])\d+(?:[.,:/]\d+)*(?:st|nd|rd|th|am|pm|s|k)?(?![\w])")
+
+
+def term_label(name: str, surface: str) -> str:
+    """What a reader sees for a term: its commonest word form, except that a placeholder shows as itself
+    (#number, never one of the numbers it stands for) and a phrase or joined negation holding the number
+    placeholder shows "#number" where the number was ("unit 579" -> "unit #number")."""
+    if name in PLACEHOLDERS:
+        return name
+    if NUMBER_PLACEHOLDER in name:
+        return _NUMBER_WORD.sub(NUMBER_PLACEHOLDER, surface)
+    return surface
 
 
 def _first_emoji(token: str) -> str:

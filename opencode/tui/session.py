@@ -267,6 +267,7 @@ class DeskSession:
             code_id = code.id
         respondents = None
         for name, value in spec.values:
+            name = _question_variable(self.study, self.question.name, name)
             chosen = _respondents_with(self.study, self._respondents, name, value)
             respondents = chosen if respondents is None else np.intersect1d(respondents, chosen)
         found = dq.search_ids(self.study, self.question.id, text=spec.text or None, code_id=code_id,
@@ -431,6 +432,13 @@ def _answer(variable: survey_data.Variable, value) -> str:
         return variable.display(float(value))
     except (TypeError, ValueError):
         return str(value)
+
+
+def _question_variable(study: Study, question: str, name: str) -> str:
+    """A search name as a variable: itself, or the question's own variable of that name (e.g. `sentiment`
+    for `<question>_sentiment`) when no survey variable is called so."""
+    names = {v.name for v in survey_data.list_variables(study)}
+    return f"{question}_{name}" if name not in names and f"{question}_{name}" in names else name
 
 
 def _respondents_with(study: Study, respondent_rows: np.ndarray, name: str, wanted: str) -> np.ndarray:

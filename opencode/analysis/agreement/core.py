@@ -12,6 +12,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 
 from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
 from opencode.analysis.agreement.bootstrap import bootstrap_totals, percentile_interval
@@ -26,6 +27,7 @@ from opencode.analysis.agreement.disagreement import (
 )
 from opencode.analysis.agreement.matrix import CodingMatrix
 from opencode.analysis.agreement.sets import DISTANCES, SetAlphaParts, alpha_from_totals
+from opencode.analysis.agreement.weighted import cohen_weighted, conger_kappa, gwet_family_counts
 from opencode.errors import OpenCodeError
 
 __all__ = ["AgreementResult", "CodeAgreement", "CodingMatrix", "Estimate", "STATISTIC_LABELS", "measure_agreement"]
@@ -34,6 +36,8 @@ STATISTIC_LABELS = {
     "percent": "% agreement",
     "cohen_kappa": "Cohen's kappa",
     "fleiss_kappa": "Fleiss' kappa",
+    "conger_kappa": "Conger's kappa",
+    "brennan_prediger": "Brennan-Prediger",
     "krippendorff_alpha": "Krippendorff's alpha",
     "gwet_ac1": "Gwet's AC1",
     "pabak": "PABAK",
@@ -43,19 +47,34 @@ STATISTIC_LABELS = {
     "alpha_jaccard": "Krippendorff's alpha, Jaccard distance",
     "mean_kappa": "mean per-code kappa",
 }
-_LANDIS_KOCH = {"cohen_kappa", "fleiss_kappa", "gwet_ac1", "pabak", "mean_kappa"}
+_LANDIS_KOCH = {"cohen_kappa", "fleiss_kappa", "conger_kappa", "gwet_ac1", "pabak", "brennan_prediger", "mean_kappa"}
 _KRIPPENDORFF = {"krippendorff_alpha", "alpha_masi", "alpha_jaccard"}
 SMALL_BASE = 30  # common practice (no published source): flag bases under 30
 
 
 @dataclass(frozen=True)
 class Estimate:
-    """A statistic with its bootstrap interval; None where undefined, with `words` saying why or how to read it."""
+    """A statistic with its bootstrap interval and, where a formula exists, its analytic standard error and
+    interval; None where undefined, with `words` saying why or how to read it."""
 
     value: float | None
     low: float | None = None
     high: float | None = None
     words: str = ""
+    se: float | None = None
+    se_low: float | None = None
+    se_high: float | None = None
+
+
+#: per-code statistics with an analytic standard error, and where its formula comes from
+ANALYTIC_SOURCES = {
+    "cohen_kappa": "Fleiss, Cohen & Everitt (1969)",
+    "gwet_ac1": "Gwet (2008, 2014)",
+    "fleiss_kappa": "Gwet (2014)",
+    "conger_kappa": "Gwet (2014)",
+    "brennan_prediger": "Gwet (2014)",
+}
+_ANALYTIC_BLOCK = 4_000_000  # array elements per block of codes
 
 
 @dataclass(frozen=True)
@@ -95,6 +114,19 @@ class AgreementResult:
         """The code's label, or the code itself when the frame gave none."""
         return str(self.code_labels.get(code, code))
 
+    def to_frame(self) -> pd.DataFrame:
+        """One row per code (then the whole frame as code None): each statistic with its interval."""
+        rows = []
+        for item in self.per_code:
+            row = {"code": item.code, "label": item.label, "n_pairable": item.n_pairable}
+            for name, estimate in item.statistics.items():
+                row.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
+            rows.append(row)
+        whole = {"code": None, "label": "whole frame", "n_pairable": self.n_pairable}
+        for name, estimate in self.frame.items():
+            whole.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
+        return pd.DataFrame(rows + [whole])
+
 
 def _number(x) -> float | None:
     """A plain float, or None for NaN (undefined)."""
@@ -110,13 +142,53 @@ def _band(name: str, value: float | None) -> str:
     return ""
 
 
-def _estimate(name: str, value, low, high, undefined: str, interval_note: str = "") -> Estimate:
+def _estimate(name: str, value, low, high, undefined: str, interval_note: str = "",
+              analytic: tuple = (np.nan, np.nan, np.nan)) -> Estimate:
     """Wrap numbers as an Estimate, with band words or the reason the statistic is undefined."""
     value, low, high = _number(value), _number(low), _number(high)
     if value is None:
         return Estimate(None, None, None, undefined)
     words = "; ".join(part for part in (_band(name, value), interval_note) if part)
-    return Estimate(value, low, high, words)
+    se, se_low, se_high = (_number(x) for x in analytic)
+    return Estimate(value, low, high, words, se, se_low, se_high)
+
+
+def analytic_errors(matrix: CodingMatrix, names, confidence: float = 0.95) -> dict[str, tuple[np.ndarray, ...]]:
+    """Per-code analytic (standard error, low, high) for the statistics in ANALYTIC_SOURCES among `names`.
+
+    Cohen's kappa: Fleiss, Cohen & Everitt (1969) on the units both coders coded; the others: Gwet (2014)'s
+    linearised variance over every rated unit (t interval, n - 1 degrees of freedom).
+    """
+    wanted = [n for n in names if n in ANALYTIC_SOURCES]
+    codes = len(matrix.codes)
+    out = {n: tuple(np.full(codes, np.nan) for _ in range(3)) for n in wanted}
+    if not wanted or codes == 0:
+        return out
+    coded = matrix.coded[:, :, None]
+    block = max(1, _ANALYTIC_BLOCK // max(1, 2 * matrix.coded.size))  # codes per block
+    identity = np.eye(2)
+    for start in range(0, codes, block):
+        part = slice(start, min(codes, start + block))
+        present = matrix.present[:, :, part]
+        found = {}
+        if "cohen_kappa" in wanted:
+            both = matrix.coded.all(axis=1)[:, None]
+            first, second = present[:, 0] & both, present[:, 1] & both
+            a, b, c = (x.sum(axis=0) for x in (first & second, first & ~second, ~first & second))
+            table = np.stack([np.stack([a, b], -1), np.stack([c, both.sum() - a - b - c], -1)], -2)
+            found["cohen_kappa"] = cohen_weighted(table.astype(float), identity, confidence)
+        k = present.sum(axis=1, dtype=np.float64)
+        counts = np.stack([k, matrix.coders_per_unit[:, None] - k], axis=-1)
+        for name, kind in (("gwet_ac1", "gwet"), ("fleiss_kappa", "fleiss"), ("brennan_prediger", "bp")):
+            if name in wanted:
+                found[name] = gwet_family_counts(counts, identity, kind, confidence)
+        if "conger_kappa" in wanted:
+            ratings = np.stack([present & coded, ~present & coded], axis=-1).astype(float)
+            found["conger_kappa"] = conger_kappa(ratings, identity, confidence)
+        for name, coefficient in found.items():
+            for target, values in zip(out[name], (coefficient.se, coefficient.low, coefficient.high)):
+                target[part] = values
+    return out
 
 
 def _undefined_reasons(matrix: CodingMatrix, parts: dict[str, np.ndarray]) -> list[str]:
@@ -204,12 +276,15 @@ def measure_agreement(
         low, high = _interval(None if samples is None else samples[name], confidence, point[name].shape)
         per_stat[name] = (point[name], low, high)
     k_sum = features.parts(point_totals)["k_sum"]
+    analytic = analytic_errors(matrix, names, confidence)
     per_code = []
     for c, code in enumerate(matrix.codes):
         stats = {}
         for name in names:
             value, low, high = (arr[c] for arr in per_stat[name])
-            stats[name] = _estimate(name, value, low, high, reasons[c], _interval_note(samples is not None, value, low))
+            extra = tuple(arr[c] for arr in analytic[name]) if name in analytic else (np.nan,) * 3
+            stats[name] = _estimate(name, value, low, high, reasons[c], _interval_note(samples is not None, value, low),
+                                    extra)
         per_code.append(CodeAgreement(code, str(labels.get(code, code)), n_pairable, int(k_sum[c]), stats))
 
     frame = {}
@@ -246,7 +321,8 @@ def measure_agreement(
     n_single = int((matrix.coders_per_unit == 1).sum())
     notes = []
     if n_single:
-        notes.append(f"{n_single} verbatims coded by one coder only are left out (they cannot show agreement)")
+        notes.append(f"{n_single} verbatims coded by one coder only are left out of the agreement (they count "
+                     "towards the code shares of the kappa-type statistics and AC1, as in Gwet 2014)")
     if n_pairable < SMALL_BASE:
         notes.append(f"small base: only {n_pairable} verbatims coded by two or more coders; read with care")
     return AgreementResult(

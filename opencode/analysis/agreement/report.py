@@ -8,7 +8,9 @@ import os
 from collections.abc import Sequence
 from pathlib import Path
 
+from opencode.analysis.agreement.core import ANALYTIC_SOURCES as CODE_ANALYTIC_SOURCES
 from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult, Estimate
+from opencode.analysis.agreement.scale import ANALYTIC_SOURCES, SCALE_LABELS, ScaleAgreementResult
 from opencode.files.cell_guard import guard_cell
 from opencode.files.safe_write import atomic_open
 from opencode.files.textout import format_table
@@ -24,11 +26,17 @@ def _number(name: str, value: float | None) -> str:
     return f"{100 * value:.1f}%" if name in _PERCENT else f"{value:.3f}"
 
 
-def _with_interval(name: str, est: Estimate) -> str:
-    """'0.748 [0.717, 0.778]', or the bare value when there is no interval."""
-    if est.value is None or est.low is None:
-        return _number(name, est.value)
-    return f"{_number(name, est.value)} [{_number(name, est.low)}, {_number(name, est.high)}]"
+def _with_interval(name: str, est: Estimate, analytic_interval: bool = False) -> str:
+    """'0.748 [0.717, 0.778] se 0.016' (bootstrap interval, analytic standard error), or the bare value when
+    there is neither; `analytic_interval` adds the analytic interval after the standard error."""
+    text = _number(name, est.value)
+    if est.value is not None and est.low is not None:
+        text += f" [{_number(name, est.low)}, {_number(name, est.high)}]"
+    if est.value is not None and est.se is not None:
+        text += f" se {est.se:.3f}"
+        if analytic_interval and est.se_low is not None:
+            text += f" ({_number(name, est.se_low)} to {_number(name, est.se_high)})"
+    return text
 
 
 def _codes(codes: tuple | None) -> str:
@@ -54,6 +62,10 @@ def _summary_lines(result: AgreementResult) -> list[str]:
             f"Intervals: {100 * result.confidence:.0f}% bootstrap percentile, {result.n_resamples:,} resamples "
             f"of verbatims (seed {result.random_state})"
         )
+    shown = [name for name in result.statistic_names if name in CODE_ANALYTIC_SOURCES]
+    lines.append("se: analytic standard error (" + "; ".join(
+        f"{STATISTIC_LABELS[name]} {CODE_ANALYTIC_SOURCES[name]}" for name in shown) + "); the CSV and HTML "
+        f"give its {100 * result.confidence:.0f}% interval")
     return lines + [f"Note: {note}" for note in result.warnings]
 
 
@@ -61,11 +73,11 @@ def _frame_rows(result: AgreementResult) -> list[list[str]]:
     return [[STATISTIC_LABELS[name], _with_interval(name, est), est.words] for name, est in result.frame.items()]
 
 
-def _code_rows(result: AgreementResult, statistics: Sequence[str]) -> list[list[str]]:
+def _code_rows(result: AgreementResult, statistics: Sequence[str], analytic_interval: bool = False) -> list[list[str]]:
     kappa = _kappa_name(result)
     return [
         [str(c.code), c.label, f"{c.n_mentions:,}"]
-        + [_with_interval(name, c.statistics[name]) for name in statistics]
+        + [_with_interval(name, c.statistics[name], analytic_interval) for name in statistics]
         + [c.statistics[kappa].words]
         for c in result.per_code
     ]
@@ -136,8 +148,9 @@ def _csv_number(value) -> str:
     return "" if value is None else repr(float(value))
 
 
-CSV_HEADER = ["section", "code", "label", "other_code", "coders", "statistic", "value", "low", "high", "reading"]
-_CSV_NUMERIC = {6, 7, 8}
+CSV_HEADER = ["section", "code", "label", "other_code", "coders", "statistic", "value", "low", "high", "reading",
+              "se", "se_low", "se_high"]
+_CSV_NUMERIC = {6, 7, 8, 10, 11, 12}
 
 
 def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
@@ -148,7 +161,8 @@ def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
     for c in result.per_code:
         rows.append(["code", str(c.code), c.label, "", coders, "mentions", str(c.n_mentions), "", "", ""])
         rows += [["code", str(c.code), c.label, "", coders, STATISTIC_LABELS[n], _csv_number(e.value),
-                  _csv_number(e.low), _csv_number(e.high), e.words] for n, e in c.statistics.items()]
+                  _csv_number(e.low), _csv_number(e.high), e.words, _csv_number(e.se), _csv_number(e.se_low),
+                  _csv_number(e.se_high)] for n, e in c.statistics.items()]
     pt = result.pair_tables
     for p, (a, b) in enumerate(pt.pairs):
         for c, code in enumerate(pt.codes):
@@ -194,8 +208,11 @@ def _html_table(css: str, headers: Sequence[str], rows: Sequence[Sequence[str]],
     return f'<table class="oc-table {css}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
 
 
-def format_agreement_html(result: AgreementResult, title: str = "Coder agreement") -> str:
-    """The result as an HTML fragment (<section class="oc-agreement">) for the report."""
+def format_agreement_html(result: AgreementResult | ScaleAgreementResult, title: str = "Coder agreement") -> str:
+    """The result as an HTML fragment (<section class="oc-agreement">) for the report; a scale result gets the
+    statistics of its level."""
+    if isinstance(result, ScaleAgreementResult):
+        return format_scale_agreement_html(result, title)
     kappa = _kappa_name(result)
     stats = result.statistic_names
     out = [f'<section class="oc-agreement"><h2>{html.escape(title)}</h2>']
@@ -204,7 +221,8 @@ def format_agreement_html(result: AgreementResult, title: str = "Coder agreement
     out.append(_html_table("oc-agreement-frame", ["statistic", "value [interval]", "reading"], _frame_rows(result), range(1, 2)))
     out.append("<h3>Per code (present / absent)</h3>")
     code_headers = ["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats] + [f"reading of {STATISTIC_LABELS[kappa]}"]
-    out.append(_html_table("oc-agreement-codes", code_headers, _code_rows(result, stats), range(2, 3 + len(stats))))
+    out.append(_html_table("oc-agreement-codes", code_headers, _code_rows(result, stats, True),
+                           range(2, 3 + len(stats))))
     for title_pair, headers, rows in _pair_blocks(result):
         out.append(f"<h3>Coder pair {html.escape(title_pair)}</h3>")
         out.append(_html_table("oc-agreement-pair", headers, rows, range(2, 7)))
@@ -216,3 +234,103 @@ def format_agreement_html(result: AgreementResult, title: str = "Coder agreement
         out.append(_html_table("oc-agreement-confused", ["one coder", "another coder", "times"], _confused_rows(result), range(2, 3)))
     out.append("</section>")
     return "\n".join(out)
+
+
+# -- agreement on a scale (ordinal, interval, ratio) ------------------------------------------------------------
+def _scale_number(name: str, value: float | None) -> str:
+    if value is None:
+        return UNDEFINED
+    return f"{100 * value:.1f}%" if name in ("percent", "weighted_percent") else f"{value:.3f}"
+
+
+def _scale_pair(name: str, low: float | None, high: float | None) -> str:
+    return "" if low is None else f"[{_scale_number(name, low)}, {_scale_number(name, high)}]"
+
+
+def _scale_summary(result: ScaleAgreementResult) -> list[str]:
+    per_coder = ", ".join(f"{coder} {n:,}" for coder, n in result.units_per_coder.items())
+    scale = ", ".join(f"{code} {result.label(code)}" for code in result.codes)
+    values = "positions 1.." + str(len(result.codes)) if result.level == "ordinal" else "the code numbers"
+    lines = [
+        f"Scale ({result.level} level, values: {values}): {scale}",
+        f"Weights: {result.weights} (credit for near misses: 1 - |a - b| / range"
+        + ("^2" if result.weights == "quadratic" else "") + ")",
+        f"Coders: {', '.join(result.coders)} (verbatims rated: {per_coder})",
+        f"Verbatims: {result.n_units:,} rated; {result.n_pairable:,} by two or more coders (compared); "
+        f"{result.n_single:,} by one coder only",
+    ]
+    if result.n_resamples:
+        lines.append(f"Bootstrap: {100 * result.confidence:.0f}% percentile intervals, {result.n_resamples:,} "
+                     f"resamples of verbatims (seed {result.random_state})")
+    lines.append("Analytic: standard error and interval from " + "; ".join(
+        f"{SCALE_LABELS[name]} {source}" for name, source in ANALYTIC_SOURCES.items()
+        if name in result.statistics) + "; Krippendorff's alpha has none (bootstrap only)")
+    return lines + [f"Note: {note}" for note in result.warnings]
+
+
+def _scale_rows(result: ScaleAgreementResult) -> list[list[str]]:
+    rows = []
+    for name, est in result.statistics.items():
+        label = SCALE_LABELS[name] + (f" ({result.level})" if name == "krippendorff_alpha" else "")
+        se = "" if est.se is None else f"{est.se:.3f}"
+        rows.append([label, _scale_number(name, est.value), _scale_pair(name, est.low, est.high), se,
+                     _scale_pair(name, est.se_low, est.se_high), est.words])
+    return rows
+
+
+_SCALE_HEADERS = ["statistic", "value", "bootstrap interval", "analytic se", "analytic interval", "reading"]
+
+
+def _distribution_rows(result: ScaleAgreementResult) -> tuple[list[str], list[list[str]]]:
+    headers = ["coder"] + [f"{code} {result.label(code)}" for code in result.codes]
+    return headers, [[coder] + [str(int(n)) for n in row] for coder, row in zip(result.coders, result.distribution)]
+
+
+def format_scale_agreement_text(result: ScaleAgreementResult) -> str:
+    """Agreement on a scale as plain-text tables for the terminal."""
+    headers, rows = _distribution_rows(result)
+    parts = ["\n".join(_scale_summary(result)), "Agreement on the scale", format_table(_SCALE_HEADERS, _scale_rows(result)),
+             "Each coder's use of the scale (verbatims)", format_table(headers, rows)]
+    return "\n\n".join(parts) + "\n"
+
+
+def scale_agreement_csv_rows(result: ScaleAgreementResult) -> list[list[str]]:
+    """Long rows under SCALE_CSV_HEADER."""
+    coders = "|".join(result.coders)
+    rows = []
+    for name, e in result.statistics.items():
+        rows.append(["scale", result.level, result.weights, coders, SCALE_LABELS[name], _csv_number(e.value),
+                     _csv_number(e.low), _csv_number(e.high), _csv_number(e.se), _csv_number(e.se_low),
+                     _csv_number(e.se_high), e.words])
+    for coder, row in zip(result.coders, result.distribution):
+        for code, n in zip(result.codes, row):
+            rows.append(["distribution", result.level, result.weights, coder, f"{code} {result.label(code)}",
+                         str(int(n)), "", "", "", "", "", ""])
+    numeric = {5, 6, 7, 8, 9, 10}
+    return [[str(x) if i in numeric else guard_cell(str(x)) for i, x in enumerate(row)] for row in rows]
+
+
+SCALE_CSV_HEADER = ["section", "level", "weights", "coders", "statistic", "value", "low", "high", "se", "se_low",
+                    "se_high", "reading"]
+
+
+def write_scale_agreement_csv(result: ScaleAgreementResult, path: str | os.PathLike) -> Path:
+    """Write the scale result as a long CSV atomically and return its path."""
+    with atomic_open(path, "w", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(SCALE_CSV_HEADER)
+        writer.writerows(scale_agreement_csv_rows(result))
+    return Path(path)
+
+
+def format_scale_agreement_html(result: ScaleAgreementResult, title: str = "Coder agreement") -> str:
+    """The scale result as an HTML fragment (<section class="oc-agreement">) for the report."""
+    headers, rows = _distribution_rows(result)
+    return "\n".join([
+        f'<section class="oc-agreement oc-agreement-scale"><h2>{html.escape(title)}</h2>',
+        '<ul class="oc-summary">' + "".join(f"<li>{html.escape(x)}</li>" for x in _scale_summary(result)) + "</ul>",
+        "<h3>Agreement on the scale</h3>",
+        _html_table("oc-agreement-frame", _SCALE_HEADERS, _scale_rows(result), range(1, 5)),
+        "<h3>Each coder's use of the scale (verbatims)</h3>",
+        _html_table("oc-agreement-distribution", headers, rows, range(1, len(headers))),
+        "</section>"])

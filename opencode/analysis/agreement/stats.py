@@ -36,23 +36,25 @@ def cohen_kappa_table(table) -> np.ndarray:
     return _chance_corrected(observed, chance)
 
 
-def fleiss_kappa_totals(agree_sum, share_sum, n_units) -> np.ndarray:
-    """Fleiss (1971) kappa from totals: sum of per-unit pair agreement, per-category share sums (..., q), units.
+def fleiss_kappa_totals(agree_sum, n_pairable, share_sum, n_rated) -> np.ndarray:
+    """Fleiss (1971) kappa from totals: summed pair agreement over the n_pairable units with two or more
+    coders, and summed per-category shares (..., q) over the n_rated units with one or more coders.
 
-    With a varying number of coders per unit each unit's pair agreement and category shares use its own
-    coder count (the usual extension for missing ratings); with complete data this is Fleiss' formula.
+    With missing ratings the category shares pi_k come from every rated unit and the observed agreement from
+    the units with two or more ratings (Gwet 2014, Handbook of Inter-Rater Reliability, ch. 2); with complete
+    data this is Fleiss' formula.
     """
-    observed = _ratio(agree_sum, n_units)
-    shares = _ratio(np.asarray(share_sum, dtype=float), np.asarray(n_units, dtype=float)[..., None])
+    observed = _ratio(agree_sum, n_pairable)
+    shares = _ratio(np.asarray(share_sum, dtype=float), np.asarray(n_rated, dtype=float)[..., None])
     return _chance_corrected(observed, (shares**2).sum(axis=-1))
 
 
-def gwet_ac1_totals(agree_sum, share_sum, n_units) -> np.ndarray:
+def gwet_ac1_totals(agree_sum, n_pairable, share_sum, n_rated) -> np.ndarray:
     """Gwet (2008) AC1 from the same totals as Fleiss' kappa; chance = sum_k pi_k (1 - pi_k) / (q - 1)."""
     share_sum = np.asarray(share_sum, dtype=float)
     q = share_sum.shape[-1]
-    observed = _ratio(agree_sum, n_units)
-    pi = _ratio(share_sum, np.asarray(n_units, dtype=float)[..., None])
+    observed = _ratio(agree_sum, n_pairable)
+    pi = _ratio(share_sum, np.asarray(n_rated, dtype=float)[..., None])
     return _chance_corrected(observed, (pi * (1.0 - pi)).sum(axis=-1) / (q - 1))
 
 
@@ -61,7 +63,7 @@ def gwet_ac1_table(table) -> np.ndarray:
     t = np.asarray(table, dtype=float)
     n = t.sum(axis=(-2, -1))
     share_sum = (t.sum(axis=-1) + t.sum(axis=-2)) / 2.0
-    return gwet_ac1_totals(np.trace(t, axis1=-2, axis2=-1), share_sum, n)
+    return gwet_ac1_totals(np.trace(t, axis1=-2, axis2=-1), n, share_sum, n)
 
 
 def pabak_table(table) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -89,9 +91,10 @@ def krippendorff_alpha_coincidence(coincidence) -> np.ndarray:
 class UnitSummary:
     """Per-unit quantities whose sums over units give every multi-coder statistic above."""
 
+    rated: np.ndarray  # unit has one or more coders (0/1)
     pairable: np.ndarray  # unit has two or more coders (0/1)
     agree: np.ndarray  # share of agreeing coder pairs on the unit (0 if not pairable)
-    share: np.ndarray  # (..., q) share of the unit's coders choosing each category (0 if not pairable)
+    share: np.ndarray  # (..., q) share of the unit's coders choosing each category (0 if not rated)
     coincidence: np.ndarray  # (..., q, q) Krippendorff coincidence contributions (0 if not pairable)
 
 
@@ -99,26 +102,31 @@ def summarise_units(counts) -> UnitSummary:
     """Summarise category counts per unit (..., q): how many coders put the unit in each category."""
     n_uk = np.asarray(counts, dtype=float)
     m = n_uk.sum(axis=-1)
+    rated = m >= 1
     pairable = m >= 2
     pair_den = np.where(pairable, m * (m - 1.0), 1.0)
     agree = np.where(pairable, (n_uk * (n_uk - 1.0)).sum(axis=-1) / pair_den, 0.0)
-    share = np.where(pairable[..., None], n_uk / np.where(pairable, m, 1.0)[..., None], 0.0)
+    share = np.where(rated[..., None], n_uk / np.where(rated, m, 1.0)[..., None], 0.0)
     scale = np.where(pairable, 1.0 / np.where(pairable, m - 1.0, 1.0), 0.0)[..., None, None]
     q = n_uk.shape[-1]
     pairs = n_uk[..., :, None] * n_uk[..., None, :] - n_uk[..., None] * np.eye(q)
-    return UnitSummary(pairable.astype(float), agree, share, pairs * scale)
+    return UnitSummary(rated.astype(float), pairable.astype(float), agree, share, pairs * scale)
+
+
+def _totals(counts) -> tuple:
+    s = summarise_units(counts)
+    return s.agree.sum(), s.pairable.sum(), s.share.sum(axis=0), s.rated.sum()
 
 
 def fleiss_kappa(counts) -> float:
-    """Fleiss' kappa from a units x categories table of rating counts (Fleiss 1971 layout)."""
-    s = summarise_units(counts)
-    return float(fleiss_kappa_totals(s.agree.sum(), s.share.sum(axis=0), s.pairable.sum()))
+    """Fleiss' kappa from a units x categories table of rating counts (Fleiss 1971 layout; Gwet 2014 with
+    units rated once: they count towards the category shares only)."""
+    return float(fleiss_kappa_totals(*_totals(counts)))
 
 
 def gwet_ac1(counts) -> float:
     """Gwet's AC1 from a units x categories table of rating counts (any number of coders per unit)."""
-    s = summarise_units(counts)
-    return float(gwet_ac1_totals(s.agree.sum(), s.share.sum(axis=0), s.pairable.sum()))
+    return float(gwet_ac1_totals(*_totals(counts)))
 
 
 def category_counts(reliability_data) -> tuple[np.ndarray, np.ndarray]:

@@ -80,6 +80,10 @@ class StudyDrivers:
     def table(self) -> pd.DataFrame:
         return self.first.table
 
+    def to_frame(self) -> pd.DataFrame:
+        """Every comparison's ranked terms in one table, with a `comparison` column naming the comparison."""
+        return pd.concat([c.table.assign(comparison=c.title) for c in self.comparisons], ignore_index=True)
+
 
 # -- the outcome and weights lined up with the matrix ---------------------------------------------------------------
 def _outcome_variable(study: Study, name: str) -> survey_data.Variable:

@@ -8,6 +8,7 @@ while saying how many were added.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from typing import Sequence
 
@@ -26,6 +27,7 @@ from opencode.study import survey_data
 from opencode.study.store import Study
 
 CONFIRMED = ("hand",)
+_PLAIN_INTEGER = re.compile(r"-?(?:0|[1-9][0-9]{0,17})")
 #: Values of the `<question>_status` variable written beside each exported question.
 STATUS_LABELS = {1: "coded", 2: "non-answer", 3: "not yet coded", 4: "no verbatim"}
 
@@ -53,6 +55,8 @@ class QuestionCoding:
     verbatim_text: list[str | None]
     suggestions: int
     include_suggestions: bool
+    flagged_but_coded: int = 0  # flagged non-answers that hold a substantive code: counted as answers
+    coded_non_answers: int = 0  # unflagged verbatims given only a non-answer code: counted as non-answers
 
     @property
     def notes(self) -> list[str]:
@@ -62,6 +66,11 @@ class QuestionCoding:
             out.append(f"{self.question}: includes {self.suggestions:,} machine/rule suggestions not yet reviewed "
                        "by a person" if self.suggestions else
                        f"{self.question}: suggestions were asked for, but coder {self.coder!r} has none")
+        if self.flagged_but_coded or self.coded_non_answers:
+            out.append(f"{self.question}: non-answers follow {self.coder!r}'s codes where they differ from the "
+                       f"import's flag ({self.flagged_but_coded:,} flagged verbatims hold a code and count as answers; "
+                       f"{self.coded_non_answers:,} others were coded as non-answers), so the count differs from "
+                       "`oecode info`")
         left = int(self.uncoded.sum())
         if left:
             out.append(f"{self.question}: {left:,} answered verbatims not yet coded by {self.coder!r} are left out "
@@ -114,16 +123,22 @@ def load_coding(study: Study, question: str, coder: str = FINAL, *, include_sugg
     special = np.array([c.special == "nonanswer" for c in codes], dtype=bool)
     substantive = np.asarray(indicators[:, ~special].sum(axis=1)).ravel() > 0
     nonanswer_coded = np.asarray(indicators[:, special].sum(axis=1)).ravel() > 0
-    non_answer = has_verbatim & ~substantive & (flagged | nonanswer_coded)
-    answered = has_verbatim & coded & ~non_answer
     text_column = np.full(n, None, dtype=object)
     text_column[rows] = texts["text"].to_numpy(dtype=object)
+    empty = np.zeros(n, dtype=bool)
+    empty[rows] = texts["text"].fillna("").str.strip().eq("").to_numpy()
+    # A person's code overrules the import's flag ("no" can be an answer), but an empty verbatim has no answer
+    # to code: codes on it (e.g. imported from another column) stay out of the base.
+    non_answer = has_verbatim & ((~substantive & (flagged | nonanswer_coded)) | empty)
+    answered = has_verbatim & coded & ~non_answer
     return QuestionCoding(
         question=question, label=variable.label or question, coder=coder, respondent_ids=keys, codes=codes,
         nets=nets, indicators=indicators, answered=answered, non_answer=non_answer,
         uncoded=has_verbatim & ~coded & ~non_answer, has_verbatim=has_verbatim, verbatim_text=text_column.tolist(),
         suggestions=int(given["source"].isin(SUGGESTED).sum()) if include_suggestions else 0,
         include_suggestions=include_suggestions,
+        flagged_but_coded=int((has_verbatim & flagged & substantive & ~empty).sum()),
+        coded_non_answers=int((non_answer & ~flagged).sum()),
     )
 
 
@@ -154,7 +169,7 @@ def table_question(coding: QuestionCoding) -> tables.CodedQuestion:
         name=coding.question, label=coding.output_label, indicators=coding.indicators[:, keep],
         codes=[tables.Code(c.number, c.label) for c in kept], answered=coding.answered, non_answer=coding.non_answer,
         nets=[tables.Net(n.number, n.label, members) for n, members in kept_nets(coding.nets, kept)],
-        respondent_ids=coding.respondent_ids,
+        respondent_ids=coding.respondent_ids, has_verbatim=coding.has_verbatim,
     )
 
 
@@ -215,8 +230,24 @@ def closed_variables(study: Study, names: Sequence[str] | None = None) -> list[e
                                 "numeric closed-ended variables")
         out.append(export.ClosedVariable(
             name=v.name, values=np.asarray(survey_data.raw_values(study, v.name), dtype=float), label=v.label,
-            value_labels=dict(v.value_labels), missing_codes=sorted(v.missing_codes)))
+            value_labels=dict(v.value_labels), missing_codes=sorted(v.missing_codes),
+            measure="scale" if v.kind == "numeric" or v.role == "weight" else "nominal"))
     return out
+
+
+def _with_weight(study: Study, names: Sequence[str] | None) -> Sequence[str] | None:
+    """The closed variables to carry plus the study's weight (so the file can be weighted like the tables)."""
+    if names is None:
+        return None
+    weights = [v.name for v in survey_data.list_variables(study, role="weight") if v.kind in ("single", "numeric")]
+    return list(dict.fromkeys([*names, *weights]))
+
+
+def export_ids(keys: Sequence[str]) -> list[str] | list[int]:
+    """Respondent ids as whole numbers when every id is one written plainly (no leading zero, fits 64 bits),
+    so a numeric id stays numeric in the exported file; otherwise as text."""
+    plain = all(_PLAIN_INTEGER.fullmatch(k) for k in keys)
+    return [int(k) for k in keys] if plain and keys else list(keys)
 
 
 def coded_questions(study: Study, questions: Sequence[str] | None = None) -> list[str]:
@@ -238,7 +269,7 @@ def export_question(coding: QuestionCoding, with_text: bool = False) -> export.C
              for c in sorted(coding.codes + coding.nets, key=lambda c: c.number)]
     return export.CodedQuestion(
         name=coding.question, label=coding.output_label, frame=frame, codes=[r.tolist() for r in per_row],
-        verbatims=coding.verbatim_text if with_text else None)
+        verbatims=coding.verbatim_text if with_text else None, base=coding.answered)
 
 
 def coded_dataset(study: Study, questions: Sequence[str] | None = None, coder: str = FINAL, *,
@@ -246,16 +277,17 @@ def coded_dataset(study: Study, questions: Sequence[str] | None = None, coder: s
                   with_text: bool = False) -> tuple[export.CodedDataset, list[QuestionCoding]]:
     """The study as an export dataset: codes per question (and a `<question>_status` variable), closed variables.
 
-    `closed` names the closed-ended variables to carry (None: all single-choice and numeric ones).
+    `closed` names the closed-ended variables to carry (None: all single-choice and numeric ones); the
+    study's weight comes along either way. Code columns are missing outside each question's base.
     """
     codings = [load_coding(study, q, coder, include_suggestions=include_suggestions)
                for q in coded_questions(study, questions)]
-    carried = closed_variables(study, closed)
+    carried = closed_variables(study, _with_weight(study, closed))
     status = [export.ClosedVariable(f"{c.question}_status", c.status, f"{c.question}: coding status ({c.coder})",
                                     dict(STATUS_LABELS)) for c in codings]
     id_variable = survey_data.list_variables(study, role="id")
     dataset = export.CodedDataset(
-        respondent_ids=codings[0].respondent_ids, questions=[export_question(c, with_text) for c in codings],
+        respondent_ids=export_ids(codings[0].respondent_ids), questions=[export_question(c, with_text) for c in codings],
         closed=carried + status, id_name=id_variable[0].name if id_variable else "respondent_id",
         title=study.path.stem)
     return dataset, codings

@@ -13,7 +13,14 @@ import numpy as np
 from scipy import sparse
 
 from opencode.analysis.multiple_testing import bh_adjust
-from opencode.analysis.tables.significance import chi_square_rows, effective_bases, two_proportion_z
+from opencode.analysis.tables.significance import (
+    chi_square_rows,
+    effective_bases,
+    fisher_two_sided,
+    rao_scott_rows,
+    two_proportion_z,
+    wilson_interval,
+)
 from opencode.errors import OpenCodeError
 
 MIN_BASE = 30  # common practice (no published source): flag bases under 30 and do not test them
@@ -42,7 +49,8 @@ class CodedQuestion:
 
     `indicators` is respondents x codes (numpy or scipy.sparse, truthy = code given), columns in the order
     of `codes`. `answered` marks respondents with a verbatim that is not a non-answer; only they form the
-    base. `non_answer` marks the non-answers, shown apart.
+    base. `non_answer` marks the non-answers, shown apart as a share of `has_verbatim` (everyone who gave a
+    verbatim, coded or not; None: the answered and the non-answers).
     """
 
     name: str
@@ -53,6 +61,7 @@ class CodedQuestion:
     nets: Sequence[Net] = ()
     label: str = ""
     respondent_ids: Sequence[Any] | None = None
+    has_verbatim: Any = None
 
 
 @dataclass
@@ -122,6 +131,10 @@ class FrequencyTable:
     total_mentions: float
     weight_name: str | None
     min_base: int = MIN_BASE
+    ci_low: np.ndarray | None = None  # Wilson (1927) interval of respondent_share (Kish base when weighted)
+    ci_high: np.ndarray | None = None
+    confidence: float = 0.95
+    show_intervals: bool = False
 
     @property
     def weighted(self) -> bool:
@@ -135,7 +148,7 @@ class FrequencyTable:
 
     @property
     def non_answer_share(self) -> float:
-        """Non-answers as a share of everyone who gave a verbatim (NaN if nobody did)."""
+        """Non-answers as a share of all verbatims of the question, coded or not (NaN if there are none)."""
         return self.non_answer.weighted / self.asked.weighted if self.asked.weighted > 0 else float("nan")
 
 
@@ -144,8 +157,10 @@ class BannerTable:
     """Codes and nets by banner columns: column shares, bases, significance letters and per-row tests.
 
     `higher[r, a, b]` is 2 when column a's share is significantly higher than column b's at `confidence`,
-    1 when only at `lower_confidence`, else 0. `row_p` / `row_q` (rows x banner variables) hold the per-row
-    chi-square p-values and their Benjamini-Hochberg adjustment across the whole table.
+    1 when only at `lower_confidence`, else 0. `pair_exact[k]` says pair k was compared by Fisher's exact test
+    (a column's base under `min_base`) instead of the z-test. `row_p` / `row_q` (rows x banner variables) hold
+    the per-row chi-square p-values (first-order Rao-Scott corrected when weighted, with the mean design
+    effect in `row_design_effect`) and their Benjamini-Hochberg adjustment across the whole table.
     """
 
     question: str
@@ -171,6 +186,11 @@ class BannerTable:
     adjust_pairs: bool
     min_base: int = MIN_BASE
     pair_columns: np.ndarray = field(default_factory=lambda: np.empty((0, 2), dtype=int))
+    pair_exact: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=bool))
+    row_design_effect: np.ndarray | None = None
+    ci_low: np.ndarray | None = None  # Wilson (1927) intervals of column_share (Kish bases when weighted)
+    ci_high: np.ndarray | None = None
+    show_intervals: bool = False
 
     @property
     def weighted(self) -> bool:
@@ -198,8 +218,10 @@ class BannerTable:
         return out
 
 
-def code_frequencies(question: CodedQuestion, weight: SurveyWeight | None = None, *, min_base: int = MIN_BASE) -> FrequencyTable:
-    """Counts, % of respondents (answered base), % of mentions and non-answers of one question's codes and nets."""
+def code_frequencies(question: CodedQuestion, weight: SurveyWeight | None = None, *, min_base: int = MIN_BASE,
+                     confidence: float = 0.95) -> FrequencyTable:
+    """Counts, % of respondents (answered base) with Wilson intervals, % of mentions and non-answers of one
+    question's codes and nets."""
     n = _respondent_count(question)
     answered, non_answer = _masks(question, n)
     w = _weights(weight, question, answered | non_answer, n)
@@ -215,13 +237,15 @@ def code_frequencies(question: CodedQuestion, weight: SurveyWeight | None = None
     with np.errstate(divide="ignore", invalid="ignore"):
         respondent_share = weighted_count / base_w[0] if base_w[0] > 0 else np.full(len(rows), np.nan)
         mention_share = mentions / total_mentions if total_mentions > 0 else np.full(len(rows), np.nan)
+    ci_low, ci_high = wilson_interval(respondent_share, base_eff[0], confidence)
     return FrequencyTable(
         question=question.name, question_label=question.label or question.name, rows=rows,
         count=count.astype(int), weighted_count=weighted_count, respondent_share=respondent_share,
         mentions=mentions, mention_share=mention_share,
         base=Base(int(base_n[0]), float(base_w[0]), float(base_eff[0])),
-        non_answer=_base_of(non_answer, w), asked=_base_of(answered | non_answer, w),
+        non_answer=_base_of(non_answer, w), asked=_base_of(*_asked(question, weight, answered, non_answer, n)),
         total_mentions=total_mentions, weight_name=weight.name if weight is not None else None, min_base=min_base,
+        ci_low=ci_low, ci_high=ci_high, confidence=confidence,
     )
 
 
@@ -234,6 +258,7 @@ def banner_table(
     lower_confidence: float | None = None,
     adjust_pairs: bool = False,
     min_base: int = MIN_BASE,
+    exact_small: bool = True,
 ) -> BannerTable:
     """Codes and nets (rows) by banner variables (columns, with a Total column first), with tests.
 
@@ -242,7 +267,11 @@ def banner_table(
     at `lower_confidence` if given). With a weight the tests use the Kish effective bases of the columns.
     Each code row also gets a chi-square (present / absent by the variable's columns), Benjamini-Hochberg
     adjusted across the table; `adjust_pairs` applies Benjamini-Hochberg to the z-tests too. Columns whose
-    effective base is under `min_base` are flagged and left out of every test.
+    effective base is under `min_base` are flagged; with `exact_small` their pairs are compared by Fisher's
+    exact test on the 2 x 2 counts (effective counts, share x Kish base, rounded, when weighted) instead of the
+    z-test, otherwise left untested; they stay out of the row chi-square. With a weight the row chi-square is
+    the first-order Rao-Scott corrected Pearson statistic (Rao & Scott 1981, 1984). Every share gets a Wilson
+    (1927) score interval at `confidence` (on the Kish effective base when weighted).
     """
     if not banner:
         raise OpenCodeError(f"question {question.name!r}: a banner table needs at least one banner variable")
@@ -271,7 +300,8 @@ def banner_table(
         BannerColumn(c.variable, c.variable_label, c.code, c.label, letter) for c, letter in zip(columns[1:], letters)
     ]
 
-    count, weighted_count, (base_n, base_w, base_eff) = _tally(row_matrix, sparse.hstack(blocks, format="csr"), w)
+    column_matrix = sparse.hstack(blocks, format="csr")
+    count, weighted_count, (base_n, base_w, base_eff) = _tally(row_matrix, column_matrix, w)
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.where(base_w > 0, weighted_count / np.where(base_w > 0, base_w, 1.0), np.nan)
     testable = (base_eff >= min_base) & (base_n > 0)
@@ -282,16 +312,34 @@ def banner_table(
     ).reshape(-1, 2)
     a, b = pair_columns[:, 0], pair_columns[:, 1]
     z, pair_p = two_proportion_z(share[:, a], base_eff[a], share[:, b], base_eff[b])
-    untested = ~(testable[a] & testable[b])
+    both = testable[a] & testable[b]
+    exact = ~both & (base_n[a] > 0) & (base_n[b] > 0) & exact_small
+    if exact.any():
+        ea, eb = a[exact], b[exact]
+        pair_p[:, exact] = fisher_two_sided(share[:, ea] * base_eff[ea], base_eff[ea], share[:, eb] * base_eff[eb],
+                                            base_eff[eb])
+        z[:, exact] = np.sign(share[:, ea] - share[:, eb])
+    untested = ~(both | exact)
     z[:, untested], pair_p[:, untested] = np.nan, np.nan
     decide = bh_adjust(pair_p) if adjust_pairs else pair_p
     higher = _higher_levels(z, decide, pair_columns, len(columns), confidence, lower_confidence)
 
-    row_stat, row_df, row_p = (np.full((len(rows), len(spans)), np.nan) for _ in range(3))
+    row_stat, row_df, row_p, row_deff = (np.full((len(rows), len(spans)), np.nan) for _ in range(4))
+    squares = sparse.diags(w * w) @ column_matrix
+    present_w2 = np.asarray((row_matrix.T @ squares).todense())
+    base_w2 = np.asarray(squares.sum(axis=0)).ravel()
     for v, (start, stop) in enumerate(spans):
-        block_base = np.where(testable[start:stop], base_eff[start:stop], 0.0)
-        present = np.nan_to_num(share[:, start:stop]) * block_base
-        row_stat[:, v], row_df[:, v], row_p[:, v] = chi_square_rows(present, block_base)
+        keep = testable[start:stop]
+        if weight is None:
+            block_base = np.where(keep, base_eff[start:stop], 0.0)
+            present = np.nan_to_num(share[:, start:stop]) * block_base
+            row_stat[:, v], row_df[:, v], row_p[:, v] = chi_square_rows(present, block_base)
+        else:
+            block = slice(start, stop)
+            row_stat[:, v], row_df[:, v], row_p[:, v], row_deff[:, v] = rao_scott_rows(
+                weighted_count[:, block], np.where(keep, base_w[block], 0.0), present_w2[:, block],
+                np.where(keep, base_w2[block], 0.0), np.where(keep, base_n[block], 0.0))
+    ci_low, ci_high = wilson_interval(share, base_eff[None, :], confidence)
 
     return BannerTable(
         question=question.name, question_label=question.label or question.name, rows=rows, columns=tuple(columns),
@@ -301,6 +349,7 @@ def banner_table(
         higher=higher, pair_p=pair_p, row_stat=row_stat, row_df=row_df, row_p=row_p, row_q=bh_adjust(row_p),
         weight_name=weight.name if weight is not None else None, confidence=confidence,
         lower_confidence=lower_confidence, adjust_pairs=adjust_pairs, min_base=min_base, pair_columns=pair_columns,
+        pair_exact=exact, row_design_effect=row_deff if weight is not None else None, ci_low=ci_low, ci_high=ci_high,
     )
 
 
@@ -377,6 +426,18 @@ def _weights(weight: SurveyWeight | None, question: CodedQuestion, in_base: np.n
             f" ({negative.size} negative weight(s))"
         )
     return np.where(in_base, w, 0.0)
+
+
+def _asked(question: CodedQuestion, weight: SurveyWeight | None, answered: np.ndarray, non_answer: np.ndarray,
+           n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Everyone who gave a verbatim (coded or not) and their weights; a weight missing outside the base counts 0."""
+    asked = answered | non_answer
+    if question.has_verbatim is not None:
+        asked = asked | _bool_vector(question.has_verbatim, n, f"question {question.name!r}: verbatim mask")
+    if weight is None:
+        return asked, np.ones(n)
+    w = np.asarray(weight.values, dtype=float)
+    return asked, np.where(asked & np.isfinite(w), w, 0.0)
 
 
 def _code_matrix(question: CodedQuestion, n: int, answered: np.ndarray) -> sparse.csr_matrix:

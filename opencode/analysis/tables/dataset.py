@@ -12,6 +12,8 @@ import numpy as np
 
 from opencode.errors import OpenCodeError
 
+MEASURES = ("nominal", "ordinal", "scale")
+
 
 @dataclass(frozen=True)
 class FrameCode:
@@ -28,7 +30,9 @@ class CodedQuestion:
     """One open question: its code frame, each respondent's codes and optionally the verbatims.
 
     `codes` is aligned with the dataset's respondent ids (one iterable of code numbers per respondent)
-    or a mapping from respondent id to codes (respondents left out have no codes).
+    or a mapping from respondent id to codes (respondents left out have no codes). `base` (aligned with
+    the ids) marks the respondents whose coding is known, the base of `oecode tables`; everyone else (no
+    verbatim, a non-answer, not yet coded) is missing in every code column, never 0. None: everyone.
     """
 
     name: str
@@ -36,17 +40,23 @@ class CodedQuestion:
     frame: Sequence[FrameCode]
     codes: Sequence[Iterable[int]] | Mapping[str | int, Iterable[int]]
     verbatims: Sequence[str | None] | None = None
+    base: Sequence[bool] | None = None
 
 
 @dataclass
 class ClosedVariable:
-    """A closed-ended variable carried along for merging and tabulation (numeric codes)."""
+    """A closed-ended variable carried along for merging and tabulation (numeric codes).
+
+    `measure` is the level of measurement a statistics program shows: nominal, ordinal or scale (None:
+    nominal with value labels, scale without).
+    """
 
     name: str
     values: Sequence[float | int | None]
     label: str = ""
     value_labels: Mapping[int | float, str] = field(default_factory=dict)
     missing_codes: Sequence[int | float] = ()
+    measure: str | None = None
 
 
 @dataclass
@@ -95,6 +105,8 @@ def _validate(ds: CodedDataset) -> None:
             raise OpenCodeError(
                 f"export: question {q.name!r} has {len(q.verbatims)} verbatims for {len(ids)} respondents"
             )
+        if q.base is not None and len(q.base) != len(ids):
+            raise OpenCodeError(f"export: question {q.name!r} has a base of {len(q.base)} for {len(ids)} respondents")
         if not isinstance(q.codes, Mapping) and len(q.codes) != len(ids):
             raise OpenCodeError(
                 f"export: question {q.name!r} has codes for {len(q.codes)} respondents, expected {len(ids)}"
@@ -104,6 +116,8 @@ def _validate(ds: CodedDataset) -> None:
             if unknown:
                 raise OpenCodeError(f"export: question {q.name!r} has codes for unknown respondent id {unknown[0]!r}")
     for v in ds.closed:
+        if v.measure not in (None, *MEASURES):
+            raise OpenCodeError(f"export: variable {v.name!r}: measure {v.measure!r} is not one of {', '.join(MEASURES)}")
         if v.name.lower() in names:
             raise OpenCodeError(f"export: variable name {v.name!r} is used twice")
         names.add(v.name.lower())

@@ -17,11 +17,12 @@ from pathlib import Path
 from typing import Any, Sequence, Union
 
 from opencode.analysis.tables.crosstab import BannerTable, FrequencyTable
+from opencode.analysis.tables.mix import MixTable
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_cell
 from opencode.files.safe_write import atomic_open, atomic_path
 
-Table = Union[FrequencyTable, BannerTable]
+Table = Union[FrequencyTable, BannerTable, MixTable]
 EMPTY = "-"
 SMALL_MARK = "!"
 TABLE_CSS = """\
@@ -72,7 +73,9 @@ def layout_table(table: Table) -> Layout:
         return _layout_frequencies(table)
     if isinstance(table, BannerTable):
         return _layout_banner(table)
-    raise TypeError(f"expected a FrequencyTable or BannerTable, got {type(table).__name__}")
+    if isinstance(table, MixTable):
+        return _layout_mix(table)
+    raise TypeError(f"expected a FrequencyTable, BannerTable or MixTable, got {type(table).__name__}")
 
 
 def format_table(table: Table) -> str:
@@ -122,7 +125,7 @@ def write_xlsx(tables: Sequence[Table] | Table, path: str | os.PathLike) -> Path
     from openpyxl.styles import Alignment, Font
     from openpyxl.utils import get_column_letter
 
-    if isinstance(tables, (FrequencyTable, BannerTable)):
+    if isinstance(tables, (FrequencyTable, BannerTable, MixTable)):
         tables = [tables]
     if not tables:
         raise OpenCodeError(f"{path}: no tables to write")
@@ -132,7 +135,7 @@ def write_xlsx(tables: Sequence[Table] | Table, path: str | os.PathLike) -> Path
     bold = Font(bold=True)
     for table in tables:
         layout = layout_table(table)
-        kind = "banner" if isinstance(table, BannerTable) else "codes"
+        kind = "banner" if isinstance(table, BannerTable) else "mix" if isinstance(table, MixTable) else "codes"
         sheet = workbook.create_sheet(_sheet_name(f"{table.question} {kind}", used))
         sheet.cell(row=1, column=1, value=_xlsx_text(layout.title)).font = bold
         widths: dict[int, int] = {}
@@ -176,7 +179,7 @@ def to_html(table: Table) -> str:
         row_html = []
         for cell in cells:
             classes = []
-            if cell.kind in ("count", "amount", "share", "p"):
+            if cell.kind in ("count", "amount", "share", "p", "score"):
                 classes.append("oc-num")
             if cell.kind == "mark":
                 classes.append("oc-small" if cell.value == SMALL_MARK else "oc-mark")
@@ -202,21 +205,33 @@ def _layout_frequencies(t: FrequencyTable) -> Layout:
     layout.add("head", [Cell(h, "head") for h in head])
     small = SMALL_MARK if t.small_base else ""
 
-    def row(number, label, count, weight, share, mark, mentions, mention_share, level=0) -> list[Cell]:
+    intervals = t.show_intervals and t.ci_low is not None
+    if intervals:
+        head[head.index("% of respondents") + 2:head.index("% of respondents") + 2] = ["low", "high"]
+        layout.rows[0] = [Cell(h, "head") for h in head]
+
+    def row(number, label, count, weight, share, mark, mentions, mention_share, level=0, ci=(None, None)) -> list[Cell]:
         cells = [Cell(number), Cell(label, level=level), Cell(count, "count")]
         if weighted:
             cells.append(Cell(weight, "amount"))
-        return cells + [Cell(share, "share"), Cell(mark, "mark"), Cell(mentions, amount), Cell(mention_share, "share")]
+        cells += [Cell(share, "share"), Cell(mark, "mark")]
+        if intervals:
+            cells += [Cell(ci[0], "share"), Cell(ci[1], "share")]
+        return cells + [Cell(mentions, amount), Cell(mention_share, "share")]
 
     layout.add("base", row("", "Base: answered", t.base.n, t.base.weighted, None, small, t.total_mentions,
                            1.0 if t.total_mentions > 0 else math.nan))
     if weighted:
         layout.add("base", row("", "Effective base (Kish)", None, t.base.effective, None, "", None, None))
     for i, r in enumerate(t.rows):
+        ci = (t.ci_low[i], t.ci_high[i]) if intervals else (None, None)
         layout.add(r.kind, row(r.number, r.label, t.count[i], t.weighted_count[i], t.respondent_share[i], small,
-                               t.mentions[i], t.mention_share[i], level=r.level))
+                               t.mentions[i], t.mention_share[i], level=r.level, ci=ci))
     layout.add("other", row("", "Non-answers (share of all verbatims)", t.non_answer.n, t.non_answer.weighted,
                             t.non_answer_share, "", None, None))
+    if intervals:
+        layout.notes.append(_interval_note(t.confidence, t.weighted).replace("each percentage", "% of respondents")
+                            + " low / high: its limits.")
     layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=False)
     layout.notes.append("% of respondents can add past 100 (several codes per verbatim); % of mentions adds to 100 over codes."
                         " A net counts a respondent once; its mentions are the sum of its codes' mentions.")
@@ -258,11 +273,19 @@ def _layout_banner(t: BannerTable) -> Layout:
         cells = [Cell(row.number), Cell(row.label, level=row.level)]
         for v, (name, cols) in enumerate(blocks):
             for c in cols:
-                mark = SMALL_MARK if small[c] else letters[r, c]
+                mark = (SMALL_MARK if small[c] else "") + letters[r, c]
                 cells += [Cell(t.column_share[r, c], "share"), Cell(mark, "mark")]
             if name is not None:
                 cells.append(Cell(t.row_q[r, v - 1], "p"))
         layout.add(row.kind, cells)
+        if t.show_intervals and t.ci_low is not None:
+            cells = [Cell(""), Cell("", level=row.level)]
+            for v, (name, cols) in enumerate(blocks):
+                for c in cols:
+                    cells += [Cell(_interval_text(t.ci_low[r, c], t.ci_high[r, c]), "interval"), Cell("", "mark")]
+                if name is not None:
+                    cells.append(Cell(None, "p"))
+            layout.add("interval", cells)
 
     level = f"{round(100 * t.confidence)}%"
     lower = f"; lower case at {round(100 * t.lower_confidence)}%" if t.lower_confidence is not None else ""
@@ -271,20 +294,73 @@ def _layout_banner(t: BannerTable) -> Layout:
         f"Letters: the column % is significantly higher than the column with that letter (pooled two-proportion z-test,"
         f" upper case at {level}{lower}{adjusted}); only columns of the same banner variable are compared."
     )
-    layout.notes.append(
-        "Row test q: chi-square of code present / absent by the banner variable's columns, one test per row,"
-        " Benjamini-Hochberg adjusted across the table."
-    )
+    if t.pair_exact.any():
+        counts = "effective counts (share x Kish base, rounded)" if t.weighted else "counts"
+        layout.notes.append(f"Columns with bases under {t.min_base} ({SMALL_MARK}) are compared by Fisher's exact "
+                            f"test (two-sided, 2 x 2 {counts}) instead of the z-test.")
+    if t.weighted:
+        layout.notes.append(
+            "Row test q: Pearson chi-square of code present / absent by the banner variable's columns with the "
+            "first-order Rao-Scott correction for the weights (Rao & Scott 1981, 1984), one test per row,"
+            " Benjamini-Hochberg adjusted across the table.")
+    else:
+        layout.notes.append(
+            "Row test q: chi-square of code present / absent by the banner variable's columns, one test per row,"
+            " Benjamini-Hochberg adjusted across the table."
+        )
+    if t.show_intervals:
+        layout.notes.append(_interval_note(t.confidence, t.weighted))
+    layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=True,
+                                  exact=bool(t.pair_exact.any()))
+    return layout
+
+
+def _interval_text(low: float, high: float) -> str:
+    """A Wilson interval as '(12.3-18.9)' in percent, '' where undefined."""
+    if not (_is_number(low) and _is_number(high)):
+        return ""
+    return f"({100 * low:.1f}-{100 * high:.1f})"
+
+
+def _interval_note(confidence: float, weighted: bool) -> str:
+    base = "the Kish effective base" if weighted else "the base"
+    return (f"Intervals: {round(100 * confidence)}% Wilson (1927) score interval of each percentage, on {base}.")
+
+
+def _layout_mix(t: MixTable) -> Layout:
+    """Grid of a mix table: base, row % per category, mean score, row-test q."""
+    layout = Layout(title=f"{t.question_label}: {t.variable} within each code (row %)", label_columns=2,
+                    header_rows=1)
+    head = ["Code", "Label", "Base"] + (["Weighted base"] if t.weighted else []) + [label for _, label in t.categories]
+    head += ([t.score_label] if t.mean_score is not None else []) + ["", "Row test q"]
+    layout.add("head", [Cell(h, "head") for h in head])
+    small = t.small_base & (t.base_n > 0)
+    for r, row in enumerate(t.rows):
+        cells = [Cell("" if row.kind == "total" else row.number), Cell(row.label, level=row.level),
+                 Cell(t.base_n[r], "count")]
+        if t.weighted:
+            cells.append(Cell(t.base_weighted[r], "amount"))
+        cells += [Cell(t.share[r, k], "share") for k in range(len(t.categories))]
+        if t.mean_score is not None:
+            cells.append(Cell(t.mean_score[r], "score"))
+        cells += [Cell(SMALL_MARK if small[r] else "", "mark"), Cell(None if r == 0 else t.row_q[r], "p")]
+        layout.add("base" if row.kind == "total" else row.kind, cells)
+    layout.notes.append(f"Row %: of the respondents with the code who have a value on {t.variable!r}; each row adds "
+                        "to 100. A respondent with several codes counts in each of their rows.")
+    layout.notes.append("Row test q: chi-square of the category mix with the code against without it, one test per "
+                        "row, Benjamini-Hochberg adjusted across the table.")
     layout.notes += _common_notes(t.weighted, t.weight_name, t.min_base, tested=True)
     return layout
 
 
-def _common_notes(weighted: bool, weight_name: str | None, min_base: int, tested: bool) -> list[str]:
+def _common_notes(weighted: bool, weight_name: str | None, min_base: int, tested: bool,
+                  exact: bool = False) -> list[str]:
     """Footnotes on weighting and small bases."""
     notes = []
     if weighted:
         notes.append(f"Weighted by {weight_name!r}; " + ("tests use Kish effective bases." if tested else "bases shown weighted and unweighted."))
-    small = f"{SMALL_MARK} base under {min_base}: read with caution" + ("; not tested." if tested else ".")
+    untested = "; exact test only, left out of the row test." if exact else "; not tested."
+    small = f"{SMALL_MARK} base under {min_base}: read with caution" + (untested if tested else ".")
     notes.append(small + f" {EMPTY} no base.")
     return notes
 
@@ -298,7 +374,7 @@ def _is_number(value: Any) -> bool:
 
 def _is_missing_number(cell: Cell) -> bool:
     """A numeric cell whose value is NaN (no base)."""
-    return cell.kind in ("count", "amount", "share", "p") and cell.value is not None and not _is_number(cell.value)
+    return cell.kind in ("count", "amount", "share", "p", "score") and cell.value is not None and not _is_number(cell.value)
 
 
 def _text(cell: Cell, percent_sign: bool = False) -> str:
@@ -313,14 +389,14 @@ def _text(cell: Cell, percent_sign: bool = False) -> str:
         return f"{float(cell.value):.1f}"
     if cell.kind == "share":
         return f"{100 * float(cell.value):.1f}" + ("%" if percent_sign else "")
-    if cell.kind == "p":
-        return f"{float(cell.value):.3f}"
+    if cell.kind in ("p", "score"):
+        return f"{float(cell.value):+.3f}" if cell.kind == "score" else f"{float(cell.value):.3f}"
     return str(cell.value)
 
 
 def _align(text: str, width: int, cell: Cell) -> str:
     """Numbers right-aligned, labels and marks left-aligned, indented by level."""
-    if cell.kind in ("count", "amount", "share", "p"):
+    if cell.kind in ("count", "amount", "share", "p", "score"):
         return text.rjust(width)
     return text.ljust(width)
 
@@ -337,7 +413,7 @@ def _csv_value(cell: Cell) -> Any:
         return round(float(cell.value), 2)
     if cell.kind == "share":
         return round(100 * float(cell.value), 1)
-    if cell.kind == "p":
+    if cell.kind in ("p", "score"):
         return round(float(cell.value), 4)
     return guard_cell(str(cell.value))
 
@@ -358,7 +434,7 @@ def _xlsx_value(cell: Cell) -> Any:
         return EMPTY
     if cell.kind == "count":
         return int(cell.value)
-    if cell.kind in ("amount", "share", "p"):
+    if cell.kind in ("amount", "share", "p", "score"):
         return float(cell.value)
     if isinstance(cell.value, str):
         return _xlsx_text(cell.value)

@@ -90,6 +90,25 @@ def default_min_share(k: int) -> float:
     return min(0.5, 1.5 / k)
 
 
+CATCH_ALL_SHARE = 0.30  # common practice (no published source): a theme over 30% of verbatims is read as a lump
+
+
+def catch_all_limit(k: int) -> float:
+    """The share above which one of k themes is a catch-all: 30%, or twice an even share (2/k) when that is
+    more (with 4 themes an even split already gives 25% each, so a lump starts above 50%)."""
+    return max(CATCH_ALL_SHARE, 2.0 / k)
+
+
+def largest_share(dominant: np.ndarray, included: np.ndarray, k: int) -> tuple[int, float]:
+    """The theme dominating the most verbatims with terms, and its share of them."""
+    n_included = int(np.asarray(included, dtype=bool).sum())
+    counts = np.bincount(dominant[dominant >= 0], minlength=k)
+    if n_included == 0:
+        return 0, 0.0
+    top = int(counts.argmax())
+    return top, float(counts[top] / n_included)
+
+
 def dominant_themes(shares: np.ndarray, weights: np.ndarray, min_share: float) -> np.ndarray:
     """Each verbatim's strongest theme, or -1 when no theme explains it (weights ~0 or max share too low)."""
     total = weights.sum(axis=1)

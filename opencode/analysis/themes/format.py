@@ -22,7 +22,7 @@ def format_themes(run: ThemeRun, n_terms: int = 8, n_verbatims: int = 2, width: 
     lines = [f"{len(run.themes)} themes ({run.params.get('method', '?')}) from {included} verbatims with terms "
              f"of {run.n_docs}; {run.n_empty} empty, {run.n_unexplained} explained by no theme"]
     for theme in run.themes:
-        seeded = "  [seeded]" if theme.seed_terms else ""
+        seeded = ("  [seeded]" if theme.seed_terms else "") + ("  [catch-all]" if theme.catch_all else "")
         lines.append("")
         lines.append(f"{theme.index + 1:>2}. {theme.label}  {theme.n_dominant} verbatims ({theme.share:.1%})  "
                      f"NPMI {theme.npmi:+.2f}  UMass {theme.umass:.2f}{seeded}")
@@ -37,11 +37,20 @@ def format_themes(run: ThemeRun, n_terms: int = 8, n_verbatims: int = 2, width: 
 
 
 def format_k_search(search: KSearch) -> str:
-    """The k-selection curve as a table, the recommended k marked with '*', then the explanation."""
-    rows = [["*" if row.k == search.recommended_k else "", row.k, f"{row.npmi:+.3f}", f"{row.umass:.2f}",
-             f"{row.stability:.3f}", f"{row.unexplained:.1%}", f"{row.combined_rank:.1f}"]
-            for row in search.table.itertuples()]
-    table = format_table(["", "k", "NPMI", "UMass", "stability", "unexplained", "rank"], rows, align="lrrrrrr")
+    """The k-selection curve as a table, the recommended k marked with '*' and each k with a catch-all theme
+    marked, then the rule and why it chose k."""
+    has_largest = "largest" in search.table.columns  # searches kept before the largest share was measured
+    rows = []
+    for row in search.table.itertuples():
+        cells = ["*" if row.k == search.recommended_k else "", row.k, f"{row.npmi:+.3f}", f"{row.umass:.2f}",
+                 f"{row.stability:.3f}", f"{row.unexplained:.1%}"]
+        if has_largest:
+            cells += [f"{row.largest:.0%}", "catch-all" if row.catch_all else ""]
+        rows.append(cells + [f"{row.combined_rank:.1f}"])
+    headers = ["", "k", "NPMI", "UMass", "stability", "unexplained"]
+    headers += ["largest", "theme"] if has_largest else []
+    align = "lrrrrr" + ("rl" if has_largest else "") + "r"
+    table = format_table(headers + ["rank"], rows, align=align)
     return "\n".join([table, "", search.note])
 
 

@@ -3,11 +3,19 @@
 Each k is fitted once on all verbatims with terms (the reference) and scored by the mean NPMI and UMass
 coherence of its themes' top terms on the study's own verbatims (see coherence.py), and by its stability
 (Greene, O'Callaghan & Cunningham 2014): the mean agreement between the reference and models fitted on
-random 80% resamples of the verbatims (see theme_stability.py). The recommended k has the best mean of its
-NPMI rank and its stability rank (ties: the more stable, then the smaller k). UMass is shown for reference
-only: Lau, Newman & Baldwin (2014) found NPMI closer to human judgements. For speed the search reuses one
-tf-idf matrix and one set of resamples for every k, fits on at most `max_docs` sampled verbatims, and stops
-earlier (max_iter, tol) than a final fit.
+random 80% resamples of the verbatims (see stability.py), and by the share of verbatims with terms that its
+largest theme dominates.
+
+The rule that picks k (RULE below, printed with every search):
+  1. Rank every k by mean NPMI (higher is better) and by stability (higher is better).
+  2. Leave out each k whose largest theme is a catch-all: it dominates more than 30% of the verbatims with
+     terms, or more than twice an even share (2/k) when that is larger (common practice, no published
+     source). A catch-all lumps unlike answers together, so a k that needs one does not split the answers.
+  3. Recommend, among the k left, the best mean of the two ranks; ties go to the more stable k, then the
+     smaller. When every k has a catch-all, the rule picks among all of them and says so.
+UMass is shown for reference only: Lau, Newman & Baldwin (2014) found NPMI closer to human judgements. For
+speed the search reuses one tf-idf matrix and one set of resamples for every k, fits on at most `max_docs`
+sampled verbatims, and stops earlier (max_iter, tol) than a final fit.
 """
 
 from __future__ import annotations
@@ -25,10 +33,14 @@ from sklearn.exceptions import ConvergenceWarning
 
 from opencode.analysis.themes.coherence import coherence, top_term_indices
 from opencode.analysis.themes.stability import stability
-from opencode.analysis.themes.finder import ThemeFinder, as_count_matrix, check_corpus, leading_svd, nndsvd_start
+from opencode.analysis.themes.finder import (ThemeFinder, as_count_matrix, catch_all_limit, check_corpus,
+                                             largest_share, leading_svd, nndsvd_start)
 from opencode.errors import OpenCodeError
 
 DEFAULT_K_RANGE = "4:20"
+RULE = ("k is picked by the best mean of its NPMI rank and its stability rank, leaving out any k whose largest "
+        "theme is a catch-all (more than 30% of the verbatims with terms, or twice an even share 2/k when that "
+        "is more); ties go to the more stable, then the smaller k")
 
 
 @dataclass
@@ -137,19 +149,47 @@ def choose_k(counts, k_range: str | Iterable[int] = DEFAULT_K_RANGE, *, method: 
             warnings.simplefilter("ignore", ConvergenceWarning)  # the search stops early on purpose
             reference, (top, *resampled_tops) = _fit_k(template, k, matrices, starts, n_top, max_iter, tol)
         npmi, umass = coherence(kept_counts, top)
+        _, largest = largest_share(reference.dominant_theme_, reference.included_, k)
         rows.append({"k": k, "npmi": float(npmi.mean()), "umass": float(umass.mean()),
                      "stability": stability(top, resampled_tops),
                      "unexplained": float((reference.dominant_theme_ < 0).mean()),
+                     "largest": largest, "catch_all": bool(largest > catch_all_limit(k)),
                      "seconds": time.perf_counter() - started})
         if progress is not None:
             progress(done, len(ks), k)
-    table = pd.DataFrame(rows)
+    table, recommended, note = recommend_k(pd.DataFrame(rows))
+    return KSearch(table=table, recommended_k=recommended, note=note)
+
+
+def recommend_k(table: pd.DataFrame) -> tuple[pd.DataFrame, int, str]:
+    """Apply RULE to a k table (columns k, npmi, stability, largest, catch_all): the table with its ranks,
+    the recommended k and the sentences saying why."""
+    table = table.copy()
+    n = len(table)
     table["rank_npmi"] = table["npmi"].rank(ascending=False, method="min")
     table["rank_stability"] = table["stability"].rank(ascending=False, method="min")
     table["combined_rank"] = (table["rank_npmi"] + table["rank_stability"]) / 2
-    best = table.sort_values(["combined_rank", "stability", "k"], ascending=[True, False, True]).iloc[0]
+    order = ["combined_rank", "stability", "k"]
+    ranked = table.sort_values(order, ascending=[True, False, True])
+    eligible = ranked[~ranked["catch_all"].astype(bool)]
+    best = (eligible if len(eligible) else ranked).iloc[0]
     recommended = int(best["k"])
-    note = (f"Recommended k = {recommended}: the best mean of its NPMI coherence rank and its stability rank "
-            f"among k = {ks[0]}..{ks[-1]} (UMass is shown for reference). The numbers only shortlist: reading "
-            f"the themes and their verbatims is the final test, so also look at k = {recommended} +/- 2.")
-    return KSearch(table=table, recommended_k=recommended, note=note)
+    ks = table["k"].tolist()
+    why = (f"Recommended k = {recommended}: NPMI rank {int(best['rank_npmi'])} and stability rank "
+           f"{int(best['rank_stability'])} of {n} (mean {best['combined_rank']:.1f}); its largest theme holds "
+           f"{best['largest']:.0%} of the verbatims with terms.")
+    ahead = ranked.iloc[:list(ranked["k"]).index(best["k"])]
+    passed = ahead[ahead["catch_all"].astype(bool)]
+    if len(eligible) == 0:
+        why += (" Every k in the range has a catch-all theme, so none could be left out: try a larger k, "
+                "phrases, or more stop words, and read the largest theme's verbatims.")
+    elif len(passed):
+        skipped = ", ".join(f"k = {int(r.k)} (largest theme {r.largest:.0%})" for r in passed.itertuples())
+        why += f" Ranked better but left out for a catch-all theme: {skipped}."
+    top_npmi = table.loc[table["npmi"].idxmax()]
+    if int(top_npmi["k"]) != recommended:
+        why += f" The best NPMI alone is at k = {int(top_npmi['k'])}."
+    note = (f"Rule: {RULE}. {why} k = {ks[0]}..{ks[-1]} were scored (UMass is shown for reference). The numbers "
+            f"only shortlist: reading the themes and their verbatims is the final test, so also look at "
+            f"k = {recommended} +/- 2.")
+    return table, recommended, note

@@ -40,7 +40,7 @@ from opencode.files.textout import format_table
 KIND_THEMES, KIND_K_SEARCH = "themes", "k-search"
 DEFAULT_MIN_DF = 2  # common practice (no published source): drop one-off words and typos before finding themes
 RULE_TERMS = 5
-_PLACEHOLDER = re.compile(r"^_\w+_$")
+_PLACEHOLDER = re.compile(r"^(?:#\w+|_\w+_)$")  # #number, #url, #email (and the _num_ of older runs)
 
 
 @dataclass
@@ -72,6 +72,12 @@ class QuestionThemes:
     settings: dict[str, Any]
     run_id: int | None = None
     created_at: str | None = None
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per theme: number, label, top terms, share of verbatims, dominant count, NPMI and UMass."""
+        return pd.DataFrame([{"theme": t.index + 1, "label": t.label, "top_terms": ", ".join(t.top_terms),
+                              "share": t.share, "n_dominant": t.n_dominant, "npmi": t.npmi, "umass": t.umass}
+                             for t in self.run.themes])
 
 
 @dataclass
@@ -376,7 +382,7 @@ def unexplained_in_run(study: Study, run_id: int) -> pd.DataFrame:
 def theme_rule(top_terms: Sequence[str], analyzer: Any, n_terms: int = RULE_TERMS) -> str:
     """A starting keyword rule from a theme's top terms: "term1 OR term2 OR ..." (phrases quoted).
 
-    Placeholder terms (e.g. _num_) and words the analyzer drops are skipped; the rule is checked by parsing.
+    Placeholder terms (e.g. #number) and words the analyzer drops are skipped; the rule is checked by parsing.
     """
     parts = []
     for term in top_terms:

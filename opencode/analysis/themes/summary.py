@@ -19,7 +19,7 @@ from sklearn.preprocessing import normalize
 from opencode.analysis.themes.coherence import coherence, top_term_indices
 from opencode.analysis.multiple_testing import bh_adjust
 from opencode.analysis.themes.stability import depth_jaccard, match_themes
-from opencode.analysis.themes.finder import ThemeFinder, as_count_matrix
+from opencode.analysis.themes.finder import ThemeFinder, as_count_matrix, catch_all_limit
 from opencode.errors import OpenCodeError
 
 RECORD_FORMAT = "opencode.themes/1"
@@ -52,6 +52,7 @@ class ThemeSummary:
     umass: float
     representatives: list[Representative] = field(default_factory=list)
     seed_terms: list[str] | None = None
+    catch_all: bool = False
 
 
 @dataclass
@@ -167,30 +168,22 @@ def _prevalence_from_record(record: dict) -> Prevalence:
                       tests=tests, tested_groups=list(record["tested_groups"]), note=record["note"])
 
 
-_BARE_NEGATIONS = frozenset({"not", "never", "none", "nor", "nothing", "nobody"})
-
-
 def propose_code_label(top_labels: Sequence[str], n_words: int = 3) -> str:
-    """A short draft code label from a theme's top terms, e.g. "Staff / safety / evenings".
+    """A draft code label: a theme's top-weighted terms as they are, e.g. "no damage / engine / ce".
 
-    Terms that repeat an earlier one (same word, or one a prefix of the other, e.g. staff / staffing) are
-    skipped, and so are words that name nothing on their own (numbers, words under three letters, a bare
-    negation); phrase terms joined by "_" read as words.
+    Nothing is dropped for being short, a placeholder or a negation: dropping "no" can reverse what a theme
+    says, and dropping "ce" loses a two-letter abbreviation that may be the theme's heart. When the lexicon
+    joins negations ("negations join"), "no damage" is one term and stays together here. Only an exact repeat
+    is skipped; phrase terms joined by "_" read as words.
     """
     chosen: list[str] = []
     for raw in top_labels:
         term = " ".join(str(raw).replace("_", " ").split())
-        lowered = term.lower()
-        if len(lowered) < 3 or lowered.isdigit() or lowered in _BARE_NEGATIONS:
-            continue
-        if any(lowered.startswith(c.lower()) or c.lower().startswith(lowered) for c in chosen):
-            continue
-        chosen.append(term)
+        if term and term not in chosen:
+            chosen.append(term)
         if len(chosen) == n_words:
             break
-    if not chosen:
-        return "Unnamed theme"
-    return " / ".join([chosen[0][:1].upper() + chosen[0][1:]] + chosen[1:])
+    return " / ".join(chosen) if chosen else "Unnamed theme"
 
 
 def _normalised_text(text: str | None) -> str | None:
@@ -307,8 +300,14 @@ def summarise(finder: ThemeFinder, counts, terms: Sequence[str], *, texts: Seque
             npmi=float(npmi[theme]), umass=float(umass[theme]),
             representatives=representatives(finder.weights_, finder.doc_theme_, finder.dominant_theme_, theme,
                                             unit_rows, n_representatives, texts, doc_ids),
-            seed_terms=seeds[theme] if theme < len(seeds) else None))
+            seed_terms=seeds[theme] if theme < len(seeds) else None,
+            catch_all=bool(n_included and n_dominant[theme] / n_included > catch_all_limit(finder.n_themes))))
     notes = []
+    for summary in themes:
+        if summary.catch_all:
+            notes.append(f"theme {summary.index + 1} ({summary.label}) holds {summary.share:.0%} of the verbatims "
+                         f"with terms: a catch-all (over {catch_all_limit(finder.n_themes):.0%}). It likely lumps "
+                         "unlike answers together; read its verbatims, and try a larger k or the k search")
     if finder.n_empty_:
         notes.append(f"{finder.n_empty_} of {n_docs} verbatims have no terms after the lexicon and were left out")
     if finder.n_unexplained_:

@@ -69,7 +69,24 @@ class DeskScreen(StudyScreen):
         seconds = getattr(self.app, "refresh_seconds", 0)
         if seconds:
             self.set_interval(seconds, self.periodic_refresh)
+        self._changes = None
+        if self.session.study.on_server:  # other coders' work and frame edits, as the server announces them
+            from opencode.study.changes import subscribe
+
+            self._changes = subscribe(self.session.study.path, self._heard, ignore_coder=self.session.coder,
+                                      min_interval=0.5)
         self.redraw()
+
+    def _heard(self, changes) -> None:
+        """Called on the change feed's thread: refresh on the app's own thread."""
+        try:
+            self.app.call_from_thread(self.periodic_refresh)
+        except RuntimeError:  # the app is closing
+            pass
+
+    def on_unmount(self) -> None:
+        if self._changes is not None:
+            self._changes.stop()
 
     stale = False  # set when another screen (not a dialog) was shown over the desk
 
