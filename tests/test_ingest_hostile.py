@@ -113,8 +113,8 @@ CASES: dict[str, tuple] = {
     # -- cells ------------------------------------------------------------------------------------------------
     "text in a numeric column": ("s.csv", b"rid,why,visits\nA1,a,3\nA2,b,lots\n", {"kinds": {"visits": "numeric"}},
                                  "row 3 (data row 2), column visits: 'lots' is not a number"),
-    "bad multiple cell": ("s.csv", b"rid,why,m\nA1,a,\"1,2\"\nA2,b,one\n", {"kinds": {"m": "multiple"}},
-                          "column m: 'one' is not a list of code numbers"),
+    "text in the weight": ("s.csv", b"rid,why,wt\nA1,a,1.2\nA2,b,heavy\n", {"weight": "wt"},
+                           "row 3 (data row 2), column wt: 'heavy' is not a number"),
     "bad date": ("s.csv", b"rid,why,d\nA1,a,2024-01-02\nA2,b,yesterday\n", {"kinds": {"d": "date"}},
                  "column d: 'yesterday' is not a date"),
     "unknown kind": ("s.csv", b"rid,why,k\nA1,a,1\n", {"kinds": {"k": "colour"}}, "unknown kind 'colour'"),
@@ -246,9 +246,10 @@ def _texts(tmp_path: Path, content: bytes, name: str = "s.csv", **options) -> tu
 
 def test_none_null_nan_are_answers_kept_as_typed(tmp_path):
     texts, flags, report = _texts(tmp_path, b"rid,why\nA1,None\nA2,NULL\nA3,nan\nA4,NaN\nA5,\\N\nA6,\nA7,N/A\n")
-    assert texts == ["None", "NULL", "nan", "NaN", "\\N", "", "N/A"]
-    assert flags[5]  # the empty cell: the format's own missing value
-    assert not any(flags[i] for i in (1, 2, 3, 4))  # NULL, nan, NaN and \N are text, not non-answers
+    # the empty cell and \\N (a database dump's null marker) are the format's own missing values
+    assert texts == ["None", "NULL", "nan", "NaN", "", "", "N/A"]
+    assert flags[4] and flags[5]
+    assert not any(flags[i] for i in (1, 2, 3))  # NULL, nan and NaN are text, not non-answers
 
 
 def test_xlsx_keeps_none_na_and_null_as_text(tmp_path):

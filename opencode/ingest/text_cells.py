@@ -2,8 +2,9 @@
 
 An answer is kept exactly as the respondent typed it: "None", "NULL", "nan" or "n/a" are answers (the
 non-answer flag may mark some of them, but never changes the text). Only the format's own empty value is
-missing: an empty CSV cell, an empty spreadsheet cell, a declared null in .sav, .dta or Parquet. In
-closed-ended (numeric or coded) columns the usual database null markers below also read as missing.
+missing: an empty CSV cell (or \\N, a database dump's null), an empty spreadsheet cell, a declared null in
+.sav, .dta or Parquet. In closed-ended (numeric or coded) columns the usual database null markers below also
+read as missing.
 """
 
 from __future__ import annotations
@@ -12,6 +13,8 @@ import re
 
 import pandas as pd
 
+#: The null marker of database text dumps: missing in every column (no respondent types it).
+DUMP_NULL = "\\N"
 #: In closed-ended columns only: cells that mean "no value" in text exports ("\\N" from database dumps, NULL,
 #: and the like). Never applied to open answers.
 NULL_MARKERS = frozenset({"", "\\N", "NULL", "null", "NaN", "nan", "#NULL!", "."})
@@ -35,8 +38,11 @@ def as_text(series: pd.Series) -> pd.Series:
 
 def clean_text(series: pd.Series) -> pd.Series:
     """Text exactly as given, minus characters that break display; a line break is LF (CR LF and a lone CR
-    inside a quoted answer both become LF, so no line break is lost). Empty cells become ""."""
+    inside a quoted answer both become LF, so no line break is lost). Empty cells, and the database dump's
+    null marker \\N (MySQL and PostgreSQL text dumps: that format's own missing value, never typed by a
+    respondent), become ""."""
     text = as_text(series).astype("string[pyarrow]")
+    text = text.where(text != DUMP_NULL, "")
     # Most columns hold none of these characters: one fast look, and replace only where needed.
     if text.str.contains(_NEEDS_CLEANING, regex=True).any():
         text = (text.str.replace("\r\n", "\n", regex=False).str.replace("\r", "\n", regex=False)
