@@ -98,7 +98,7 @@ CASES: dict[str, tuple] = {
     "line break lost in export": ("s.csv", b"rid,why,support\nA1,first half\nsecond half,1\nA2,ok,2\n", {},
                                   "row 2, line 2: has 2 fields"),
     "semicolon file read with comma": ("s.csv", b"rid;why;support\nA1;a,b;1\nA2;c;2\n", {"delimiter": ","},
-                                       "has 2 fields but the header has 1"),
+                                       "no column named 'rid' for --id (columns: rid;why;support)"),
     # -- ids --------------------------------------------------------------------------------------------------
     "missing id": ("s.csv", b"rid,why\nA1,fine\n,no id\n", {}, "missing respondent id in row 3"),
     "duplicate id": ("s.csv", b"rid,why\nA1,fine\nA2,ok\nA1,again\n", {}, "'A1' appears more than once (row 2"),

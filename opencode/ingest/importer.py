@@ -166,7 +166,7 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
     study_path = as_study_target(study_path)
     say(f"reading {source}")
     table = read_survey_file(source, sheet=options.sheet, encoding=options.encoding, delimiter=options.delimiter,
-                             text_columns=(options.id_column, *options.questions))
+                             text_columns=(options.id_column, *options.questions), defer_checks=True)
     if options.labels_file:
         apply_labels_file(table, options.labels_file)
     if not options.questions:
@@ -181,12 +181,12 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
         plans = pool.submit(plan_columns, table, options)
         keys = _respondent_keys(table, options.id_column)
         if report.created and isinstance(study_path, ServerAddress):  # created and filled in one transaction
-            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report)).close()
+            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report, table)).close()
         elif report.created:
-            _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
+            _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report, table))
         else:
             with Study.open(study_path) as study, study.transaction():
-                _write(study, keys, plans.result, report)
+                _write(study, keys, plans.result, report, table)
     return report
 
 
@@ -215,7 +215,8 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
                 os.remove(str(temp) + extra)
 
 
-def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport) -> None:
+def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport,
+           table: RawTable) -> None:
     existing = survey_data.respondent_ids_by_key(study)
     next_id = len(existing) + 1
     new_keys = [k for k in keys if k not in existing] if existing else keys
@@ -236,6 +237,7 @@ def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]],
             _write_verbatims(study, variable_id, plan, respondent_ids, report)
         else:
             _write_values(study, variable_id, plan, respondent_ids, total)
+    table.verify()  # the row check ran on the other core while SQLite wrote; a bad row undoes all of it
     study.audit("import", "import", "study", None, {
         "source": str(report.source), "source_path": os.path.abspath(report.source),
         "respondents_added": report.respondents_added,

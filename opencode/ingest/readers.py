@@ -6,8 +6,10 @@ import csv
 import io
 import re
 import zipfile
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -30,6 +32,14 @@ class RawTable:
     encoding: str | None = None
     #: the row number in the file of each data row, where it differs from index + 2 (XLSX with empty rows)
     source_rows: list[int] | None = None
+    #: a check still running on the second core (the field count of each row), see `verify`
+    pending: Callable[[], None] | None = None
+
+    def verify(self) -> None:
+        """Finish the checks still running (raises like the reader would); call before keeping the data."""
+        if self.pending is not None:
+            check, self.pending = self.pending, None
+            check()
 
     def row_name(self, index: int) -> str:
         """How to name data row `index` (0-based) to a user."""
@@ -41,11 +51,14 @@ class RawTable:
 
 
 def read_survey_file(path: str | Path, *, sheet: str | int | None = None, encoding: str | None = None,
-                     delimiter: str | None = None, text_columns: tuple[str, ...] = ()) -> RawTable:
+                     delimiter: str | None = None, text_columns: tuple[str, ...] = (),
+                     defer_checks: bool = False) -> RawTable:
     """Read CSV/TSV, XLSX, SPSS .sav, Stata .dta or Parquet; bad files raise a clear OpenCodeError.
 
     In delimited text, `text_columns` are read as strings exactly as given; other columns get their types
     inferred, with the usual null markers read as empty. Without `text_columns` every column is read as text.
+    With `defer_checks` the count of fields in every row may still be running: the caller calls
+    `table.verify()` before it keeps anything (the importer does so while SQLite writes, on the other core).
     """
     path = Path(path)
     kind = detect_format(path)
@@ -63,7 +76,10 @@ def read_survey_file(path: str | Path, *, sheet: str | int | None = None, encodi
     if len(table.frame.columns) == 0:
         raise OpenCodeError(f"{path}: no columns found")
     if len(table.frame) == 0:
+        table.verify()
         raise OpenCodeError(f"{path}: has a header but no data rows")
+    if not defer_checks:
+        table.verify()
     return table
 
 
@@ -145,11 +161,19 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
     body = (raw[3:] if used == "utf-8-sig" else raw) if utf8 else None
     source = (lambda: io.BytesIO(body)) if utf8 else (lambda: io.StringIO(text))
     names = _header_names(path, text, sep)
+    counts = None
     if names and len(sep) == 1:
         data = body if utf8 else text.encode("utf-8", errors="surrogatepass")
-        if not _field_counts_look_even(data, sep, len(names)):
+        # numpy releases the GIL: the fast field count runs on the second core while pandas parses
+        pool = ThreadPoolExecutor(max_workers=1)
+        counts = pool.submit(_field_counts_look_even, data, sep, len(names))
+        pool.shutdown(wait=False)
+
+    def check_counts() -> None:
+        if counts is not None and not counts.result():
             # the close look, on the whole text (for UTF-8 only the head was decoded so far)
             _check_field_counts(path, body.decode("utf-8") if utf8 else text, sep, len(names))
+
     try:
         header = pd.read_csv(source(), sep=sep, nrows=0, engine="c").columns
         typed = [c for c in header if str(c).strip() not in text_columns] if text_columns else []
@@ -162,6 +186,7 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
             for column in as_given:
                 frame[column] = exact[column]
     except pd.errors.ParserError as error:
+        check_counts()  # names the rows with the wrong number of fields, if that is what it is
         match = _RAGGED.search(str(error))
         if match:
             expected, line, saw = match.groups()
@@ -171,7 +196,7 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
     except pd.errors.EmptyDataError as error:
         raise OpenCodeError(f"{path}: the file is empty") from error
     frame.columns = [str(c).strip() for c in frame.columns]
-    return RawTable(path, frame, kind, encoding=used)
+    return RawTable(path, frame, kind, encoding=used, pending=check_counts)
 
 
 _FORMULA_TAG = re.compile(rb"<(?:\w+:)?f[\s>/]")

@@ -58,4 +58,6 @@ def respondent_keys(series: pd.Series) -> pd.Series:
     """Respondent ids as text, stripped, with whole numbers written as decimals ("1.0", as spreadsheets and
     some exports write them) read as the number ("1"): one respondent, never two."""
     keys = as_text(series).str.strip()
+    if not keys.str.contains(".", regex=False).any():  # one fast look; most id columns have no decimals
+        return keys
     return keys.str.replace(_WHOLE_NUMBER_WRITTEN_AS_DECIMAL, r"\1", regex=True)
