@@ -3,11 +3,19 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import importlib
+import os
+import sqlite3
 import sys
 
 from opencode.version import __version__
 from opencode.errors import OpenCodeError
+from opencode.files.targets import output_policy
+from opencode.files.terminal_text import TerminalStream, terminal_text
+
+#: Verbs that draw a full-screen terminal app: their output is not filtered.
+SCREEN_VERBS = {"code"}
 
 #: verb -> module in opencode.commands providing `register(subparsers)`; the verb's handler is set there.
 VERBS = {
@@ -50,10 +58,37 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        return int(args.handler(args) or 0)
+        with _command_output(args):
+            return int(args.handler(args) or 0)
     except OpenCodeError as error:
-        print(f"oecode {args.verb}: {error}", file=sys.stderr)
+        print(f"oecode {args.verb}: {terminal_text(str(error))}", file=sys.stderr)
+        return 1
+    except (OSError, sqlite3.DatabaseError) as error:  # a failure no library call turned into a message yet
+        if os.environ.get("OECODE_DEBUG") == "1":
+            raise
+        where = getattr(error, "filename", None) or getattr(args, "study", None) or "a file"
+        reason = getattr(error, "strerror", None) or str(error) or type(error).__name__
+        print(f"oecode {args.verb}: {terminal_text(str(where))}: {terminal_text(reason)} (OECODE_DEBUG=1 shows "
+              "the details)", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
         print(f"oecode {args.verb}: interrupted; nothing was half-written", file=sys.stderr)
         return 130
+
+
+@contextlib.contextmanager
+def _command_output(args: argparse.Namespace):
+    """While a verb runs: existing files are replaced only with --overwrite (or a yes at a terminal prompt),
+    and nothing from user data can send control characters to the terminal."""
+    from opencode.commands.common import confirm_replace
+
+    with output_policy(overwrite=bool(getattr(args, "overwrite", False)), confirm=confirm_replace):
+        if args.verb in SCREEN_VERBS:
+            yield
+            return
+        out, err = sys.stdout, sys.stderr
+        sys.stdout, sys.stderr = TerminalStream(out), TerminalStream(err, keep_cr=True)
+        try:
+            yield
+        finally:
+            sys.stdout, sys.stderr = out, err

@@ -65,6 +65,74 @@ def csv_sets() -> dict[str, dict[str, frozenset[int]]]:
     return sets
 
 
+@pytest.fixture
+def locked_folder(tmp_path: Path, monkeypatch) -> Path:
+    """A folder nobody may write in (mode 0555). Root ignores the mode, so under root (CI) the refusals the
+    kernel gives an ordinary user are simulated at the system-call level: os.access says no, and creating,
+    renaming or opening a file for writing inside the folder raises PermissionError (EACCES)."""
+    import builtins
+    import errno
+    import os
+
+    folder = tmp_path / "locked"
+    folder.mkdir()
+    folder.chmod(0o555)
+    if os.geteuid() == 0:
+        inside = str(folder.resolve())
+
+        def within(path) -> bool:
+            try:
+                text = os.path.realpath(os.fspath(path))
+            except TypeError:
+                return False
+            return text == inside or text.startswith(inside + os.sep)
+
+        def refuse(path):
+            raise PermissionError(errno.EACCES, os.strerror(errno.EACCES), os.fspath(path))
+
+        real_access, real_open, real_mkdir = os.access, os.open, os.mkdir
+        real_replace, real_rename, real_builtin_open = os.replace, os.rename, builtins.open
+
+        def access(path, mode, *args, **kwargs):
+            if mode & os.W_OK and within(path):
+                return False
+            return real_access(path, mode, *args, **kwargs)
+
+        def os_open(path, flags, *args, **kwargs):
+            if flags & (os.O_CREAT | os.O_WRONLY | os.O_RDWR) and within(path):
+                refuse(path)
+            return real_open(path, flags, *args, **kwargs)
+
+        def mkdir(path, *args, **kwargs):
+            if within(os.path.dirname(os.path.abspath(path))):
+                refuse(path)
+            return real_mkdir(path, *args, **kwargs)
+
+        def replace(src, dst, *args, **kwargs):
+            if within(dst):
+                refuse(dst)
+            return real_replace(src, dst, *args, **kwargs)
+
+        def rename(src, dst, *args, **kwargs):
+            if within(dst):
+                refuse(dst)
+            return real_rename(src, dst, *args, **kwargs)
+
+        def builtin_open(file, mode="r", *args, **kwargs):
+            if isinstance(file, (str, bytes, os.PathLike)) and any(m in mode for m in "wax+") and within(file):
+                refuse(file)
+            return real_builtin_open(file, mode, *args, **kwargs)
+
+        monkeypatch.setattr(os, "access", access)
+        monkeypatch.setattr(os, "open", os_open)
+        monkeypatch.setattr(os, "mkdir", mkdir)
+        monkeypatch.setattr(os, "replace", replace)
+        monkeypatch.setattr(os, "rename", rename)
+        monkeypatch.setattr(builtins, "open", builtin_open)
+    yield folder
+    folder.chmod(0o755)
+
+
 @dataclass(frozen=True)
 class DemoRun:
     """What one `oecode demo` left behind: its output folder, its exit status and what it printed."""

@@ -141,11 +141,13 @@ def test_control_characters_dropped_text_kept(tmp_path):
         assert survey_data.verbatims(study, "why")["text"].tolist()[0] == "bad bell[31m and flip"
 
 
-def test_null_markers_are_empty(tmp_path):
+def test_null_markers_are_empty_in_closed_columns_and_kept_in_answers(tmp_path):
+    # "\\N" is a database dump's own null marker: missing in answers and closed-ended columns alike.
     path = tmp_path / "n.csv"
-    path.write_text("rid,why,age\nR1,\\N,\\N\nR2,fine,2\n", encoding="utf-8")
+    path.write_text("rid,why,age\nR1,\\N,\\N\nR2,fine,2\nR3,,3\n", encoding="utf-8")
     target, _ = _import(tmp_path, path)
     with Study.open(target) as study:
         frame = survey_data.verbatims(study, "why")
-        assert frame["text"].tolist()[0] == "" and frame["nonanswer"].tolist()[0]
+        assert frame["text"].tolist() == ["", "fine", ""]
+        assert frame["nonanswer"].tolist()[0] and frame["nonanswer"].tolist()[2]
         assert np.isnan(survey_data.analysis_values(study, "age")[0])

@@ -136,8 +136,13 @@ def test_other_formats_and_verbatim_reminders(study_path, tmp_path, capsys):
     assert code == 0 and "masked" in err
     assert load_workbook(xlsx, read_only=True).sheetnames == ["data", "frame", "variables"]
     csv_path = tmp_path / "coded.csv"
+    frame_before = (tmp_path / "coded-frame.csv").read_bytes()  # written beside coded.dta above
     code, _, err = run(capsys, "export", study_path, "--format", "csv", "--out", csv_path, "--question", "why",
                        "--verbatims", "raw", "--all-closed")
+    assert code == 1 and "coded-frame.csv (written beside" in err and "--overwrite" in err
+    assert not csv_path.exists() and (tmp_path / "coded-frame.csv").read_bytes() == frame_before
+    code, _, err = run(capsys, "export", study_path, "--format", "csv", "--out", csv_path, "--question", "why",
+                       "--verbatims", "raw", "--all-closed", "--overwrite")
     assert code == 0 and "data-protection rules come first" in err
     written = pd.read_csv(csv_path, dtype=str, keep_default_na=False)
     assert "@" in "".join(written["why_text"])  # raw keeps the e-mail addresses...
@@ -158,16 +163,10 @@ def test_export_bad_paths_leave_no_file(study_path, tmp_path, capsys):
     assert code == 1 and "is not a folder" in err
 
 
-@pytest.mark.skipif(os.geteuid() == 0, reason="root may write into a read-only folder")
-def test_export_without_write_permission(study_path, tmp_path, capsys):
-    locked = tmp_path / "locked"
-    locked.mkdir()
-    locked.chmod(0o500)
-    try:
-        code, _, err = run(capsys, "export", study_path, "--format", "csv", "--out", locked / "coded.csv")
-        assert code == 1 and "no permission" in err and not list(locked.iterdir())
-    finally:
-        locked.chmod(0o700)
+def test_export_without_write_permission(study_path, locked_folder, capsys):
+    # Runs under root too: the locked_folder fixture simulates the kernel's refusal there (see conftest.py).
+    code, _, err = run(capsys, "export", study_path, "--format", "csv", "--out", locked_folder / "coded.csv")
+    assert code == 1 and "no permission" in err and not list(locked_folder.iterdir())
 
 
 def test_unknown_format_and_unknown_coder(study_path, tmp_path, capsys):

@@ -44,7 +44,7 @@ COMMANDS = [
     "model STUDY apply --question why --coder ash --threshold 0.95",
     "model STUDY queue --question why --coder ash --kind second-look --limit 5",
     "drivers STUDY --question why --outcome support --split top2",
-    "export STUDY --format sav --out OUT/why.sav --question why --coder ash --with-suggestions",
+    "export STUDY --format sav --out OUT/why-all.sav --question why --coder ash --with-suggestions",
 ]
 
 

@@ -75,12 +75,13 @@ def test_fixed_positions_are_contiguous_and_match_the_data_columns(tmp_path):
         assert start == finish + 1
     lines = data.read_bytes().decode("utf-8").split("\r\n")
     assert lines[-1] == "" and len(lines) == 4
-    # Hand layout: id width 2 (right-justified), support 1 column, bitstring of 6 (codes 1..6), text 9.
-    assert positions == [(1, 2), (3, 3), (4, 9), (10, 18)]
+    # Hand layout: id width 2 (right-justified), support 1 column, bitstring of 6 (codes 1..6), text 10
+    # (the formula guard's quote counts: every writer guards its text cells, fixed width too).
+    assert positions == [(1, 2), (3, 3), (4, 9), (10, 19)]
     assert lines[:3] == [
-        " 75101001ok       ",  # codes {1,3} + net 6 -> bits for codes 1..6 = 101001
-        " 8 000000         ",  # no answer: blank single, all-zero bitstring
-        "101010101=bad idea",  # {2,4} + net 6 -> 010101; the line break in the text became a space
+        " 75101001ok        ",  # codes {1,3} + net 6 -> bits for codes 1..6 = 101001
+        " 8 000000          ",  # no answer: blank single, all-zero bitstring
+        "101010101'=bad idea",  # {2,4} + net 6 -> 010101; the line break in the text became a space
     ]
     assert all(len(line) == positions[-1][1] for line in lines[:3])
 
@@ -114,7 +115,7 @@ def test_csv_format_positions_are_field_numbers(tmp_path):
     positions = [(int(p.get("start")), int(p.get("finish"))) for p in root.iter("position")]
     assert positions == [(1, 1), (2, 2), (3, 5), (6, 6)]
     text_var = root.find("survey/record/variable[@type='character']")
-    assert text_var.findtext("size") == "9"
+    assert text_var.findtext("size") == "10"  # the longest text with its guard quote
     with open(data, newline="", encoding="utf-8") as handle:
         rows = list(csv.reader(handle))
     # Respondent 8 is in the base with no code: zeros in the spread subfields (blank would mean missing).

@@ -8,11 +8,13 @@ phone, web addresses) because verbatims can identify people.
 from __future__ import annotations
 
 import html
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
 from opencode.coding.frames import Code, Frame, load_frame
 from opencode.errors import OpenCodeError
+from opencode.files.cell_guard import guard_cell
 from opencode.files.masking import mask_identifiers
 from opencode.files.safe_write import atomic_open
 from opencode.study import assignments_store as astore
@@ -70,21 +72,42 @@ def _status(code: Code) -> str:
     return f" ({', '.join(bits)})" if bits else ""
 
 
+_MD_PUNCTUATION = re.compile(r"([\\`*_{}\[\]()#+!|~^$])")
+_MD_LINE_START = re.compile(r"^(\s*)([-=>]|\d+[.)])")
+
+
+def markdown_text(text: str) -> str:
+    """User text as inert Markdown: cleaned and guarded like every written cell, on one line, HTML special
+    characters as entities (no <script>, no <img onerror>), Markdown punctuation backslash-escaped (no links,
+    emphasis or headings), and nothing at the start that opens a list, quote or heading."""
+    one_line = " ".join(str(guard_cell(str(text))).split())
+    escaped = _MD_PUNCTUATION.sub(r"\\\1", html.escape(one_line, quote=False))
+    return _MD_LINE_START.sub(lambda m: m.group(1) + "\\" + m.group(2), escaped)
+
+
+def _html_text(text: str) -> str:
+    """User text for the HTML codebook: cleaned and guarded like every written cell, then escaped."""
+    return html.escape(str(guard_cell(str(text))))
+
+
 def codebook_markdown(study: Study, question: str, coder: str | None = None, examples: int = 3) -> str:
     """The codebook as Markdown."""
     frame = load_frame(study, question)
     who = f"coder {coder}" if coder else "all coders"
-    lines = [f"# Codebook: {frame.name}", "", f"Counts: verbatims coded by hand ({who}).", ""]
+    md = markdown_text
+    who = f"coder {md(coder)}" if coder else "all coders"
+    lines = [f"# Codebook: {md(frame.name)}", "", f"Counts: verbatims coded by hand ({who}).", ""]
     for e in codebook_entries(study, question, coder, examples):
         c = e.code
         marker = "#" * min(2 + e.depth, 4)
-        hotkey = f" [key {c.hotkey}]" if c.hotkey else ""
-        lines.append(f"{marker} {c.number} {c.label}{' (net)' if c.is_net else ''}{_status(c)}{hotkey}: {e.count}")
+        hotkey = f" \\[key {md(c.hotkey)}\\]" if c.hotkey else ""
+        lines.append(f"{marker} {c.number} {md(c.label)}{' (net)' if c.is_net else ''}{md(_status(c))}{hotkey}: "
+                     f"{e.count}")
         for title, text in (("", c.description), ("Include: ", c.include), ("Exclude: ", c.exclude),
                             ("Rule: ", c.rule)):
             if text:
-                lines.append(f"{title}{text}  ")
-        lines += [f"- \u201c{t}\u201d" for t in e.examples]
+                lines.append(f"{title}{md(text)}  ")
+        lines += [f"- \u201c{md(t)}\u201d" for t in e.examples]
         lines.append("")
     return "\n".join(lines)
 
@@ -92,7 +115,7 @@ def codebook_markdown(study: Study, question: str, coder: str | None = None, exa
 def codebook_html(study: Study, question: str, coder: str | None = None, examples: int = 3) -> str:
     """The codebook as a standalone HTML page (print-friendly)."""
     frame = load_frame(study, question)
-    esc = html.escape
+    esc = _html_text
     who = f"coder {esc(coder)}" if coder else "all coders"
     parts = ["<!DOCTYPE html>", "<html lang='en'><head><meta charset='utf-8'>",
              f"<title>Codebook: {esc(frame.name)}</title>",

@@ -59,7 +59,11 @@ def _read_records(path: Path) -> list[tuple[str, dict[str, Any]]]:
     """(where, record) pairs from a frame file; `where` names the row for error messages."""
     if not path.is_file():
         raise OpenCodeError(f"{path}: no such file")
-    text = path.read_text(encoding="utf-8-sig")
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as error:
+        raise OpenCodeError(f"{path}: byte offset {error.start} (0x{error.object[error.start]:02x}) is not UTF-8; "
+                            "save the file as UTF-8") from None
     if path.suffix.lower() == ".json":
         try:
             data = json.loads(text)
@@ -68,6 +72,10 @@ def _read_records(path: Path) -> list[tuple[str, dict[str, Any]]]:
         codes = data.get("codes") if isinstance(data, dict) else data
         if not isinstance(codes, list):
             raise OpenCodeError(f"{path}: expected {{\"codes\": [...]}} or a list of codes")
+        for i, r in enumerate(codes):
+            if not isinstance(r, dict):
+                raise OpenCodeError(f"{path}: code entry {i + 1} is {type(r).__name__}, expected an object "
+                                    "such as {\"number\": 1, \"label\": \"...\"}")
         return [(f"{path}: code entry {i + 1}", dict(r)) for i, r in enumerate(codes)]
     rows = list(csv.DictReader(io.StringIO(text)))
     header = [h.strip() for h in (csv.reader(io.StringIO(text)).__next__() if text.strip() else [])]

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import argparse
 import sys
+from pathlib import Path
 
 from opencode.errors import OpenCodeError
 
@@ -42,3 +44,18 @@ def progress_bar(label: str):
         print(f"\r  {label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total}", end=end, file=sys.stderr,
               flush=True)
     return update
+
+
+def add_overwrite_option(parser: argparse.ArgumentParser) -> None:
+    """The one --overwrite option of every verb that writes files."""
+    parser.add_argument("--overwrite", action="store_true",
+                        help="replace output files that already exist (without it: asked at a terminal, else refused)")
+
+
+def confirm_replace(path: Path) -> bool:
+    """At a terminal, ask before replacing an existing file; anywhere else (scripts, pipes) the answer is no."""
+    if not (sys.stdin.isatty() and sys.stderr.isatty()):
+        return False
+    print(f"oecode: {path} already exists; replace it? [y/N] ", end="", file=sys.stderr, flush=True)
+    answer = sys.stdin.readline()
+    return answer.strip().lower() in ("y", "yes")

@@ -12,7 +12,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     demo = subparsers.add_parser("demo", help="run the whole job on the bundled demo survey")
     demo.add_argument("--out", default="oecode-demo", help="folder for the demo study and outputs "
                       "(default: ./oecode-demo)")
-    demo.set_defaults(handler=run)
+    demo.set_defaults(handler=run, overwrite=True)  # the demo replaces its own outputs in its folder
 
 
 def run(args: argparse.Namespace) -> int:

@@ -6,7 +6,8 @@ import argparse
 import csv
 
 from opencode.analysis.drivers import study as sdr
-from opencode.commands.common import progress_bar
+from opencode.files.targets import check_targets
+from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_row
 from opencode.files.safe_write import atomic_open
@@ -65,6 +66,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--indicators", nargs="+", metavar="TERM", help="store 0/1 variables '<question>_t_<term>' "
                         "for these terms, for tables and exports")
     parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
+    add_overwrite_option(parser)
     parser.set_defaults(handler=run_drivers)
 
 
@@ -73,6 +75,7 @@ def run_drivers(args: argparse.Namespace) -> int:
         raise OpenCodeError(f"--top {args.top}: give at least 1")
     if args.chart and not args.chart.lower().endswith(".png"):
         raise OpenCodeError(f"--chart {args.chart}: the chart is a PNG file; end the name in .png")
+    check_targets([(path, None) for path in (args.chart, args.csv) if path])  # before the slow work
     with Study.open(args.study) as study:
         result = sdr.question_drivers(
             study, args.question, args.outcome, split=args.split, one_vs_rest=args.one_vs_rest,

@@ -9,6 +9,7 @@ from opencode.coding.assignments import code_counts
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.files.textout import format_table
+from opencode.commands.common import add_overwrite_option
 
 ACTIONS = ("list", "add", "edit", "net", "merge", "renumber", "retire", "restore", "delete", "share", "import",
            "export", "codebook", "import-codes", "rule", "undo", "redo", "done", "not-done")
@@ -52,6 +53,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--set", dest="rule", help="rule: the keyword rule (AND OR NOT NEAR/n, quotes, parentheses)")
     p.add_argument("--dry-run", action="store_true", help="rule: show what the rule would pre-code")
     p.add_argument("--show", type=int, default=10, help="rule --dry-run: how many matches to print")
+    add_overwrite_option(p)
     p.set_defaults(handler=run)
 
 

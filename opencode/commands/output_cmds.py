@@ -13,8 +13,9 @@ from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export import triple_s
 from opencode.files.safe_write import check_writable_target
-from opencode.export.study_export import EXPORT_FORMATS, export_format, export_study
+from opencode.export.study_export import EXPORT_FORMATS, export_study, export_targets
 from opencode.study.store import Study
+from opencode.commands.common import add_overwrite_option
 RAW_REMINDER = ("reminder: verbatims can identify respondents; your organisation's data-protection rules come "
                 "first: share this file only as they allow")
 MASKED_REMINDER = ("verbatims masked: e-mail addresses, phone numbers and web addresses replaced; names and other "
@@ -34,6 +35,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     tables.add_argument("--ci", action="store_true", help="show each percentage's Wilson score interval at the "
                         "--confidence level (on the Kish effective base when weighted)")
     tables.add_argument("--out", help="also write the tables: .csv, .xlsx (a sheet per table) or .html")
+    add_overwrite_option(tables)
     tables.set_defaults(handler=run_tables)
 
     export = subparsers.add_parser("export", help="coded data as CSV, XLSX, SPSS, Stata or Triple-S")
@@ -53,6 +55,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     export.add_argument("--sss-data", choices=triple_s.FORMATS, default="fixed", help="Triple-S data file layout")
     export.add_argument("--sss-multiple", choices=triple_s.MULTIPLE_LAYOUTS, default="bitstring",
                         help="Triple-S multiple-response layout")
+    add_overwrite_option(export)
     export.set_defaults(handler=run_export)
 
     report = subparsers.add_parser("report", help="one self-contained HTML report: frames, frequencies, charts, tables")
@@ -66,6 +69,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     report.add_argument("--coders", help="add coder agreement between these coders, e.g. ash,bryn")
     report.add_argument("--quotes", type=int, default=2, help="example verbatims per code (default 2; 0 for none)")
     report.add_argument("--raw-verbatims", action="store_true", help="quote verbatims without masking")
+    add_overwrite_option(report)
     report.set_defaults(handler=run_report)
 
 
@@ -112,7 +116,7 @@ def run_tables(args: argparse.Namespace) -> int:
 
 
 def run_export(args: argparse.Namespace) -> int:
-    export_format(args.fmt, args.out)
+    export_targets(args.out, args.fmt, args.sss_data)
     closed = None if args.all_closed else (args.closed or [])
     with Study.open(args.study) as study:
         result = export_study(study, args.out, args.fmt, questions=args.question, coder=args.coder,

@@ -14,6 +14,8 @@ from opencode.coding import adjudication, reliability
 from opencode.errors import OpenCodeError
 from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
+from opencode.files.targets import check_target
+from opencode.commands.common import add_overwrite_option
 
 SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
 ADJUDICATE = ("agreed", "take", "union", "set", "undo")
@@ -61,6 +63,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--side", help="adjudicate take: whose codes final takes")
     a.add_argument("--codes", help="adjudicate set: final's codes, comma-separated numbers (empty: no code)")
     a.add_argument("--actor", default="oecode", help="who adjudicates (for the audit trail)")
+    add_overwrite_option(a)
     a.set_defaults(handler=run_agree)
 
 
@@ -139,6 +142,8 @@ def _write_html(path: str, fragment: str, title: str) -> None:
 
 
 def run_agree(args: argparse.Namespace) -> int:
+    if args.csv:
+        check_target(args.csv)  # before the slow work
     with Study.open(args.study) as study:
         if args.adjudicate:
             _adjudicate(study, args)

@@ -7,7 +7,7 @@ import sys
 
 import numpy as np
 
-from opencode.commands.common import progress_bar
+from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 from opencode.text import study_text as st
@@ -62,6 +62,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                        help="the study's default lexicon (used by questions without their own)")
     lex.add_argument("--remove", action="store_true", help="exception: drop the word's stem exception")
     lex.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
+    add_overwrite_option(lex)
     lex.set_defaults(handler=run_lexicon)
 
 

@@ -9,7 +9,8 @@ from opencode.analysis.themes import study as sth
 from opencode.analysis.themes.charts import plot_k_curve, plot_theme_terms
 from opencode.analysis.themes.format import format_comparison
 from opencode.analysis.themes.finder import SHORT_TEXT_NOTE
-from opencode.commands.common import progress_bar
+from opencode.files.targets import check_target
+from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
 from opencode.study.store import Study
 
@@ -76,6 +77,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     promote.add_argument("--label", help="the code's label (default: proposed from the theme's top terms)")
     promote.add_argument("--number", type=int, help="the code's number (default: one past the highest)")
     promote.add_argument("--hotkey", help="the code's desk hotkey (one character)")
+    add_overwrite_option(parser)
     parser.set_defaults(handler=run_themes)
 
 
@@ -107,6 +109,8 @@ def _whole(value: str, what: str) -> int:
 
 def run_themes(args: argparse.Namespace) -> int:
     _check_args(args)
+    if getattr(args, "chart", None):
+        check_target(args.chart)  # before the slow work
     with Study.open(args.study) as study:
         return HANDLERS[args.action](study, args)
 

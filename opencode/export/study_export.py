@@ -9,7 +9,8 @@ from opencode.analysis.tables import coded_data
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export import spss_stata, tabular, triple_s
-from opencode.files.safe_write import check_writable_target
+from opencode.export.dataset import sibling_path
+from opencode.files.targets import check_targets
 from opencode.study.store import Study
 
 EXPORT_FORMATS = ("csv", "xlsx", "sav", "dta", "sss")
@@ -33,13 +34,25 @@ def export_format(fmt: str | None, out: str | Path) -> str:
     return chosen
 
 
+def export_targets(out: str | Path, fmt: str | None = None, sss_data: str = "fixed") -> list[Path]:
+    """Every file an export writes (the one named, then its companions), checked before any work is done."""
+    chosen = export_format(fmt, out)
+    if chosen == "sss":
+        companion = triple_s.data_path_for(out, sss_data)
+    elif chosen == "xlsx":
+        companion = None
+    else:
+        companion = sibling_path(out)
+    return check_targets([(out, None)] + ([(companion, out)] if companion and companion != Path(out) else []))
+
+
 def export_study(study: Study, out: str | Path, fmt: str | None = None, *, questions: list[str] | None = None,
                  coder: str = FINAL, include_suggestions: bool = False, closed: list[str] | None = (),
                  layout: str = "flags", verbatims: str = "omit", sss_data: str = "fixed",
                  sss_multiple: str = "bitstring") -> ExportResult:
     """Write the coded questions (and chosen closed-ended variables; None = all) to `out`, atomically."""
     chosen = export_format(fmt, out)
-    target = check_writable_target(out)
+    target = export_targets(out, chosen, sss_data)[0]
     dataset, codings = coded_data.coded_dataset(study, questions, coder, include_suggestions=include_suggestions,
                                                 closed=closed, with_text=verbatims != "omit")
     if chosen == "sss":

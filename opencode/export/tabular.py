@@ -15,7 +15,8 @@ import pandas as pd
 from opencode.errors import OpenCodeError
 from opencode.files.cell_guard import guard_cell
 from opencode.export.dataset import CodedDataset, LabelledTable, VerbatimMode, build_table, sibling_path
-from opencode.files.safe_write import atomic_open, atomic_path, check_writable_target
+from opencode.files.safe_write import atomic_open, atomic_path, private_tempdir
+from opencode.files.targets import check_target, check_targets
 
 XLSX_MAX_ROWS = 1_048_576
 XLSX_MAX_CELL_CHARS = 32_767
@@ -74,10 +75,9 @@ def write_csv_table(df: pd.DataFrame, path: str | os.PathLike) -> None:
 def checked_table(dataset: CodedDataset, path: str | os.PathLike, *, mention_columns: bool,
                   verbatims: VerbatimMode, frame_csv: bool = True) -> tuple[Path, LabelledTable]:
     """The target path and the table to write, checking first that the target (and the frame CSV beside it)
-    can be written, so a bad path fails before any work."""
-    target = check_writable_target(path)
-    if frame_csv:
-        check_writable_target(sibling_path(target))
+    can be written, so a bad path fails before any work and before any file is written."""
+    outputs = [(path, None)] + ([(sibling_path(path), path)] if frame_csv else [])
+    target = check_targets(outputs)[0]
     return target, build_table(dataset, mention_columns=mention_columns, verbatims=verbatims)
 
 
@@ -105,20 +105,13 @@ def write_csv(
 
 
 def _xlsx_rows(df: pd.DataFrame):
-    """Header then rows as plain Python values: NaN/NA -> empty cell, text guarded and cleaned for XLSX."""
-    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
-
-    def clean(value):
-        if isinstance(value, str):
-            return ILLEGAL_CHARACTERS_RE.sub("", value)[:XLSX_MAX_CELL_CHARS]
-        return value
-
-    safe = guarded_frame(df)
-    yield [clean(c) for c in safe.columns]
+    """Header then rows as plain Python values: NaN/NA -> empty cell, text cleaned, cut to what an XLSX
+    cell holds and guarded (in that order, by the one guard function)."""
+    yield [guard_cell(str(c), XLSX_MAX_CELL_CHARS) for c in df.columns]
     cols = []
-    for name in safe.columns:
-        column = safe[name].astype(object)
-        cols.append([None if pd.isna(v) else clean(v.item() if isinstance(v, np.generic) else v) for v in column])
+    for name in df.columns:
+        column = _whole_numbers_as_int(df[name]).astype(object)
+        cols.append([None if pd.isna(v) else guard_cell(v, XLSX_MAX_CELL_CHARS) for v in column])
     yield from zip(*cols)
 
 
@@ -135,17 +128,18 @@ def write_xlsx(
     """
     from openpyxl import Workbook
 
-    target = check_writable_target(path)
+    target = check_target(path)
     if dataset.n_respondents + 1 > XLSX_MAX_ROWS:
         raise OpenCodeError(
             f"{target}: {dataset.n_respondents} respondents do not fit in one XLSX sheet; export CSV instead"
         )
     table = build_table(dataset, mention_columns=mention_columns, verbatims=verbatims)
-    workbook = Workbook(write_only=True)
-    for title, df in (("data", table.data), ("frame", table.code_frame), ("variables", variables_table(table))):
-        sheet = workbook.create_sheet(title)
-        for row in _xlsx_rows(df):
-            sheet.append(row)
-    with atomic_path(target, suffix=".xlsx") as tmp:
-        workbook.save(tmp)
+    with private_tempdir(target):  # openpyxl spills each sheet to a temporary file: keep it out of /tmp
+        workbook = Workbook(write_only=True)
+        for title, df in (("data", table.data), ("frame", table.code_frame), ("variables", variables_table(table))):
+            sheet = workbook.create_sheet(title)
+            for row in _xlsx_rows(df):
+                sheet.append(row)
+        with atomic_path(target, suffix=".xlsx") as tmp:
+            workbook.save(tmp)
     return [target]

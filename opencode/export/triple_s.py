@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError
-from opencode.files.cell_guard import guard_row
+from opencode.files.cell_guard import guard_cell
 from opencode.export.dataset import (
     CodedDataset,
     CodedQuestion,
@@ -46,7 +46,8 @@ from opencode.export.dataset import (
     safe_name,
     verbatim_texts,
 )
-from opencode.files.safe_write import atomic_open, check_writable_target
+from opencode.files.safe_write import atomic_open
+from opencode.files.targets import check_targets
 
 SSS_VERSION = "2.0"
 RECORD_IDENT = "A"
@@ -135,8 +136,14 @@ def _closed_field(values: np.ndarray, name: str, label: str, value_labels: dict)
 
 
 def _one_line(text: str) -> str:
-    """Text fit for one record: line breaks and tabs become spaces, trailing spaces go."""
-    return " ".join(str(text).replace("\t", " ").splitlines()).rstrip()
+    """Text fit for one record: cleaned and guarded (the one cell guard), line breaks and tabs as spaces,
+    trailing spaces gone."""
+    return guard_cell(" ".join(str(text).replace("\t", " ").splitlines()).rstrip())
+
+
+def _label(text: str) -> str:
+    """A label or title for the metadata file: cleaned and guarded like every written cell."""
+    return guard_cell(str(text))
 
 
 def _multiple_fields(
@@ -213,7 +220,7 @@ def _assign_positions(fields: list[_Field], data_format: str) -> None:
             f.cells = [[t.ljust(span) for t in f.cells[0]]]
             var.size = None
         elif var.type == "character":
-            f.cells = [guard_row(f.cells[0])]
+            continue  # text cells are already cleaned and guarded (_one_line): never stripped after the guard
         elif data_format == "csv":
             f.cells = [[c.strip() for c in column] for column in f.cells]
 
@@ -228,7 +235,7 @@ def _metadata_xml(
     ET.SubElement(root, "origin").text = origin
     survey = ET.SubElement(root, "survey")
     ET.SubElement(survey, "name").text = safe_name(ds.title or "survey")
-    ET.SubElement(survey, "title").text = ds.title or "survey"
+    ET.SubElement(survey, "title").text = _label(ds.title or "survey")
     record = ET.SubElement(survey, "record", ident=RECORD_IDENT, format=data_format)
     for var in variables:
         attrs = {"ident": var.ident, "type": var.type}
@@ -236,7 +243,7 @@ def _metadata_xml(
             attrs["use"] = var.use
         element = ET.SubElement(record, "variable", attrs)
         ET.SubElement(element, "name").text = var.name
-        ET.SubElement(element, "label").text = var.label
+        ET.SubElement(element, "label").text = _label(var.label)
         ET.SubElement(element, "position", start=str(var.start), finish=str(var.finish))
         if var.size is not None:
             ET.SubElement(element, "size").text = str(var.size)
@@ -247,7 +254,7 @@ def _metadata_xml(
             if var.range:
                 ET.SubElement(values, "range", {"from": var.range[0], "to": var.range[1]})
             for code, text in var.values.items():
-                ET.SubElement(values, "value", code=str(code)).text = text
+                ET.SubElement(values, "value", code=str(code)).text = _label(text)
     ET.indent(root, space="  ")
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
 
@@ -273,10 +280,10 @@ def write_triple_s(
     if multiple not in MULTIPLE_LAYOUTS:
         raise OpenCodeError(f"triple-s: multiple must be one of {', '.join(MULTIPLE_LAYOUTS)}, got {multiple!r}")
     check_verbatim_mode(verbatims)
-    meta = check_writable_target(metadata_path)
-    data_path = check_writable_target(data_path_for(meta, data_format))
-    if data_path == meta:
-        raise OpenCodeError(f"{meta}: the metadata file needs its own name; use a .sss or .xml ending")
+    if data_path_for(metadata_path, data_format) == Path(metadata_path):
+        raise OpenCodeError(f"{metadata_path}: the metadata file needs its own name; use a .sss or .xml ending")
+    meta, data_path = check_targets([(metadata_path, None),
+                                     (data_path_for(metadata_path, data_format), metadata_path)])
     fields = _collect_fields(dataset, multiple, data_format, verbatims)
     _assign_positions(fields, data_format)
     columns = [cells for f in fields for cells in f.cells]

@@ -5,14 +5,17 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
+from opencode.files.terminal_text import one_line
+
 
 def _cell_text(value: Any) -> str:
-    """A cell as text: empty for None, three decimals for a float, str() otherwise."""
+    """A cell as text: empty for None, three decimals for a float, str() otherwise; on one line with no
+    control characters (a label cannot move the cursor or clear the screen)."""
     if value is None:
         return ""
     if isinstance(value, float):
         return f"{value:.3f}"
-    return str(value)
+    return one_line(str(value))
 
 
 def _auto_align(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
@@ -27,7 +30,7 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     `align` is one letter per column ('l' or 'r'); by default numeric columns are right-aligned, the rest left.
     """
     align = align or _auto_align(headers, rows)
-    cells = [[str(h) for h in headers]] + [[_cell_text(c) for c in row] for row in rows]
+    cells = [[one_line(str(h)) for h in headers]] + [[_cell_text(c) for c in row] for row in rows]
     widths = [max(len(r[i]) for r in cells) for i in range(len(headers))]
 
     def line(values: Sequence[str]) -> str:

@@ -81,6 +81,7 @@ def infer_kind(table: RawTable, name: str) -> str:
 def _bad_cell(table: RawTable, name: str, mask: pd.Series, what: str) -> OpenCodeError:
     first = int(np.flatnonzero(mask.to_numpy())[0])
     value = table.frame[name].iloc[first]
+    value = value.item() if isinstance(value, np.generic) else value
     return OpenCodeError(f"{table.path}: {table.row_name(first)}, column {name}: {value!r} is not {what}")
 
 
@@ -124,7 +125,7 @@ def convert(table: RawTable, name: str, kind: str) -> ColumnPlan:
     elif kind == "text":
         plan.values = clean_text(series).tolist()
     else:
-        raise OpenCodeError(f"column {name}: unknown kind {kind!r}")
+        raise OpenCodeError(f"{table.path}: column {name}: unknown kind {kind!r}")
     return plan
 
 

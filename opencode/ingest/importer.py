@@ -10,7 +10,6 @@ import contextlib
 import difflib
 import json
 import os
-import tempfile
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -19,13 +18,13 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from opencode.errors import OpenCodeError
-from opencode.files.safe_write import normal_file_mode
+from opencode.errors import OpenCodeError, WriteFailed
+from opencode.files.safe_write import describe_os_error, make_temporary, normal_file_mode
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
 from opencode.ingest.readers import RawTable, read_survey_file
-from opencode.ingest.text_cells import as_text
+from opencode.ingest.text_cells import respondent_keys
 from opencode.study import survey_data
 from opencode.study.address import ServerAddress
 from opencode.study.store import Study, as_study_target, study_exists
@@ -102,8 +101,7 @@ def _check_columns(table: RawTable, options: ImportOptions) -> None:
 
 def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
     raw = table.frame[id_column]
-    keys = as_text(raw).str.strip()
-    keys = keys.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_float_dtype(raw) else keys
+    keys = respondent_keys(raw)
     blank = keys.isin(["", "\\N", "NULL", "nan"]).to_numpy(dtype=bool)
     if blank.any():
         rows = [table.row_name(i) for i in np.flatnonzero(blank)[:5]]
@@ -112,9 +110,13 @@ def _respondent_keys(table: RawTable, id_column: str) -> list[str]:
     if len(set(listed)) < len(listed):
         duplicated = keys.duplicated(keep=False)
         first = keys[duplicated].iloc[0]
-        rows = [table.row_name(i) for i in np.flatnonzero((keys == first).to_numpy())[:5]]
+        where = np.flatnonzero((keys == first).to_numpy())[:5]
+        rows = [table.row_name(i) for i in where]
+        written = [str(v).strip() for v in raw.iloc[where]]
+        same = f" (written {', '.join(repr(w) for w in dict.fromkeys(written))}: one number)" \
+            if len(set(written)) > 1 else ""
         raise OpenCodeError(f"{table.path}: column {id_column}: respondent id {first!r} appears more than once "
-                            f"({', '.join(rows)})")
+                            f"({', '.join(rows)}){same}")
     return listed
 
 
@@ -164,7 +166,7 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
     study_path = as_study_target(study_path)
     say(f"reading {source}")
     table = read_survey_file(source, sheet=options.sheet, encoding=options.encoding, delimiter=options.delimiter,
-                             text_columns=(options.id_column, *options.questions))
+                             text_columns=(options.id_column, *options.questions), defer_checks=True)
     if options.labels_file:
         apply_labels_file(table, options.labels_file)
     if not options.questions:
@@ -179,12 +181,12 @@ def import_survey(study_path: str | Path, source: str | Path, options: ImportOpt
         plans = pool.submit(plan_columns, table, options)
         keys = _respondent_keys(table, options.id_column)
         if report.created and isinstance(study_path, ServerAddress):  # created and filled in one transaction
-            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report)).close()
+            Study.create(study_path, fill=lambda study: _write(study, keys, plans.result, report, table)).close()
         elif report.created:
-            _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report))
+            _create_then_rename(study_path, lambda study: _write(study, keys, plans.result, report, table))
         else:
             with Study.open(study_path) as study, study.transaction():
-                _write(study, keys, plans.result, report)
+                _write(study, keys, plans.result, report, table)
     return report
 
 
@@ -193,11 +195,9 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
         raise OpenCodeError(f"{target}: a study file name must end in .study")
     if not target.parent.exists():
         raise OpenCodeError(f"{target}: the folder {target.parent} does not exist")
-    fd, temp_name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".study", dir=target.parent)
-    os.close(fd)
-    temp = Path(temp_name)
-    os.chmod(temp, normal_file_mode())
+    temp = make_temporary(target, ".study")  # a killed run's leftover is removed by the next run here
     try:
+        os.chmod(temp, normal_file_mode())
         study = Study.create(temp, overwrite=True)
         try:
             with study.private_bulk_load(), study.transaction():
@@ -205,13 +205,18 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
         finally:
             study.close()
         os.replace(temp, target)
+    except WriteFailed as error:  # name the study the user asked for, not the temporary file
+        raise WriteFailed(str(error).replace(str(temp), str(target))) from None
+    except OSError as error:
+        raise WriteFailed(describe_os_error(error, target)) from None
     finally:
         for extra in ("", "-wal", "-shm"):
             with contextlib.suppress(FileNotFoundError):
                 os.remove(str(temp) + extra)
 
 
-def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport) -> None:
+def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport,
+           table: RawTable) -> None:
     existing = survey_data.respondent_ids_by_key(study)
     next_id = len(existing) + 1
     new_keys = [k for k in keys if k not in existing] if existing else keys
@@ -232,8 +237,10 @@ def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]],
             _write_verbatims(study, variable_id, plan, respondent_ids, report)
         else:
             _write_values(study, variable_id, plan, respondent_ids, total)
+    table.verify()  # the row check ran on the other core while SQLite wrote; a bad row undoes all of it
     study.audit("import", "import", "study", None, {
-        "source": str(report.source), "respondents_added": report.respondents_added,
+        "source": str(report.source), "source_path": os.path.abspath(report.source),
+        "respondents_added": report.respondents_added,
         "respondents_updated": report.respondents_updated, "variables_added": report.variables_added,
         "verbatims_added": report.verbatims_added, "changed_verbatims": len(report.changed_verbatims)})
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from typing import Any
 
+from opencode.errors import NotAStudy
 from opencode.study.store import Study
 
 #: The columns of a code row, in the order `code_rows` returns them.
@@ -13,9 +14,16 @@ CODE_COLUMNS = ("id", "frame_id", "number", "label", "kind", "net_id", "descript
 _SELECT_CODES = f"SELECT {', '.join(CODE_COLUMNS)} FROM codes"
 
 
-def _row(values) -> dict[str, Any]:
+def _row(values, study: Study) -> dict[str, Any]:
     row = dict(zip(CODE_COLUMNS, values))
-    row["examples"] = json.loads(row["examples"] or "[]")
+    try:
+        row["examples"] = json.loads(row["examples"] or "[]")
+    except (TypeError, ValueError):
+        raise NotAStudy(f"{study.path}: damaged study: the examples of code {row['number']} are not valid "
+                        "JSON") from None
+    if not isinstance(row["examples"], list) or not all(isinstance(e, str) for e in row["examples"]):
+        raise NotAStudy(f"{study.path}: damaged study: the examples of code {row['number']} are not a list "
+                        "of texts")
     row["active"] = bool(row["active"])
     return row
 
@@ -62,25 +70,26 @@ def questions_of_frame(study: Study, frame_id: int) -> list[int]:
 
 def code_rows(study: Study, frame_id: int) -> list[dict[str, Any]]:
     """All codes of a frame as dicts, by number."""
-    return [_row(r) for r in study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? ORDER BY number", (frame_id,))]
+    rows = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? ORDER BY number", (frame_id,))
+    return [_row(r, study) for r in rows]
 
 
 def code_row(study: Study, code_id: int) -> dict[str, Any] | None:
     """One code by id, or None."""
     found = study._db.execute(f"{_SELECT_CODES} WHERE id = ?", (code_id,)).fetchone()
-    return None if found is None else _row(found)
+    return None if found is None else _row(found, study)
 
 
 def code_by_number(study: Study, frame_id: int, number: int) -> dict[str, Any] | None:
     """One code by its number in a frame, or None."""
     found = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND number = ?", (frame_id, number)).fetchone()
-    return None if found is None else _row(found)
+    return None if found is None else _row(found, study)
 
 
 def code_by_hotkey(study: Study, frame_id: int, hotkey: str) -> dict[str, Any] | None:
     """The code holding a hotkey in a frame, or None."""
     found = study._db.execute(f"{_SELECT_CODES} WHERE frame_id = ? AND hotkey = ?", (frame_id, hotkey)).fetchone()
-    return None if found is None else _row(found)
+    return None if found is None else _row(found, study)
 
 
 def max_number(study: Study, frame_id: int) -> int:
@@ -121,7 +130,7 @@ def delete_code(study: Study, code_id: int) -> None:
 
 def children_of(study: Study, code_id: int) -> list[dict[str, Any]]:
     """Codes and nets whose parent net is `code_id`."""
-    return [_row(r) for r in study._db.execute(f"{_SELECT_CODES} WHERE net_id = ? ORDER BY number", (code_id,))]
+    return [_row(r, study) for r in study._db.execute(f"{_SELECT_CODES} WHERE net_id = ? ORDER BY number", (code_id,))]
 
 
 def code_for_verbatim(study: Study, verbatim_id: int, number: int) -> tuple | None:

@@ -11,7 +11,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable, Iterator
 
 from opencode.version import __version__
-from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound
+from opencode.errors import BadInput, NotAStudy, OpenCodeError, StudyBusy, StudyNotFound, WriteFailed
+from opencode.files.targets import protect
 from opencode.study.address import ServerAddress, is_server_address, parse_address
 from opencode.study.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
@@ -112,16 +113,35 @@ class Study:
             if app_id != APPLICATION_ID:
                 raise NotAStudy(f"{target}: is an SQLite database but not an oecode study")
             version = study.schema_version()
+            if version == 0:
+                raise NotAStudy(f"{target}: damaged study: it records no schema version")
             if version > SCHEMA_VERSION:
                 raise OpenCodeError(
                     f"{target}: was written by a newer opencode (study version {version}, this one reads up to "
                     f"{SCHEMA_VERSION}); upgrade opencode to open it")
             if version < SCHEMA_VERSION:
                 study._migrate(from_version=version)
+            protect([target], "a study file")
+            protect(study.import_sources(), f"a survey file the study {target.name} was imported from")
         except BaseException:
             connection.close()
             raise
         return study
+
+    def import_sources(self) -> list[Path]:
+        """The survey files this study was imported from (absolute where recorded), so no output replaces them."""
+        found: list[Path] = []
+        for (payload,) in self._db.execute("SELECT payload FROM audit WHERE actor = 'import' AND action = 'import'"):
+            try:
+                data = json.loads(payload)
+            except (TypeError, ValueError):
+                continue
+            source = data.get("source_path") or data.get("source") if isinstance(data, dict) else None
+            if isinstance(source, str) and source:
+                found.append(Path(source))
+                if not Path(source).is_absolute():
+                    found.append(self.path.parent / source)
+        return found
 
     def close(self) -> None:
         """Close the connection (the study stays consistent whether or not this runs)."""
@@ -158,7 +178,15 @@ class Study:
             row = self._db.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
         except sqlite3.DatabaseError as error:
             raise OpenCodeError(f"{self.path}: is not a readable study ({error})") from error
-        return int(row[0]) if row else 0
+        if row is None:
+            return 0
+        try:
+            version = int(str(row[0]).strip())
+        except ValueError:
+            version = -1
+        if version < 1:
+            raise NotAStudy(f"{self.path}: damaged study: its schema version {row[0]!r} is not a version number")
+        return version
 
     def _migrate(self, from_version: int) -> None:
         if self.on_server:
@@ -204,6 +232,9 @@ class Study:
             raise
         try:
             yield self._db
+        except sqlite3.OperationalError as error:
+            self._db.rollback()
+            raise _write_error(self.path, error) from None
         except BaseException:
             self._db.rollback()
             raise
@@ -214,7 +245,7 @@ class Study:
                 self._db.rollback()
                 if _is_locked(error):
                     raise StudyBusy(f"{self.path}: the study is locked by another program; try again") from error
-                raise
+                raise _write_error(self.path, error) from None
 
     def audit(self, actor: str, action: str, entity: str, entity_id: int | None = None,
               payload: dict[str, Any] | None = None) -> int:
@@ -228,7 +259,12 @@ class Study:
     def get_setting(self, key: str, default: Any = None) -> Any:
         """A study setting (JSON value), or `default`."""
         row = self._db.execute("SELECT value FROM settings WHERE key = ?", (key,)).fetchone()
-        return json.loads(row[0]) if row else default
+        if not row:
+            return default
+        try:
+            return json.loads(row[0])
+        except (TypeError, ValueError) as error:
+            raise NotAStudy(f"{self.path}: damaged study: the setting {key!r} is not valid JSON ({error})") from None
 
     def set_setting(self, key: str, value: Any, actor: str = "oecode") -> None:
         """Store a study setting (JSON-serialisable) and audit the change."""
@@ -269,6 +305,21 @@ def read_frame(study: Study, sql: str, params=()):
     cursor = study._db.execute(sql, params)
     columns = [c.name for c in cursor.description]
     return pd.DataFrame.from_records(cursor.fetchall(), columns=columns, coerce_float=True)
+
+
+def _write_error(path: Path, error: sqlite3.OperationalError) -> Exception:
+    """A failed write to the study in one line (disk full, read-only), or the error itself if it is not one."""
+    text = str(error).lower()
+    if "full" in text:
+        return WriteFailed(f"{path}: could not write: the disk is full; the change was not saved")
+    if "readonly" in text or "read-only" in text:
+        return WriteFailed(f"{path}: could not write: the study file or its folder is read-only; "
+                           "the change was not saved")
+    if "disk i/o" in text:
+        return WriteFailed(f"{path}: could not write: an input/output error on the disk; the change was not saved")
+    if _is_locked(error):
+        return StudyBusy(f"{path}: another program is writing to this study (the file is locked); try again")
+    return error
 
 
 def _connect(path: Path) -> sqlite3.Connection:

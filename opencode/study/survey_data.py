@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from opencode.errors import OpenCodeError
+from opencode.errors import NotAStudy, OpenCodeError
 from opencode.study.store import Study, read_frame
 
 if TYPE_CHECKING:  # pandas loads only where a frame is read, so the desk starts without it
@@ -50,11 +50,24 @@ def encode_values(values) -> tuple[str, bytes]:
     return "json", json.dumps(list(values), ensure_ascii=False).encode("utf-8")
 
 
-def decode_values(encoding: str, data: bytes):
-    """Decode what `encode_values` wrote."""
-    if encoding == "f8":
-        return np.load(io.BytesIO(data), allow_pickle=False)
-    return json.loads(data.decode("utf-8"))
+def decode_values(encoding: str, data: bytes, where: str = "stored values"):
+    """Decode what `encode_values` wrote; anything else (a damaged or crafted study) is a NotAStudy error
+    naming `where` ("FILE: the values of variable X"). Never unpickles."""
+    try:
+        if encoding == "f8":
+            values = np.load(io.BytesIO(data), allow_pickle=False)
+            if not isinstance(values, np.ndarray) or values.ndim != 1 or values.dtype.kind not in "fiub":
+                raise ValueError("not a one-dimensional numeric array")
+            return values
+        if encoding == "json":
+            values = json.loads(bytes(data).decode("utf-8"))
+            if not isinstance(values, list):
+                raise ValueError("not a JSON list")
+            return values
+        raise ValueError(f"unknown encoding {encoding!r}")
+    except (ValueError, TypeError, OSError, EOFError) as error:
+        file, _, what = where.rpartition(": ")
+        raise NotAStudy(f"{file + ': ' if file else ''}damaged study: {what} cannot be read ({error})") from None
 
 
 # -- reading ----------------------------------------------------------------------------------------------------
@@ -124,7 +137,7 @@ def raw_values(study: Study, name: str):
     n = respondent_count(study)
     if row is None:
         return np.full(n, np.nan)
-    values = decode_values(row[0], row[1])
+    values = decode_values(row[0], row[1], f"{study.path}: the values of variable {name!r}")
     if len(values) < n:  # respondents added by a later wave: they have no value yet
         if isinstance(values, np.ndarray):
             values = np.concatenate([values, np.full(n - len(values), np.nan)])
@@ -162,6 +175,11 @@ def verbatims(study: Study, question: str, include_nonanswers: bool = True) -> p
         query += " AND v.nonanswer = 0"
     frame = read_frame(study, query + " ORDER BY v.respondent_id", (variable.id,))
     frame["nonanswer"] = frame["nonanswer"].astype(bool)
+    if not pd.api.types.is_string_dtype(frame["text"]):  # a C-level look; the Python one only when it fails
+        odd = frame.loc[frame["text"].map(type).ne(str), "verbatim_id"]
+        if len(odd):
+            raise NotAStudy(f"{study.path}: damaged study: verbatim {int(odd.iloc[0])} of question {question!r} "
+                            "holds binary data or a number, not text")
     return frame
 
 
