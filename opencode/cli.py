@@ -57,6 +57,9 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "handler", None):
         parser.print_help()
         return 2
+    from opencode.files.interrupts import record_interrupts
+
+    record_interrupts()
     try:
         with _command_output(args):
             return int(args.handler(args) or 0)

@@ -14,6 +14,8 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from opencode.files.interrupts import interrupted
+
 from opencode.errors import OpenCodeError
 from opencode.ingest.text_cells import NULL_MARKERS
 from opencode.ingest.sniff import decode_text, detect_format, sniff_delimiter
@@ -186,6 +188,8 @@ def _read_text(path: Path, kind: str, encoding: str | None, delimiter: str | Non
             for column in as_given:
                 frame[column] = exact[column]
     except pd.errors.ParserError as error:
+        if interrupted():
+            raise KeyboardInterrupt from error  # Ctrl+C while pandas was reading: an interruption, not a bad file
         check_counts()  # names the rows with the wrong number of fields, if that is what it is
         match = _RAGGED.search(str(error))
         if match:

@@ -175,7 +175,9 @@ def verbatims(study: Study, question: str, include_nonanswers: bool = True) -> p
         query += " AND v.nonanswer = 0"
     frame = read_frame(study, query + " ORDER BY v.respondent_id", (variable.id,))
     frame["nonanswer"] = frame["nonanswer"].astype(bool)
-    if not pd.api.types.is_string_dtype(frame["text"]):  # a C-level look; the Python one only when it fails
+    from pandas.api.types import is_string_dtype  # pandas is imported on first use: the desk starts without it
+
+    if not is_string_dtype(frame["text"]):  # a C-level look; the Python one only when it fails
         odd = frame.loc[frame["text"].map(type).ne(str), "verbatim_id"]
         if len(odd):
             raise NotAStudy(f"{study.path}: damaged study: verbatim {int(odd.iloc[0])} of question {question!r} "
