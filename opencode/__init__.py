@@ -34,9 +34,9 @@ def themes(study, question: str, *, k: int = 10, save: bool = False, **options: 
 
     Unlike `oecode themes`, the run is kept in the study only with `save=True`.
     """
-    from opencode.analysis.themes.study import fit_question_themes
+    from opencode.analysis.themes.study import question_themes
 
-    return fit_question_themes(study, question, k=k, save=save, **options)
+    return question_themes(study, question, k=k, save=save, **options)
 
 
 def drivers(study, question: str, outcome: str, **options: Any):

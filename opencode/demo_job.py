@@ -16,7 +16,7 @@ from typing import Callable
 from opencode.analysis.agreement.study import question_agreement
 from opencode.analysis.drivers.study import drivers_chart, drivers_html, question_drivers, remember_choice
 from opencode.analysis.tables.study import question_tables, write_tables
-from opencode.analysis.themes.study import search_question_k, themes_html, themes_with_chart
+from opencode.analysis.themes.study import question_theme_search, themes_html, themes_with_chart
 from opencode.analysis.tables.output import format_table
 from opencode.coding import adjudication, frame_io, reliability, rules
 from opencode.coding import machine_coding
@@ -119,7 +119,7 @@ def _explore(study: Study, folder: Path, outputs: DemoOutputs, say) -> list[Repo
     sections = []
     for question in DEMO_QUESTIONS:
         say(f"{question}: choosing the number of themes (k = {DEMO_K_RANGE}) by coherence and stability")
-        search = search_question_k(study, question, DEMO_K_RANGE, actor=ACTOR)
+        search = question_theme_search(study, question, DEMO_K_RANGE, actor=ACTOR)
         k = search.search.recommended_k
         say(f"{question}: {k} themes")
         themes, chart = themes_with_chart(study, question, folder / f"themes-{question}.png", k=k, by="support",

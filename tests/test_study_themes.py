@@ -46,12 +46,12 @@ def study(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def fitted(study):
-    return sth.fit_question_themes(study, "why", k=K, by="support", random_state=3)
+    return sth.question_themes(study, "why", k=K, by="support", random_state=3)
 
 
 @pytest.fixture(scope="module")
 def searched(study):
-    return sth.search_question_k(study, "why", "4:6", n_resamples=2)
+    return sth.question_theme_search(study, "why", "4:6", n_resamples=2)
 
 
 def _tiny_study(folder, name, answers):
@@ -111,7 +111,7 @@ def test_themes_equal_scikit_learn_nmf_on_the_same_matrix(study, fitted):
 def test_lda_run_equals_scikit_learn_lda_and_reloads(study):
     # Outside check: Blei, Ng & Jordan (2003) LDA as scikit-learn fits it (batch variational Bayes) on the
     # raw counts of the verbatims with terms, same seed.
-    result = sth.fit_question_themes(study, "why", k=4, method="lda", random_state=5)
+    result = sth.question_themes(study, "why", k=4, method="lda", random_state=5)
     tm, _ = term_matrix(study, "why", min_df=sth.DEFAULT_MIN_DF)
     keep = np.diff(tm.counts.indptr) > 0
     reference = LatentDirichletAllocation(n_components=4, learning_method="batch", max_iter=10, random_state=5)
@@ -120,7 +120,7 @@ def test_lda_run_equals_scikit_learn_lda_and_reloads(study):
     assert loaded.settings["method"] == "lda" and loaded.settings["loss"] is None
     assert_allclose(loaded.run.components, reference.components_, rtol=1e-7)
     with pytest.raises(OpenCodeError, match="LDA has no loss"):
-        sth.fit_question_themes(study, "why", k=4, method="lda", loss="kl", save=False)
+        sth.question_themes(study, "why", k=4, method="lda", loss="kl", save=False)
 
 
 def test_prevalence_uses_value_labels_without_missing_codes(study, fitted):
@@ -146,7 +146,7 @@ def test_prevalence_uses_value_labels_without_missing_codes(study, fitted):
 
 
 def test_seeded_run_from_typed_terms(study):
-    result = sth.fit_question_themes(study, "why", k=5, seed_terms="safe,Staff;hours,late", save=False)
+    result = sth.question_themes(study, "why", k=5, seed_terms="safe,Staff;hours,late", save=False)
     assert result.run_id is None
     seeded = [t.seed_terms for t in result.run.themes[:2]]
     assert seeded == [["safe", "staff"], ["hours", "late"]]  # typed in any case
@@ -154,15 +154,15 @@ def test_seeded_run_from_typed_terms(study):
     assert {"safe", "staff"} & set(result.run.themes[0].top_terms[:5])
     assert result.settings["seed_lists"] == seeded
     with pytest.raises(OpenCodeError, match="seed list 2: 'zebra' is not a term"):
-        sth.fit_question_themes(study, "why", k=5, seed_terms="safe;zebra", save=False)
+        sth.question_themes(study, "why", k=5, seed_terms="safe;zebra", save=False)
     with pytest.raises(OpenCodeError, match="write lists of terms"):
-        sth.fit_question_themes(study, "why", k=5, seed_terms="safe;;", save=False)
+        sth.question_themes(study, "why", k=5, seed_terms="safe;;", save=False)
 
 
 def test_seeded_run_from_the_frame_uses_rules_then_labels(study):
     edit_code(study, "why", 8, rule="study OR (space AND NOT quiet)")
     try:
-        result = sth.fit_question_themes(study, "why", k=5, seed_from_frame=[8, 1], save=False)
+        result = sth.question_themes(study, "why", k=5, seed_from_frame=[8, 1], save=False)
     finally:
         edit_code(study, "why", 8, rule="")
     assert result.settings["seed_lists"][0] == ["study", "space"]  # the NOT part does not seed
@@ -171,11 +171,11 @@ def test_seeded_run_from_the_frame_uses_rules_then_labels(study):
     assert "(label)" in result.settings["seed_sources"][1]
     assert len(result.settings["seed_lists"][1]) == len(label_terms)
     with pytest.raises(OpenCodeError, match="the frame has no code 77"):
-        sth.fit_question_themes(study, "why", k=5, seed_from_frame=[77], save=False)
+        sth.question_themes(study, "why", k=5, seed_from_frame=[77], save=False)
     with pytest.raises(OpenCodeError, match="leave no room"):
-        sth.fit_question_themes(study, "why", k=5, seed_from_frame=True, save=False)
+        sth.question_themes(study, "why", k=5, seed_from_frame=True, save=False)
     with pytest.raises(OpenCodeError, match="not both"):
-        sth.fit_question_themes(study, "why", k=5, seed_terms="safe", seed_from_frame=True, save=False)
+        sth.question_themes(study, "why", k=5, seed_terms="safe", seed_from_frame=True, save=False)
 
 
 def test_promote_adds_a_draft_code_with_the_rule(study, fitted):
@@ -234,7 +234,7 @@ def test_k_search_is_kept_and_reloads(study, searched):
 
 
 def test_list_compare_unexplained_delete(study, fitted):
-    other = sth.fit_question_themes(study, "why", k=K, random_state=3)
+    other = sth.question_themes(study, "why", k=K, random_state=3)
     table = sth.compare_theme_runs(study, fitted.run_id, other.run_id)
     assert (table["jaccard"] == 1.0).all()  # same data, same seed: the grouping does not change the themes
     unexplained = sth.unexplained_in_run(study, fitted.run_id)
@@ -259,25 +259,25 @@ def test_chart_for_the_report(study, tmp_path):
 
 def test_bad_grouping_and_options(study):
     with pytest.raises(OpenCodeError, match="no variable named 'nope'"):
-        sth.fit_question_themes(study, "why", k=4, by="nope", save=False)
+        sth.question_themes(study, "why", k=4, by="nope", save=False)
     with pytest.raises(OpenCodeError, match="'improve' is an open question|'improve' is text"):
-        sth.fit_question_themes(study, "why", k=4, by="improve", save=False)
+        sth.question_themes(study, "why", k=4, by="improve", save=False)
     with pytest.raises(OpenCodeError, match="theme method 'pca'"):
-        sth.fit_question_themes(study, "why", k=4, method="pca", save=False)
+        sth.question_themes(study, "why", k=4, method="pca", save=False)
     with pytest.raises(OpenCodeError, match="no open question named 'nope'"):
-        sth.fit_question_themes(study, "nope", k=4, save=False)
+        sth.question_themes(study, "nope", k=4, save=False)
 
 
 @pytest.mark.parametrize("k, match", [(1, "at least 2"), (0, "at least 2"), (2.5, "whole number")])
 def test_k_out_of_range(study, k, match):
     with pytest.raises(OpenCodeError, match=match):
-        sth.fit_question_themes(study, "why", k=k, save=False)
+        sth.question_themes(study, "why", k=k, save=False)
 
 
 @pytest.mark.parametrize("spec, match", [("1:5", "at least 2"), ("9:4", "must not exceed"), ("four", "FROM:TO")])
 def test_bad_k_range(study, spec, match):
     with pytest.raises(OpenCodeError, match=match):
-        sth.search_question_k(study, "why", spec, save=False)
+        sth.question_theme_search(study, "why", spec, save=False)
 
 
 @pytest.mark.parametrize("answers, k, match", [
@@ -288,5 +288,5 @@ def test_bad_k_range(study, spec, match):
 def test_corpora_that_cannot_give_k_themes(tmp_path, answers, k, match):
     with Study.open(_tiny_study(tmp_path, "tiny", answers)) as tiny:
         with pytest.raises(OpenCodeError, match=match):
-            sth.fit_question_themes(tiny, "answer", k=k, min_df=1)
+            sth.question_themes(tiny, "answer", k=k, min_df=1)
         assert sth.list_theme_runs(tiny).empty  # nothing half-kept

@@ -31,8 +31,8 @@ def _run_id(out):
 @pytest.fixture(scope="module")
 def two_runs(study_path):
     with Study.open(study_path) as study:
-        a = sth.fit_question_themes(study, "why", k=5, by="support").run_id
-        b = sth.fit_question_themes(study, "why", k=6).run_id
+        a = sth.question_themes(study, "why", k=5, by="support").run_id
+        b = sth.question_themes(study, "why", k=6).run_id
     return a, b
 
 

@@ -37,7 +37,7 @@ def test_labels_keep_negations_and_promote_carries_them(birds_path, capsys):
     with Study.open(birds_path) as study:
         assert st.get_lexicon(study, "remarks").negations == "join"
         assert "no damage" in st.term_matrix(study, "remarks")[0].labels
-        result = sth.fit_question_themes(study, "remarks", k=6)
+        result = sth.question_themes(study, "remarks", k=6)
         themes = result.run.themes
         led = [t for t in themes if t.top_terms[0] == "no damage"]
         assert led and led[0].label.startswith("no damage / ")
@@ -49,7 +49,7 @@ def test_labels_keep_negations_and_promote_carries_them(birds_path, capsys):
     capsys.readouterr()
     assert main(["lexicon", str(birds_path), "negations", "keep", "--question", "remarks"]) == 0
     with Study.open(birds_path) as study:
-        plain = sth.fit_question_themes(study, "remarks", k=6, save=False).run.themes
+        plain = sth.question_themes(study, "remarks", k=6, save=False).run.themes
         no_first = [t for t in plain if t.top_terms[:2] == ["no", "damage"]]
         assert no_first and no_first[0].label.startswith("no / damage")  # the "no" is not dropped
 
@@ -57,7 +57,7 @@ def test_labels_keep_negations_and_promote_carries_them(birds_path, capsys):
 def test_two_letter_abbreviations_are_kept_in_labels(tmp_path):
     path, _ = breach_study(tmp_path)
     with Study.open(path) as study:
-        themes = sth.fit_question_themes(study, "desc", k=6, save=False).run.themes
+        themes = sth.question_themes(study, "desc", k=6, save=False).run.themes
     # "CE" (covered entity) and "BA" (business associate) lead themes of the breach reports.
     led = {t.top_terms[0] for t in themes}
     assert led & {"ce", "ba"}
@@ -66,7 +66,7 @@ def test_two_letter_abbreviations_are_kept_in_labels(tmp_path):
 
 def test_catch_all_theme_is_flagged(birds_path):
     with Study.open(birds_path) as study:
-        result = sth.fit_question_themes(study, "remarks", k=6, save=False)
+        result = sth.question_themes(study, "remarks", k=6, save=False)
     run = result.run
     flagged = [t for t in run.themes if t.catch_all]
     # Independent check of the flag: the share each theme dominates against max(30%, 2/k).
@@ -82,7 +82,7 @@ def test_catch_all_theme_is_flagged(birds_path):
 def test_k_search_leaves_out_a_k_with_a_catch_all_and_says_why(birds_path):
     with Study.open(birds_path) as study:
         # A seeded sample of 8,000 remarks and two resamples keep the test quick (the k search's own options).
-        found = sth.search_question_k(study, "remarks", [5, 6, 13], save=False, max_docs=8000, n_resamples=2)
+        found = sth.question_theme_search(study, "remarks", [5, 6, 13], save=False, max_docs=8000, n_resamples=2)
     table = found.search.table.set_index("k")
     # k = 6 ranks best on NPMI and stability together but lumps over 40% of the remarks into one theme.
     assert table.loc[6, "catch_all"] and table.loc[6, "largest"] > 0.4

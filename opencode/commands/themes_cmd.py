@@ -124,7 +124,7 @@ def _fit(study: Study, args: argparse.Namespace) -> int:
         if args.by or args.seed_terms or args.seed_from_frame:
             raise OpenCodeError("--k-range scores k without --by or seeds; give those to the final --k run")
         bar = progress_bar("fitting k")
-        result = sth.search_question_k(study, args.question, args.k_range, progress=lambda done, total, k:
+        result = sth.question_theme_search(study, args.question, args.k_range, progress=lambda done, total, k:
                                        bar(done, total), **common)
         print(sth.format_question_k_search(result))
         if args.chart:
@@ -134,7 +134,7 @@ def _fit(study: Study, args: argparse.Namespace) -> int:
     if args.seed_from_frame:
         seed_codes = True if args.seed_from_frame == "all" else [
             _whole(n.strip(), "--seed-from-frame code") for n in args.seed_from_frame.split(",") if n.strip()]
-    result = sth.fit_question_themes(study, args.question, k=10 if args.k is None else args.k, by=args.by,
+    result = sth.question_themes(study, args.question, k=10 if args.k is None else args.k, by=args.by,
                                      seed_terms=args.seed_terms, seed_from_frame=seed_codes,
                                      progress=progress_bar("analysing verbatims"), **common)
     print(sth.format_question_themes(result))

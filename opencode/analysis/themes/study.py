@@ -242,7 +242,7 @@ def _check_method(method: str, loss: str) -> None:
         raise OpenCodeError(f"loss {loss!r} is an NMF option: LDA has no loss to choose")
 
 
-def fit_question_themes(study: Study, question: str, *, k: int = 10, method: str = "nmf", loss: str = "frobenius",
+def question_themes(study: Study, question: str, *, k: int = 10, method: str = "nmf", loss: str = "frobenius",
                         by: str | None = None, seed_terms: Sequence[Sequence[str]] | str | None = None,
                         seed_from_frame: bool | Sequence[int] = False, min_df: float | int = DEFAULT_MIN_DF,
                         max_df: float | int = 1.0, random_state: int | None = 0, n_top: int = 10,
@@ -289,7 +289,7 @@ def fit_question_themes(study: Study, question: str, *, k: int = 10, method: str
     return result
 
 
-def search_question_k(study: Study, question: str, k_range: str | Sequence[int] = DEFAULT_K_RANGE, *,
+def question_theme_search(study: Study, question: str, k_range: str | Sequence[int] = DEFAULT_K_RANGE, *,
                       method: str = "nmf", loss: str = "frobenius", min_df: float | int = DEFAULT_MIN_DF,
                       max_df: float | int = 1.0, random_state: int | None = 0,
                       progress: Callable[[int, int, int], None] | None = None, save: bool = True,
@@ -316,8 +316,8 @@ def search_question_k(study: Study, question: str, k_range: str | Sequence[int] 
 
 def themes_with_chart(study: Study, question: str, chart_path: str | os.PathLike,
                       **fit_params: Any) -> tuple[QuestionThemes, Path]:
-    """Fit and keep a run (fit_question_themes's options) and draw its term chart as a PNG for a report."""
-    result = fit_question_themes(study, question, **fit_params)
+    """Fit and keep a run (question_themes's options) and draw its term chart as a PNG for a report."""
+    result = question_themes(study, question, **fit_params)
     return result, plot_theme_terms(result.run, chart_path)
 
 
