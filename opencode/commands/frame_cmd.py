@@ -326,7 +326,7 @@ def _import_codes(study: Study, args: argparse.Namespace) -> None:
         if report.blank_means == "uncoded":
             print(f"{blank:,} answered verbatims have a blank code cell for {who}: left not coded (out of the base); "
                   f"if blank means no code applies, run again with --blank-means no-code or mark them with: "
-                  f"oecode frame {args.study} done --question {args.question} --coder {who}")
+                  f"oecode frame done {args.study} --question {args.question} --coder {who}")
         else:
             print(f"{blank:,} answered verbatims have a blank code cell for {who}: marked done with no code")
     if report.unmatched_respondents:
@@ -342,7 +342,7 @@ def _done(study: Study, args: argparse.Namespace, done: bool = True) -> None:
     report = done_marks.set_done(study, args.question, args.coder, args.which, done=done)
     state = "done" if done else "not done"
     print(f"{args.question}: {report.changed:,} of {report.chosen:,} verbatims ({args.which}) marked {state} for "
-          f"{args.coder}; undo with: oecode frame {args.study} undo --coder {args.coder}")
+          f"{args.coder}; undo with: oecode frame undo {args.study} --coder {args.coder}")
 
 
 def _not_done(study: Study, args: argparse.Namespace) -> None:
