@@ -141,6 +141,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         p = add_action(actions, name, what, [f"oecode frame {name} survey.study --coder ash"])
         p.add_argument("--coder", help="whose change (default: --actor, else 'oecode')")
         _actor_option(p)
+        p.add_argument("--question", help=argparse.SUPPRESS)  # accepted as before actions came first: undo takes
+        # back the person's last change, whichever question it was on
 
     for name, what in (("done", "mark verbatims finished with no code for a coder (one undoable step)"),
                        ("not-done", "take back done marks for a coder")):
