@@ -138,6 +138,10 @@ def test_mistyped_verb_or_action_is_one_line_with_the_nearest(words, message, ca
     (["frame", "list", "s.study", "--qeustion", "why"], "did you mean --question?"),
     (["model", "queue", "s.study", "--question", "why", "--kind", "secnd-look"], "did you mean 'second-look'?"),
     (["frame", "add", "s.study", "--question", "why", "--lable", "x"], "did you mean --label?"),
+    (["model", "train", "s.study", "--question", "why", "--kind", "learn"], "--kind is an option of oecode model "
+     "queue"),
+    (["frame", "list", "s.study", "--question", "why", "--into", "3"], "--into is an option of oecode frame merge "
+     "and oecode frame delete"),
 ])
 def test_mistyped_option_or_choice_suggests_the_nearest(words, message, capsys):
     with pytest.raises(SystemExit) as stop:
