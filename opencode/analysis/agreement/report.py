@@ -90,7 +90,7 @@ def _ranking_headers(result: AgreementResult) -> list[str]:
 
 
 def _ranking_title(result: AgreementResult) -> str:
-    basis = "the low end of each interval" if result.n_resamples else "each value (no intervals)"
+    basis = "the low end of each interval" if result.n_resamples else "the values themselves, without intervals"
     return (f"Codes from least to most reliable (judged on {basis}; bars: kappa {result.kappa_bar:.3f}, "
             f"alpha {result.alpha_bar:.3f})")
 
