@@ -213,7 +213,8 @@ def _promote(study: Study, args: argparse.Namespace) -> int:
     print(f"draft code {code.number} {code.label!r} added from theme {theme} of run {run_id}"
           + (f" (hotkey {code.hotkey})" if code.hotkey else ""))
     print(f"starting rule: {code.rule}")
-    print("it is a draft: check its label, notes and rule before coding with it (oecode frame edit, oecode frame rule)", file=sys.stderr)
+    print("it is a draft: check its label, notes and rule before coding with it (oecode frame edit, oecode frame "
+          "rule)", file=sys.stderr)
     return 0
 
 
@@ -226,4 +227,5 @@ def _delete(study: Study, args: argparse.Namespace) -> int:
     return 0
 
 
-HANDLERS = {"fit": _fit, "search": _search, "list": _list, "show": _show, "compare": _compare, "promote": _promote, "delete": _delete}
+HANDLERS = {"fit": _fit, "search": _search, "list": _list, "show": _show, "compare": _compare, "promote": _promote,
+            "delete": _delete}
