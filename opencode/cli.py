@@ -155,12 +155,9 @@ def parse(words: list[str]) -> tuple[argparse.ArgumentParser, argparse.Namespace
         actions = _sub_choices(leaf)
         if actions:
             module = importlib.import_module(f"opencode.commands.{VERBS[verb][0]}")
-            default = getattr(module, "default_action", None)
             words = reorder(words, at, actions)
-            rest = words[at + 1:]
-            if default and rest and rest[0] not in actions and not rest[0].startswith("-") \
-                    and (len(rest) == 1 or rest[1].startswith("-")) and not any(w in actions for w in rest):
-                words = words[:at + 1] + [default(rest)] + rest
+            if hasattr(module, "old_words"):  # the verb's own way of reading its older command lines
+                words = words[:at + 1] + module.old_words(words[at + 1:])
             rest = words[at + 1:]
             if rest and rest[0] in actions:
                 leaf = actions[rest[0]]

@@ -114,7 +114,10 @@ def test_old_order_runs_like_the_new(demo_copy, capsys):
     old = capsys.readouterr().out
     assert main(["lexicon", "show", demo_copy, "--question", "why"]) == 0
     assert capsys.readouterr().out == old
+    assert main(["frame", demo_copy, "edit", "--question", "why", "--code", "1", "--label", "Safe"]) == 0
+    capsys.readouterr()
     assert main(["frame", demo_copy, "undo", "--question", "why"]) == 0  # undo took --question before: still does
+    assert capsys.readouterr().out.startswith("undo: ")
     assert main(["sample", demo_copy, "list", "--question", "why"]) == 0
 
 
