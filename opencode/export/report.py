@@ -236,10 +236,10 @@ def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weig
         flags = _scale_flag(agreement, coding.question, bar)
     elif agreement is not None:
         chart, flagged, statistic = _agreement_chart(agreement)
-        bars = f"kappa {agreement.kappa_bar:.2f}, alpha {agreement.alpha_bar:.2f}"
+        bars = f"kappa {agreement.kappa_bar:.3f}, alpha {agreement.alpha_bar:.3f}"
         charts.append(f'<figure class="oc-chart">{chart}<figcaption>{html.escape(statistic)} per code between '
                       f"{html.escape(', '.join(agreement.coders))}, with its interval, least reliable first; dashed "
-                      f"line: the kappa bar {agreement.kappa_bar:.2f} (above 0.60 Landis &amp; Koch 1977 read "
+                      f"line: the kappa bar {agreement.kappa_bar:.3f} (above 0.60 Landis &amp; Koch 1977 read "
                       "substantial); ▽: the interval reaches under a bar.</figcaption></figure>")
         verdict = _agreement_verdict(agreement)
         if flagged:

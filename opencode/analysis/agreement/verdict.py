@@ -21,7 +21,7 @@ ALPHA_BAR = 0.667  # Krippendorff (2004): the lowest alpha on which to draw tent
 LEFT_OUT_SPECIALS = ("nonanswer", "dontknow")
 ADVICE_PAIRS = 3  # how many swapped code pairs the advice names
 MIN_SWAPS = 3  # common practice (no published source): a pair swapped on fewer verbatims is noise, not a pattern
-SHOWN_IDS = 8  # respondent ids printed with a piece of advice (the CSV and to_frame carry them all)
+SHOWN_IDS = 8  # respondent ids printed with a piece of advice (the CSV and result.swapped carry them all)
 
 
 @dataclass(frozen=True)
@@ -128,7 +128,7 @@ def rank_codes(per_code: Sequence, kappa_name: str, special_codes: Mapping, incl
     for i in order + [i for i in range(len(draft)) if i not in ranks]:
         item, kappa, alpha, special, flagged, why = draft[i]
         out.append(CodeStanding(item.code, item.label, ranks.get(i), kappa, alpha, item.n_mentions,
-                                getattr(item, "n_disputed", 0), special, include_special or special is None,
+                                item.n_disputed, special, include_special or special is None,
                                 flagged, why))
     return tuple(out)
 
