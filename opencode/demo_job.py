@@ -162,7 +162,9 @@ def _code(study: Study, question: str, outputs: DemoOutputs, say):
     kappa = result.frame["mean_kappa"]
     alpha = result.frame["alpha_masi"]
     outputs.lines.append(f"{question}: agreement between {' and '.join(DEMO_CODERS)} on {result.n_pairable} verbatims: "
-                         f"mean kappa {_number(kappa)}, alpha (MASI) {_number(alpha)}")
+                         f"{result.headline.verdict} ({result.headline.n_flagged} of {result.headline.n_judged} codes "
+                         f"under the bar, special codes left out); mean kappa {_number(kappa)}, alpha (MASI) "
+                         f"{_number(alpha)}")
     say(f"{question}: adjudication into the final coder")
     agreed = adjudication.accept_agreed(study, question, DEMO_CODERS, actor=ACTOR)
     differing = adjudication.differences(study, question, DEMO_CODERS)
@@ -184,7 +186,7 @@ def _code(study: Study, question: str, outputs: DemoOutputs, say):
 
 
 def _number(estimate) -> str:
-    return "undefined" if estimate.value is None else f"{estimate.value:.2f} ({estimate.words})"
+    return "undefined" if estimate.value is None else f"{estimate.value:.2f}"
 
 
 def _tables(study: Study, folder: Path, outputs: DemoOutputs) -> None:

@@ -96,3 +96,36 @@ def test_bad_input_exits_1_with_one_clear_line(demo_copy, capsys, argv, message)
     argv = [argv[0], demo_copy, *argv[1:]]
     code, out, err = run(capsys, *argv)
     assert code == 1 and message in err and "Traceback" not in err
+
+
+def test_agree_leads_with_one_headline_and_advice(demo_copy, capsys, csv_sets):
+    sets = csv_sets
+    # counted by hand from demo/double-coded.csv: verbatims where one coder has 7 without 9 and the other 9 without 7
+    swapped = sum(1 for r in sets["ash"]
+                  if ({7, 9} & sets["ash"][r]) and len({7, 9} & sets["ash"][r]) == 1
+                  and ({7, 9} & sets["bryn"][r]) and len({7, 9} & sets["bryn"][r]) == 1
+                  and ({7, 9} & sets["ash"][r]) != ({7, 9} & sets["bryn"][r]))
+    code, out, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--resamples", "0")
+    assert code == 0, err
+    assert out.count("Headline:") == 1 and out.index("Headline:") < out.index("What to do")
+    assert "Left out of the headline mean: the special codes 98 Don't know, 99 No answer" in out
+    assert "Count them in with --include-special-codes." in out
+    assert (f"Tighten the definitions of 7 Convenient after work and 9 Fair access for shift workers; recode the "
+            f"{swapped} verbatims where they were swapped") in out
+    assert "Landis & Koch 1977" in out and "Krippendorff 2004" in out
+    ranking = out.split("Codes from least to most reliable")[1].split("Across the code frame")[0]
+    assert re.search(r"^1\s+9\s+Fair access for shift workers .* under the bar", ranking, re.M)
+    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--resamples", "0",
+                       "--kappa-bar", "0.3", "--alpha-bar", "0.3", "--include-special-codes")
+    ranking = out.split("Codes from least to most reliable")[1].split("Across the code frame")[0]
+    assert code == 0 and "bars: kappa 0.300, alpha 0.300" in ranking and "under the bar" not in ranking
+    assert "Headline: reliable" in out and "are counted in the headline mean" in out
+    code, _, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--kappa-bar", "1.2")
+    assert code == 1 and "kappa bar must be between -1 and 1" in err
+
+
+def test_the_command_line_defaults_are_the_library_bars():
+    from opencode.analysis import choices
+    from opencode.analysis.agreement.verdict import ALPHA_BAR, KAPPA_BAR
+
+    assert (choices.AGREEMENT_KAPPA_BAR, choices.AGREEMENT_ALPHA_BAR) == (KAPPA_BAR, ALPHA_BAR)

@@ -161,7 +161,9 @@ def test_agreement_from_the_study_matches_the_csv_and_sklearn(demo_copy, csv_set
     rows = [(rid, coder, c) for coder, by in sets.items() for rid, cs in by.items() for c in cs]
     direct = measure_agreement(CodingMatrix.from_assignments(rows, {c: list(b) for c, b in sets.items()},
                                                               coders=["ash", "bryn"], codes=codes),
-                               code_labels=labels, n_resamples=100, random_state=4)
+                               code_labels=labels, n_resamples=100, random_state=4,
+                               special_codes={98: "dontknow", 99: "nonanswer"})  # the frame's specials (frame-why.csv)
+    assert result.special_codes == {98: "dontknow", 99: "nonanswer"}
     assert result.n_pairable == direct.n_pairable == 300
     assert {k: e.value for k, e in result.frame.items()} == {k: e.value for k, e in direct.frame.items()}
     assert [(c.code, c.label, c.statistics["cohen_kappa"].value) for c in result.per_code] == \

@@ -52,7 +52,8 @@ def _run(command: str, target: str, out: Path, capsys) -> tuple[int, str]:
     arguments = [a.replace("STUDY", target).replace("OUT", str(out)) for a in shlex.split(command)]
     code = main(arguments)
     captured = capsys.readouterr()
-    text = (captured.out + captured.err).replace(target, "STUDY").replace(str(out), "OUT")
+    text = (captured.out + captured.err).replace(shlex.quote(target), "STUDY")  # printed commands quote it
+    text = text.replace(target, "STUDY").replace(str(out), "OUT")
     return code, re.sub(r"\d{4}-\d\d-\d\dT\d\d:\d\d(:\d\d)?(\.\d+)?", "TIME", text)  # when it ran differs
 
 

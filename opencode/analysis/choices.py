@@ -3,6 +3,9 @@
 
 #: agreement.study.LEVELS: the codes' level of measurement.
 AGREEMENT_LEVELS = ("nominal", "ordinal", "interval", "ratio")
+#: agreement.verdict.KAPPA_BAR and ALPHA_BAR: a code is flagged when its interval reaches under either.
+AGREEMENT_KAPPA_BAR = 0.60
+AGREEMENT_ALPHA_BAR = 0.667
 #: themes.study.DEFAULT_MIN_DF: keep terms found in at least this many verbatims.
 THEMES_MIN_DF = 2
 #: tables.study.TABLE_SUFFIXES: the files tables are written as.

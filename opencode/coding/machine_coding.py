@@ -224,6 +224,17 @@ def code_report(study: Study, question: str) -> list[dict[str, Any]]:
     return rows
 
 
+def respondent_ids(study: Study, question: str, verbatim_ids) -> list[str]:
+    """The survey's respondent ids (what the desk's go-to takes) of a question's verbatims, in the order given."""
+    by_id = survey_data.verbatims(study, question).set_index("verbatim_id")["respondent"].astype(str)
+    return [by_id.get(int(v), "") for v in verbatim_ids]
+
+
+#: the accuracy the curve's advice aims for when picking a threshold to suggest: Schonlau & Couper (2016)'s
+#: example reached about 90% (PUBLISHED_EXAMPLE)
+ADVICE_ACCURACY = PUBLISHED_EXAMPLE["accuracy"]
+
+
 @dataclass
 class CurveReport:
     """The coverage-versus-accuracy curve of a question's model (cross-validated), per-code figures at one
@@ -236,6 +247,8 @@ class CurveReport:
     n_verbatims: int
     left_out: int
     notes: list[str]
+    suggested_threshold: float | None = None  # the lowest threshold reaching ADVICE_ACCURACY (most auto-coded)
+    suggestion: str = ""  # why that threshold, in words
 
 
 def curve(study: Study, question: str, thresholds: list[float] | None = None, code_threshold: float = 0.8
@@ -268,7 +281,23 @@ def curve(study: Study, question: str, thresholds: list[float] | None = None, co
                  "(one code per answer, top probability above t)" + (f"; {ours}" if ours else "") + ". With several "
                  "codes per verbatim the rule here is stricter: sure about every code.")
     return CurveReport(rows, float(code_threshold), per_code, cannot, len(cv.truth),
-                       int(trained.meta.get("left_out", 0)), notes)
+                       int(trained.meta.get("left_out", 0)), notes, *_suggested_threshold(rows))
+
+
+def _suggested_threshold(rows: list[dict[str, float]]) -> tuple[float | None, str]:
+    """The threshold the curve's advice suggests and why: the lowest reaching ADVICE_ACCURACY (most verbatims
+    auto-coded), else the most accurate one that auto-codes anything."""
+    picked = pick_threshold(rows, ADVICE_ACCURACY)
+    if picked is not None:
+        row = next(r for r in rows if r["threshold"] == picked)
+        return picked, (f"the lowest threshold reaching {ADVICE_ACCURACY:.0%} accuracy: {row['coverage']:.0%} of "
+                        f"verbatims auto-coded at {row['accuracy']:.1%}")
+    used = [r for r in rows if r["verbatims"]]
+    if not used:
+        return None, "no threshold auto-codes any verbatim yet: code more verbatims by hand and train again"
+    best = max(used, key=lambda r: (r["accuracy"], -r["threshold"]))
+    return best["threshold"], (f"no threshold reaches {ADVICE_ACCURACY:.0%} accuracy; the most accurate one "
+                               f"auto-codes {best['coverage']:.0%} at {best['accuracy']:.1%}")
 
 
 @dataclass
@@ -335,7 +364,8 @@ def apply_machine(study: Study, question: str, threshold: float | None = None, t
 def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_similarity: float = 0.8
                    ) -> list[dict[str, Any]]:
     """What to code next (active learning): the verbatims the model is least sure about (uncertainty sampling,
-    Lewis & Gale 1994), skipping near-duplicates of ones already picked (cosine similarity of term vectors)."""
+    Lewis & Gale 1994), skipping near-duplicates of ones already picked (cosine similarity of term vectors).
+    Each item names its verbatim by the survey's respondent id ("respondent", what the desk's go-to takes)."""
     trained = load_model(study, question)
     frame = survey_data.verbatims(study, question, include_nonanswers=False)
     open_ids = set(astore.uncoded_ids(study, trained.question_id, coder, None, None, False))
@@ -355,17 +385,19 @@ def learning_queue(study: Study, question: str, coder: str, n: int = 20, max_sim
         if len(picked) == n:
             break
     ids = frame["verbatim_id"].to_numpy()
+    respondents = frame["respondent"].astype(str).to_numpy()
     texts = frame["text"].to_numpy()
     codes = trained.model.classes_
-    return [{"verbatim_id": int(ids[r]), "uncertainty": float(score[r]), "code": int(codes[doubt[r].argmax()]),
-             "probability": float(proba[r, doubt[r].argmax()]), "text": texts[r]} for r in picked]
+    return [{"verbatim_id": int(ids[r]), "respondent": respondents[r], "uncertainty": float(score[r]),
+             "code": int(codes[doubt[r].argmax()]), "probability": float(proba[r, doubt[r].argmax()]),
+             "text": texts[r]} for r in picked]
 
 
 def second_look_queue(study: Study, question: str, coder: str | None = None, n: int = 20, strength: float = 0.8
                       ) -> list[dict[str, Any]]:
     """Hand codes the model strongly disagrees with in cross-validation (a code given with probability below
     1 - strength, or missing with probability above strength): re-checking these finds more coding errors
-    than random re-checks (He & Schonlau 2021)."""
+    than random re-checks (He & Schonlau 2021). Each item carries the survey's respondent id ("respondent")."""
     trained = load_model(study, question)
     model = trained.model
     y = model.y_[:, model.trained_]
@@ -376,11 +408,13 @@ def second_look_queue(study: Study, question: str, coder: str | None = None, n: 
     if coder is not None:
         flagged = flagged[owners[flagged[:, 0]] == coder]
     order = np.argsort(-disagree[flagged[:, 0], flagged[:, 1]], kind="stable")[:n]
-    texts = survey_data.verbatims(study, question).set_index("verbatim_id")["text"]
+    verbatims = survey_data.verbatims(study, question).set_index("verbatim_id")
+    texts, respondents = verbatims["text"], verbatims["respondent"].astype(str)
     out = []
     for row, j in flagged[order]:
         verbatim_id = int(trained.train_ids[row])
-        out.append({"verbatim_id": verbatim_id, "coder": owners[row], "code": int(model.classes_[j]),
+        out.append({"verbatim_id": verbatim_id, "respondent": respondents.get(verbatim_id, ""), "coder": owners[row],
+                    "code": int(model.classes_[j]),
                     "given": bool(y[row, j]), "probability": float(p[row, j]),
                     "why": "model doubts this code" if y[row, j] else "model expects this code",
                     "text": texts.get(verbatim_id, "")})

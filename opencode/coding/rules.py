@@ -297,6 +297,7 @@ class RuleHits:
     total: int
     verbatim_ids: list[int]
     texts: list[str]
+    respondents: list[str] = field(default_factory=list)  # the survey's respondent ids (what the desk's go-to takes)
 
     @property
     def count(self) -> int:
@@ -316,7 +317,7 @@ def rule_hits(study: Study, question: str, rule: str, analyzer: Any = None, code
     frame, lists = _corpus(study, question, analyzer)
     hit = parsed.match(lists)
     return RuleHits(rule, len(frame), frame["verbatim_id"].to_numpy()[hit].tolist(),
-                    frame["text"].to_numpy()[hit].tolist())
+                    frame["text"].to_numpy()[hit].tolist(), frame["respondent"].astype(str).to_numpy()[hit].tolist())
 
 
 def apply_rules(study: Study, question: str, coder: str = "final", codes: list[int] | None = None,

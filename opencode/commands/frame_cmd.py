@@ -361,9 +361,12 @@ def _rule(study: Study, args: argparse.Namespace) -> None:
     if args.dry_run:
         hits = rules.rule_hits(study, args.question, text, code=args.code)
         print(f"rule for code {args.code}: {text}")
-        print(f"would pre-code {hits.count} of {hits.total} verbatims (nothing written)")
-        for verbatim_id, verbatim in list(zip(hits.verbatim_ids, hits.texts))[: args.show]:
-            print(f"  {verbatim_id:>7}  {verbatim[:100]}")
+        print(f"would pre-code {hits.count} of {hits.total} verbatims (nothing written)"
+              + (f"; first {min(args.show, hits.count)} by respondent id, as the desk's go-to takes it:"
+                 if hits.count and args.show > 0 else ""))
+        width = max((len(r) for r in hits.respondents[: args.show]), default=0)
+        for respondent, verbatim in list(zip(hits.respondents, hits.texts))[: args.show]:
+            print(f"  {respondent:>{width}}  {verbatim[:100]}")
         return
     rules.set_rule(study, args.question, args.code, text, actor=_actor(args))
     print(f"code {args.code} rule set: {text}" if text else f"code {args.code} rule removed")

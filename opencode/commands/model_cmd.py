@@ -99,6 +99,8 @@ def _train(study: Study, args: argparse.Namespace) -> None:
     trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
     print(f"model {trained.id}: suggests {len(trained.model.classes_)} of {len(trained.model.codes_)} codes")
     _report(study, args)
+    print("next, see how much the model can code alone at each threshold: "
+          + _command("model", "curve", args.study, "--question", args.question))
 
 
 def _report(study: Study, args: argparse.Namespace) -> None:
@@ -124,6 +126,13 @@ def _ratio(value: float) -> str:
     return "-" if value != value else f"{value:.3f}"
 
 
+def _command(*words: str) -> str:
+    """A command line a user can paste as it is: `oecode` and the words, each quoted for the shell if needed."""
+    import shlex
+
+    return " ".join(["oecode", *(shlex.quote(str(w)) for w in words)])
+
+
 def _curve(study: Study, args: argparse.Namespace) -> None:
     from opencode.coding import machine_coding
     from opencode.files.textout import format_table
@@ -142,7 +151,14 @@ def _curve(study: Study, args: argparse.Namespace) -> None:
                        align="rlrrrrrl"))
     for note in report.notes:
         print(f"- {note}")
-    print("pick a threshold whose accuracy you accept; then: oecode model apply STUDY --question Q --threshold T")
+    if report.suggested_threshold is None:
+        print(f"no threshold to suggest: {report.suggestion}")
+        return
+    print(f"suggested threshold {report.suggested_threshold:.2f} ({report.suggestion}); to store the model's codes "
+          "there as suggestions for people to accept (pick another threshold from the table if its accuracy suits "
+          "you better):")
+    print("  " + _command("model", "apply", args.study, "--question", args.question, "--threshold",
+                          f"{report.suggested_threshold:.2f}"))
 
 
 def _suggest(study: Study, args: argparse.Namespace) -> None:
@@ -150,12 +166,15 @@ def _suggest(study: Study, args: argparse.Namespace) -> None:
     from opencode.files.textout import format_table
 
     proba = machine_coding.suggest(study, args.question, coder=_coder_of(args))
+    shown = proba.head(args.limit)
+    respondents = machine_coding.respondent_ids(study, args.question, shown.index.tolist())
     rows = []
-    for verbatim_id, values in proba.head(args.limit).iterrows():
+    for respondent, (_, values) in zip(respondents, shown.iterrows()):
         best = values.sort_values(ascending=False).head(3)
-        rows.append([int(verbatim_id), "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
-    print(f"{len(proba)} verbatims not yet coded by {_coder_of(args)}; first {len(rows)}:")
-    print(format_table(["verbatim", "likeliest codes (probability)"], rows))
+        rows.append([respondent, "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
+    print(f"{len(proba)} verbatims not yet coded by {_coder_of(args)}; first {len(rows)} (by respondent id, as the "
+          "desk's go-to takes it):")
+    print(format_table(["respondent", "likeliest codes (probability)"], rows))
     print(SUGGESTION_NOTE)
 
 
@@ -175,15 +194,16 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
 
     if args.kind == "learn":
         items = machine_coding.learning_queue(study, args.question, _coder_of(args), n=args.limit)
-        print("code these next (the model is least sure about them):")
-        print(format_table(["verbatim", "doubt", "code", "p", "text"],
-                           [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
+        print("code these next (the model is least sure about them; respondent ids as the desk's go-to takes them):")
+        print(format_table(["respondent", "doubt", "code", "p", "text"],
+                           [[i["respondent"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
                             for i in items]))
     else:
         items = machine_coding.second_look_queue(study, args.question, args.coder, n=args.limit)
-        print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
-        print(format_table(["verbatim", "coder", "code", "p", "why", "text"],
-                           [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
+        print("hand codes worth a second look (the model strongly disagrees in cross-validation; respondent ids as "
+              "the desk's go-to takes them):")
+        print(format_table(["respondent", "coder", "code", "p", "why", "text"],
+                           [[i["respondent"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
                             for i in items]))
 
 

@@ -6,6 +6,7 @@ import argparse
 import html
 from typing import TYPE_CHECKING
 
+from opencode.analysis.choices import AGREEMENT_ALPHA_BAR, AGREEMENT_KAPPA_BAR
 from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
 from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
@@ -55,6 +56,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     a = add_verb(subparsers, "agree", "agreement between coders (kappa, alpha, AC1) and adjudication into final", [
         "oecode agree survey.study --question why --coders ash,bryn --differences 5",
+        "oecode agree survey.study --question why --coders ash,bryn --kappa-bar 0.7 --alpha-bar 0.8",
         "oecode agree survey.study --question why --coders ash,bryn --adjudicate agreed"])
     a.add_argument("study")
     a.add_argument("--question", required=True, help="the open question")
@@ -67,6 +69,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--csv", help="also write the results as a long CSV file")
     a.add_argument("--html", help="also write the results as an HTML page")
     a.add_argument("--differences", type=int, metavar="N", help="list N verbatims where the coders differ")
+    a.add_argument("--kappa-bar", type=float, default=AGREEMENT_KAPPA_BAR, metavar="K",
+                   help=f"flag a code whose kappa interval reaches under K (default {AGREEMENT_KAPPA_BAR:.2f}: above "
+                   "it Landis & Koch 1977 read substantial)")
+    a.add_argument("--alpha-bar", type=float, default=AGREEMENT_ALPHA_BAR, metavar="A",
+                   help=f"flag a code whose Krippendorff's alpha interval reaches under A (default "
+                   f"{AGREEMENT_ALPHA_BAR}: Krippendorff 2004's lowest for tentative conclusions)")
+    a.add_argument("--include-special-codes", action="store_true", help="count the frame's non-answer and "
+                   "don't-know codes in the headline mean (left out by default: they agree almost by construction)")
     a.add_argument("--level", choices=LEVELS, help="the codes' level of measurement: nominal (per-code statistics, "
                    "the default) or ordinal / interval / ratio when the codes form a scale (one per verbatim); "
                    "remembered for the question and used by the report")
@@ -196,13 +206,16 @@ def run_agree(args: argparse.Namespace) -> int:
         scale = _scale_codes(args.scale)
         result = question_agreement(study, args.question, args.coders, args.sample, n_resamples=args.resamples,
                                     random_state=args.seed, top=args.top, level=args.level, weights=args.weights,
-                                    scale=scale)
+                                    scale=scale, include_special=args.include_special_codes,
+                                    kappa_bar=args.kappa_bar, alpha_bar=args.alpha_bar)
         if args.level:
             remember_level(study, args.question, args.level, args.weights, scale, actor=args.actor)
         where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
         print(f"Agreement on {where}\n")
         on_scale = isinstance(result, ScaleAgreementResult)
-        print((format_scale_agreement_text if on_scale else format_agreement_text)(result), end="")
+        hint = "" if args.include_special_codes else "Count them in with --include-special-codes."
+        print(format_scale_agreement_text(result) if on_scale else format_agreement_text(result, special_hint=hint),
+              end="")
         if args.csv:
             print(f"\nwrote {(write_scale_agreement_csv if on_scale else write_agreement_csv)(result, args.csv)}")
         if args.html:

@@ -23,6 +23,7 @@ from opencode.version import __version__
 from opencode.analysis.tables import coded_data
 from opencode.analysis.agreement.core import STATISTIC_LABELS, AgreementResult
 from opencode.analysis.agreement.report import format_agreement_html
+from opencode.analysis.agreement.verdict import KAPPA_BAR
 from opencode.analysis.agreement.scale import SCALE_LABELS, ScaleAgreementResult
 from opencode.analysis.sentiment.study import sentiment_report_section
 from opencode.analysis.tables.output import TABLE_CSS, to_html
@@ -40,8 +41,9 @@ from opencode.study import survey_data, theme_runs_store
 from opencode.study.store import Study
 from opencode.study.summary import summarise
 
-#: Per-code agreement under this is flagged: the lower edge of "substantial" in Landis & Koch (1977), Biometrics 33.
-AGREEMENT_BAR = 0.61
+#: The kappa bar of a scale result (a nominal result carries its own bars, see analysis.agreement.verdict): above
+#: 0.60 Landis & Koch (1977), Biometrics 33, read "substantial".
+AGREEMENT_BAR = KAPPA_BAR
 #: Codes in the summary chart of each question.
 TOP_CODES = 6
 #: Banner columns (Total included) per table, so a banner table fits an 800-pixel page.
@@ -166,12 +168,12 @@ def build_report(
     mask_verbatims: bool = True,
     title: str | None = None,
     notes: list[str] | None = None,
-    agreement_bar: float = AGREEMENT_BAR,
+    agreement_bar: float | None = None,
 ) -> Path:
     """Write the report for `questions` (default: every question with a code frame) and return its path.
 
-    `agreement` maps a question to its coder-agreement result; per-code agreement under `agreement_bar` is
-    flagged. `notes` (if given) collects the warnings the report states (suggestions included, verbatims not
+    `agreement` maps a question to its coder-agreement result; the codes it flags (interval reaching under its
+    bars) are flagged here too. `agreement_bar` judges the results against another kappa bar. `notes` (if given) collects the warnings the report states (suggestions included, verbatims not
     yet coded, small bases) for the caller to show.
     """
     target = check_writable_target(path)
@@ -185,8 +187,12 @@ def build_report(
     for index, question in enumerate(coded_data.coded_questions(study, questions)):
         coding = coded_data.load_coding(study, question, coder, include_suggestions=include_suggestions)
         quotes = example_verbatims(study, coding, quotes_per_code, mask_verbatims) if quotes_per_code > 0 else {}
-        part, question_notes = _question_part(f"q{index + 1}", coding, banners, survey_weight,
-                                              (agreement or {}).get(question), agreement_bar, quotes, mask_verbatims)
+        measured = (agreement or {}).get(question)
+        if agreement_bar is not None and isinstance(measured, AgreementResult):
+            measured = measured.with_bars(kappa_bar=agreement_bar, alpha_bar=measured.alpha_bar)
+        part, question_notes = _question_part(f"q{index + 1}", coding, banners, survey_weight, measured,
+                                              AGREEMENT_BAR if agreement_bar is None else agreement_bar, quotes,
+                                              mask_verbatims)
         sentiment = sentiment_report_section(study, question, coder=coder, include_suggestions=include_suggestions,
                                              weight=weight, unweighted=unweighted)
         if sentiment:
@@ -229,15 +235,19 @@ def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weig
         charts.append(f'<p class="oc-note">{html.escape(_scale_line(agreement))}</p>')
         flags = _scale_flag(agreement, coding.question, bar)
     elif agreement is not None:
-        chart, flagged, statistic = _agreement_chart(agreement, bar)
+        chart, flagged, statistic = _agreement_chart(agreement)
+        bars = f"kappa {agreement.kappa_bar:.3f}, alpha {agreement.alpha_bar:.3f}"
         charts.append(f'<figure class="oc-chart">{chart}<figcaption>{html.escape(statistic)} per code between '
-                      f"{html.escape(', '.join(agreement.coders))}, with its interval; dashed line: the bar "
-                      f"{bar:.2f} (Landis &amp; Koch: substantial).</figcaption></figure>")
+                      f"{html.escape(', '.join(agreement.coders))}, with its interval, least reliable first; dashed "
+                      f"line: the kappa bar {agreement.kappa_bar:.3f} (above 0.60 Landis &amp; Koch 1977 read "
+                      "substantial); ▽: the interval reaches under a bar.</figcaption></figure>")
+        verdict = _agreement_verdict(agreement)
         if flagged:
-            flags = (f'<p class="oc-flag">▽ <strong>Under the bar ({bar:.2f})</strong> in {html.escape(coding.question)}: '
-                     + "; ".join(html.escape(f) for f in flagged) + ". Review these codes' definitions.</p>")
+            flags = (f'<p class="oc-flag">▽ <strong>Under the bar ({bars})</strong> in {html.escape(coding.question)}, '
+                     "least reliable first: " + "; ".join(html.escape(f) for f in flagged) + f". {verdict}</p>")
         else:
-            flags = f'<p class="oc-flag">Every code of {html.escape(coding.question)} is at or above the bar ({bar:.2f}).</p>'
+            flags = (f'<p class="oc-flag">Every code of {html.escape(coding.question)} clears the bars ({bars}). '
+                     f"{verdict}</p>")
     else:
         charts.append('<p class="oc-note">No coder agreement measured for this question (oecode agree, or '
                       "--coders with oecode report).</p>")
@@ -264,26 +274,37 @@ def _details(summary: str, inner: str, opened: bool = False) -> str:
     return f"<details{' open' if opened else ''}><summary>{html.escape(summary)}</summary>{inner}</details>"
 
 
-def _agreement_chart(result: AgreementResult, bar: float) -> tuple[str, list[str], str]:
-    """The per-code agreement chart, the codes under the bar in words, and the statistic's name."""
-    name = "cohen_kappa" if "cohen_kappa" in result.statistic_names else (
-        "fleiss_kappa" if "fleiss_kappa" in result.statistic_names else result.statistic_names[0])
+def _agreement_verdict(result: AgreementResult) -> str:
+    """The agreement headline in a sentence or two: the verdict on the frame, then what to do first."""
+    if result.headline is None:
+        return ""
+    frame = {"reliable": "The frame as a whole clears both bars.",
+             "review codes": "The frame as a whole clears both bars; review the codes under the bar.",
+             "not reliable yet": "The frame as a whole does not clear the bars yet.",
+             "undefined": "Agreement is undefined for every code in the headline."}[result.headline.verdict]
+    first = f" First: {result.advice[0]}" if result.advice else ""
+    return frame + first
+
+
+def _agreement_chart(result: AgreementResult) -> tuple[str, list[str], str]:
+    """The per-code agreement chart (least reliable first), the flagged codes of the headline in words, and the
+    statistic's name; the flags are the agreement library's (the low end of the interval against the bars)."""
+    name = result.kappa_name
     statistic = STATISTIC_LABELS.get(name, name)
-    labels, values, lows, highs, flagged = [], [], [], [], []
-    for code in result.per_code:
-        estimate = code.statistics.get(name)
-        value = None if estimate is None else estimate.value
-        labels.append(f"{code.code} {code.label}")
-        values.append(value)
-        lows.append(None if estimate is None else estimate.low)
-        highs.append(None if estimate is None else estimate.high)
-        if value is not None and value < bar:
-            interval = (f" [{estimate.low:.3f}, {estimate.high:.3f}]" if estimate.low is not None and
-                        estimate.high is not None else "")
-            flagged.append(f"{code.code} {code.label} ({value:.3f}{interval})")
-    under = ", ".join(flagged) or "none"
-    img = png_img(agreement_chart_png(labels, values, lows, highs, bar, statistic),
-                  f"Chart: {statistic} per code with intervals; under the bar {bar:.2f}: {under}",
+    labels, values, lows, highs, marks, flagged = [], [], [], [], [], []
+    for standing in result.standings:
+        estimate = standing.kappa
+        labels.append(f"{standing.code} {standing.label}")
+        values.append(estimate.value)
+        lows.append(estimate.low)
+        highs.append(estimate.high)
+        marks.append(standing.flagged)
+        if standing.flagged and standing.in_headline:
+            interval = f" [{estimate.low:.3f}, {estimate.high:.3f}]" if estimate.low is not None else ""
+            flagged.append(f"{standing.code} {standing.label} ({estimate.value:.3f}{interval}: {standing.why})")
+    under = ", ".join(f"{s.code} {s.label}" for s in result.flagged) or "none"
+    img = png_img(agreement_chart_png(labels, values, lows, highs, result.kappa_bar, statistic, flagged=marks),
+                  f"Chart: {statistic} per code with intervals, least reliable first; under the bar: {under}",
                   css_class="oc-chart-image")
     return img, flagged, statistic
 

@@ -87,9 +87,12 @@ def frequency_chart_png(table: FrequencyTable, top: int | None = None) -> bytes:
 
 
 def agreement_chart_png(labels: Sequence[str], values: Sequence[float | None], lows: Sequence[float | None],
-                        highs: Sequence[float | None], bar: float, statistic: str) -> bytes:
+                        highs: Sequence[float | None], bar: float, statistic: str,
+                        flagged: Sequence[bool] | None = None) -> bytes:
     """Per-code agreement with its interval against a bar: codes under the bar drawn as hollow triangles with
     "▽ under" added to their label, codes at or above it as filled circles (shape and words, not colour alone).
+    `flagged` says which codes are under the bar (the agreement library's flags, judged on the low end of the
+    interval); without it a code is under when its value is.
     Codes whose statistic is undefined say so in their label. Labels are the y axis, kept whole in the figure."""
     n = len(labels)
     figure, ax = plt.subplots(figsize=(WIDTH_IN, 0.75 + 0.24 * max(n, 2)))
@@ -101,7 +104,7 @@ def agreement_chart_png(labels: Sequence[str], values: Sequence[float | None], l
         if value is None:
             names.append(f"{name} (undefined)")
             continue
-        under = value < bar
+        under = bool(flagged[i]) if flagged is not None else value < bar
         names.append(f"▽ under: {name}" if under else name)
         if low is not None and high is not None:
             ax.plot([low, high], [y, y], color=OKABE_ITO["black"], linewidth=1)

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
+from opencode.analysis.agreement.bands import cited_krippendorff, cited_landis_koch
 from opencode.analysis.agreement.bootstrap import bootstrap_totals, percentile_interval
 from opencode.analysis.agreement.codes import CodeFeatures, statistic_names
 from opencode.analysis.agreement.disagreement import (
@@ -23,10 +23,14 @@ from opencode.analysis.agreement.disagreement import (
     PairTables,
     confused_pairs,
     disputed_units,
+    disputed_verbatims_per_code,
     pair_tables,
+    swapped_units,
 )
 from opencode.analysis.agreement.matrix import CodingMatrix
 from opencode.analysis.agreement.sets import DISTANCES, SetAlphaParts, alpha_from_totals
+from opencode.analysis.agreement.verdict import (ADVICE_PAIRS, ALPHA_BAR, KAPPA_BAR, MIN_SWAPS, CodeStanding,
+                                                 Headline, SwappedPair, advice, check_bars, headline, rank_codes)
 from opencode.analysis.agreement.weighted import cohen_weighted, conger_kappa, gwet_family_counts
 from opencode.errors import OpenCodeError
 
@@ -86,6 +90,7 @@ class CodeAgreement:
     n_pairable: int
     n_mentions: int  # ratings with this code on those units, summed over coders
     statistics: dict[str, Estimate]
+    n_disputed: int = 0  # verbatims on which the coders split over this code
 
 
 @dataclass(frozen=True)
@@ -109,23 +114,83 @@ class AgreementResult:
     confidence: float = 0.95
     random_state: int | None = 0
     warnings: tuple[str, ...] = ()
+    special_codes: dict = field(default_factory=dict)  # code -> special kind, left out of the headline
+    include_special: bool = False  # special codes counted in the headline mean after all
+    kappa_bar: float = KAPPA_BAR
+    alpha_bar: float = ALPHA_BAR
+    standings: tuple[CodeStanding, ...] = ()  # every code, least reliable first (undefined ones last)
+    swapped: tuple[SwappedPair, ...] = ()  # the code pairs most often swapped, with their verbatims
+    headline: Headline | None = None
+    advice: tuple[str, ...] = ()
 
     def label(self, code) -> str:
         """The code's label, or the code itself when the frame gave none."""
         return str(self.code_labels.get(code, code))
 
+    @property
+    def kappa_name(self) -> str:
+        """The per-code kappa the ranking uses: Cohen's for two coders, Fleiss' for more."""
+        return "cohen_kappa" if "cohen_kappa" in self.statistic_names else "fleiss_kappa"
+
+    @property
+    def flagged(self) -> tuple[CodeStanding, ...]:
+        """The codes under the bar, least reliable first (special codes left out of the headline included)."""
+        return tuple(s for s in self.standings if s.flagged)
+
+    def with_bars(self, kappa_bar: float | None = None, alpha_bar: float | None = None) -> "AgreementResult":
+        """The same result judged against other bars (ranking, flags, headline and advice again; no recount)."""
+        return _judged(self, KAPPA_BAR if kappa_bar is None else kappa_bar,
+                       ALPHA_BAR if alpha_bar is None else alpha_bar)
+
     def to_frame(self) -> pd.DataFrame:
-        """One row per code (then the whole frame as code None): each statistic with its interval."""
+        """One row per code, least reliable first (undefined codes last), then the whole frame as code None:
+        rank, flagged (interval reaching under the bar), why, special, in_headline, then each statistic with its
+        interval. The whole-frame row is flagged when the headline says not reliable yet."""
         rows = []
-        for item in self.per_code:
-            row = {"code": item.code, "label": item.label, "n_pairable": item.n_pairable}
+        by_code = {item.code: item for item in self.per_code}
+        for standing in self.standings:
+            item = by_code[standing.code]
+            row = {"code": item.code, "label": item.label, "rank": standing.rank, "flagged": standing.flagged,
+                   "why": standing.why, "special": standing.special, "in_headline": standing.in_headline,
+                   "n_pairable": item.n_pairable, "n_mentions": item.n_mentions, "n_disputed": item.n_disputed}
             for name, estimate in item.statistics.items():
                 row.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
             rows.append(row)
-        whole = {"code": None, "label": "whole frame", "n_pairable": self.n_pairable}
+        under = self.headline is not None and self.headline.verdict == "not reliable yet"
+        whole = {"code": None, "label": "whole frame", "rank": None, "flagged": under,
+                 "why": self.headline.text if self.headline else "", "special": None, "in_headline": True,
+                 "n_pairable": self.n_pairable}
         for name, estimate in self.frame.items():
             whole.update({name: estimate.value, f"{name}_low": estimate.low, f"{name}_high": estimate.high})
-        return pd.DataFrame(rows + [whole])
+        frame = pd.DataFrame(rows + [whole])
+        frame["rank"] = frame["rank"].astype("Int64")
+        return frame
+
+
+def _judged(result: AgreementResult, kappa_bar: float, alpha_bar: float) -> AgreementResult:
+    """Rank, flag, headline and advise a result against the bars."""
+    import dataclasses
+
+    check_bars(kappa_bar, alpha_bar)
+    kappa_name = result.kappa_name
+    standings = rank_codes(result.per_code, kappa_name, result.special_codes, result.include_special, kappa_bar,
+                           alpha_bar)
+    said = headline(standings, result.frame.get("mean_kappa"), result.frame.get("alpha_masi"), kappa_bar, alpha_bar,
+                    STATISTIC_LABELS[kappa_name], "Krippendorff's alpha (MASI, whole code sets)")
+    return dataclasses.replace(result, kappa_bar=kappa_bar, alpha_bar=alpha_bar, standings=standings, headline=said,
+                               advice=advice(standings, result.swapped, kappa_bar, alpha_bar))
+
+
+def _swapped_pairs(matrix: CodingMatrix, pairs, labels: Mapping) -> tuple[SwappedPair, ...]:
+    """The most swapped code pairs worth advice: swapped on MIN_SWAPS verbatims or more, at most ADVICE_PAIRS."""
+    found = []
+    for pair in pairs:
+        units = swapped_units(matrix, pair.code_a, pair.code_b)
+        if len(units) >= MIN_SWAPS:
+            found.append(SwappedPair(pair.code_a, str(labels.get(pair.code_a, pair.code_a)), pair.code_b,
+                                     str(labels.get(pair.code_b, pair.code_b)), units))
+    found.sort(key=lambda p: -p.n_verbatims)
+    return tuple(found[:ADVICE_PAIRS])
 
 
 def _number(x) -> float | None:
@@ -136,9 +201,9 @@ def _number(x) -> float | None:
 
 def _band(name: str, value: float | None) -> str:
     if name in _LANDIS_KOCH:
-        return landis_koch_band(value)
+        return cited_landis_koch(value)
     if name in _KRIPPENDORFF:
-        return krippendorff_band(value)
+        return cited_krippendorff(value)
     return ""
 
 
@@ -231,12 +296,22 @@ def measure_agreement(
     random_state: int | None = 0,
     top: int = 10,
     max_sets_for_interval: int = 5000,
+    special_codes: Mapping | None = None,
+    include_special: bool = False,
+    kappa_bar: float = KAPPA_BAR,
+    alpha_bar: float = ALPHA_BAR,
 ) -> AgreementResult:
-    """Per-code and frame-wide agreement with seeded bootstrap percentile intervals (resampling units).
+    """Per-code and frame-wide agreement with seeded bootstrap percentile intervals (resampling units), the codes
+    ranked least to most reliable and flagged where their interval reaches under the bars, one headline, and
+    advice on the code pairs coders swap.
 
-    `max_sets_for_interval` bounds the distinct code sets for which the set-valued alphas get an
-    interval (that interval needs a sets x sets distance matrix); above it the value comes without one.
+    `special_codes` (code -> special kind, e.g. {98: "dontknow", 99: "nonanswer"}) are left out of the mean
+    per-code kappa and the headline unless `include_special`. `max_sets_for_interval` bounds the distinct code
+    sets for which the set-valued alphas get an interval (that interval needs a sets x sets distance matrix);
+    above it the value comes without one.
     """
+    check_bars(kappa_bar, alpha_bar)
+    special_codes = {code: kind for code, kind in (special_codes or {}).items() if code in matrix.codes}
     if not 0 < confidence < 1:
         raise OpenCodeError(f"confidence must be between 0 and 1, got {confidence}")
     if n_resamples < 0:
@@ -276,6 +351,7 @@ def measure_agreement(
         low, high = _interval(None if samples is None else samples[name], confidence, point[name].shape)
         per_stat[name] = (point[name], low, high)
     k_sum = features.parts(point_totals)["k_sum"]
+    disputed = disputed_verbatims_per_code(matrix)
     analytic = analytic_errors(matrix, names, confidence)
     per_code = []
     for c, code in enumerate(matrix.codes):
@@ -285,7 +361,8 @@ def measure_agreement(
             extra = tuple(arr[c] for arr in analytic[name]) if name in analytic else (np.nan,) * 3
             stats[name] = _estimate(name, value, low, high, reasons[c], _interval_note(samples is not None, value, low),
                                     extra)
-        per_code.append(CodeAgreement(code, str(labels.get(code, code)), n_pairable, int(k_sum[c]), stats))
+        per_code.append(CodeAgreement(code, str(labels.get(code, code)), n_pairable, int(k_sum[c]), stats,
+                                      int(disputed[c])))
 
     frame = {}
     point_alphas = sets.alphas()
@@ -301,7 +378,8 @@ def measure_agreement(
         frame[f"alpha_{kind}"] = _estimate(
             f"alpha_{kind}", value, low, high, "undefined: every coder gave every verbatim the same set of codes", note
         )
-    defined = ~np.isnan(point[kappa_name])
+    counted = np.array([include_special or code not in special_codes for code in matrix.codes], dtype=bool)
+    defined = ~np.isnan(point[kappa_name]) & counted
     n_defined = int(defined.sum())
     mean_low = mean_high = np.nan
     if samples is not None and n_defined:
@@ -310,10 +388,13 @@ def measure_agreement(
             mean_samples = np.nanmean(samples[kappa_name][:, defined], axis=1)
         mean_low, mean_high = percentile_interval(mean_samples, confidence)
     mean_value = point[kappa_name][defined].mean() if n_defined else np.nan
-    left_out = len(matrix.codes) - n_defined
-    mean_note = f"{STATISTIC_LABELS[kappa_name]} averaged over {n_defined} of {len(matrix.codes)} codes" + (
-        f" ({left_out} undefined, left out)" if left_out else ""
-    )
+    n_special = int((~counted).sum())
+    left_out = len(matrix.codes) - n_special - n_defined
+    specials = ", ".join(f"{code} {labels.get(code, code)}" for code in matrix.codes if code in special_codes
+                         and not include_special)
+    mean_note = f"{STATISTIC_LABELS[kappa_name]} averaged over {n_defined} of {len(matrix.codes)} codes" + "".join(
+        f" ({part})" for part in ((f"special codes {specials} left out" if n_special else ""),
+                                  (f"{left_out} undefined, left out" if left_out else "")) if part)
     frame["mean_kappa"] = _estimate(
         "mean_kappa", mean_value, mean_low, mean_high, "undefined: kappa is undefined for every code", mean_note
     )
@@ -325,7 +406,9 @@ def measure_agreement(
                      "towards the code shares of the kappa-type statistics and AC1, as in Gwet 2014)")
     if n_pairable < SMALL_BASE:
         notes.append(f"small base: only {n_pairable} verbatims coded by two or more coders; read with care")
-    return AgreementResult(
+    confused = tuple(confused_pairs(matrix, top))
+    swap_candidates = confused_pairs(matrix, max(top, ADVICE_PAIRS * 4))
+    result = AgreementResult(
         coders=matrix.coders,
         n_units=len(matrix.units),
         n_pairable=n_pairable,
@@ -337,10 +420,15 @@ def measure_agreement(
         n_distinct_sets=n_sets,
         pair_tables=pair_tables(matrix),
         disputed_units=tuple(disputed_units(matrix, top)),
-        confused_pairs=tuple(confused_pairs(matrix, top)),
+        confused_pairs=confused,
         code_labels=labels,
         n_resamples=n_resamples,
         confidence=confidence,
         random_state=random_state,
         warnings=tuple(notes),
+        special_codes=special_codes,
+        include_special=include_special,
+        swapped=_swapped_pairs(matrix, swap_candidates, labels),
     )
+    return _judged(result, kappa_bar, alpha_bar)
+

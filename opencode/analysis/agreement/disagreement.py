@@ -65,6 +65,13 @@ def disputed_codes_per_unit(matrix: CodingMatrix) -> np.ndarray:
     return ((k > 0) & (k < m)).sum(axis=1)
 
 
+def disputed_verbatims_per_code(matrix: CodingMatrix) -> np.ndarray:
+    """Per code, how many units its coders split on (some gave the code, others who coded the unit did not)."""
+    k = matrix.present.sum(axis=1)
+    m = np.where(matrix.pairable, matrix.coders_per_unit, 0)[:, None]
+    return ((k > 0) & (k < m)).sum(axis=0)
+
+
 def disputed_units(matrix: CodingMatrix, top: int = 10) -> list[DisputedUnit]:
     """The `top` units with most disputed codes (ties in unit order), listing each coder's codes."""
     disputed = disputed_codes_per_unit(matrix)
@@ -101,3 +108,17 @@ def confused_pairs(matrix: CodingMatrix, top: int = 10) -> list[ConfusedPair]:
     values = counts[a, b]
     order = np.argsort(-values, kind="stable")[:top]
     return [ConfusedPair(matrix.codes[a[o]], matrix.codes[b[o]], int(values[o])) for o in order if values[o] > 0]
+
+
+def swapped_units(matrix: CodingMatrix, code_a, code_b) -> tuple:
+    """The units on which some coder pair swapped two codes (one has `code_a` without `code_b`, the other
+    `code_b` without `code_a`), in unit order: the verbatims to recode once the definitions are tightened."""
+    a, b = matrix.codes.index(code_a), matrix.codes.index(code_b)
+    hit = np.zeros(len(matrix.units), dtype=bool)
+    for i, j in _pair_indices(matrix):
+        both = matrix.coded[:, i] & matrix.coded[:, j]
+        x, y = matrix.present[:, i, :], matrix.present[:, j, :]
+        one_way = x[:, a] & ~x[:, b] & y[:, b] & ~y[:, a]
+        other_way = x[:, b] & ~x[:, a] & y[:, a] & ~y[:, b]
+        hit |= both & (one_way | other_way)
+    return tuple(matrix.units[u] for u in np.flatnonzero(hit))

@@ -69,6 +69,39 @@ def _summary_lines(result: AgreementResult) -> list[str]:
     return lines + [f"Note: {note}" for note in result.warnings]
 
 
+def _standing_state(standing) -> str:
+    """A code's state in the ranking, in words."""
+    if standing.rank is None:
+        return standing.why or UNDEFINED
+    state = "under the bar" if standing.flagged else "clears the bars"
+    return state + ("" if standing.in_headline else "; special code, not in the headline")
+
+
+def _ranking_rows(result: AgreementResult) -> list[list[str]]:
+    kappa = result.kappa_name
+    return [["" if s.rank is None else str(s.rank), str(s.code), s.label, f"{s.n_mentions:,}",
+             _with_interval(kappa, s.kappa), "" if s.alpha is None else _with_interval("krippendorff_alpha", s.alpha),
+             _standing_state(s), s.why if s.flagged else ""] for s in result.standings]
+
+
+def _ranking_headers(result: AgreementResult) -> list[str]:
+    return ["rank", "code", "label", "mentions", STATISTIC_LABELS[result.kappa_name], "Krippendorff's alpha",
+            "judged", "why"]
+
+
+def _ranking_title(result: AgreementResult) -> str:
+    basis = "the low end of each interval" if result.n_resamples else "the values themselves, without intervals"
+    return (f"Codes from least to most reliable (judged on {basis}; bars: kappa {result.kappa_bar:.3f}, "
+            f"alpha {result.alpha_bar:.3f})")
+
+
+def _headline_lines(result: AgreementResult, special_hint: str = "") -> list[str]:
+    lines = list(result.headline.lines) if result.headline else []
+    if special_hint and result.special_codes:
+        lines.append(special_hint)
+    return lines
+
+
 def _frame_rows(result: AgreementResult) -> list[list[str]]:
     return [[STATISTIC_LABELS[name], _with_interval(name, est), est.words] for name, est in result.frame.items()]
 
@@ -79,8 +112,15 @@ def _code_rows(result: AgreementResult, statistics: Sequence[str], analytic_inte
         [str(c.code), c.label, f"{c.n_mentions:,}"]
         + [_with_interval(name, c.statistics[name], analytic_interval) for name in statistics]
         + [c.statistics[kappa].words]
-        for c in result.per_code
+        for c in _ranked_codes(result)
     ]
+
+
+def _ranked_codes(result: AgreementResult) -> list:
+    """The per-code results in ranking order (least reliable first), or frame order for an unranked result."""
+    by_code = {c.code: c for c in result.per_code}
+    ranked = [by_code[s.code] for s in result.standings if s.code in by_code]
+    return ranked if len(ranked) == len(result.per_code) else list(result.per_code)
 
 
 def _pair_kappa(table, kappa: float) -> str:
@@ -125,12 +165,19 @@ def _confused_rows(result: AgreementResult) -> list[list[str]]:
     ]
 
 
-def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | None = None) -> str:
-    """The whole result as plain-text tables for the terminal (choose per-code statistics with `statistics`)."""
+def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | None = None,
+                          special_hint: str = "") -> str:
+    """The whole result as plain-text tables for the terminal (choose per-code statistics with `statistics`):
+    the headline and what to do first, then the ranking, then the detail. `special_hint` is a line saying how
+    to put the special codes back in the headline (the command names its option)."""
     stats = tuple(statistics or result.statistic_names)
-    parts = ["\n".join(_summary_lines(result)), "Across the code frame",
+    parts = ["\n".join(_summary_lines(result)), "\n".join(_headline_lines(result, special_hint))]
+    if result.advice:
+        parts += ["What to do\n" + "\n".join(f"- {line}" for line in result.advice)]
+    parts += [_ranking_title(result), format_table(_ranking_headers(result), _ranking_rows(result)),
+              "Across the code frame",
              format_table(["statistic", "value [interval]", "reading"], _frame_rows(result)),
-             "Per code (present / absent)",
+             "Per code (present / absent), least reliable first",
              format_table(["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats]
                           + [f"reading of {STATISTIC_LABELS[_kappa_name(result)]}"], _code_rows(result, stats))]
     for title, headers, rows in _pair_blocks(result):
@@ -173,6 +220,14 @@ def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
             words = _pair_kappa(t, k)
             rows.append(base + ["Cohen's kappa", "" if k != k else repr(float(k)), "", "",
                                 words if words.startswith(UNDEFINED) else ""])
+    if result.headline is not None:
+        rows.append(["headline", "", "", "", coders, result.headline.verdict, "", "", "", result.headline.text])
+    for s in result.standings:
+        rows.append(["ranking", str(s.code), s.label, "", coders, "rank", "" if s.rank is None else str(s.rank),
+                     "", "", _standing_state(s) + (f": {s.why}" if s.flagged else "")])
+    for q in result.swapped:
+        rows.append(["advice", str(q.code_a), q.label_a, str(q.code_b), coders, "verbatims to recode",
+                     str(q.n_verbatims), "", "", q.advice + ": " + " ".join(map(str, q.verbatims))])
     for u in result.disputed_units:
         sets = "; ".join(f"{coder}: {_codes(u.sets[coder])}" for coder in result.coders)
         rows.append(["disputed_unit", "", "", "", coders, f"verbatim {u.unit}", str(u.n_disputed_codes), "", "", sets])
@@ -217,9 +272,15 @@ def format_agreement_html(result: AgreementResult | ScaleAgreementResult, title:
     stats = result.statistic_names
     out = [f'<section class="oc-agreement"><h2>{html.escape(title)}</h2>']
     out.append('<ul class="oc-summary">' + "".join(f"<li>{html.escape(x)}</li>" for x in _summary_lines(result)) + "</ul>")
+    out.append("".join(f'<p class="oc-headline">{html.escape(x)}</p>' for x in _headline_lines(result)))
+    if result.advice:
+        out.append('<h3>What to do</h3><ul class="oc-advice">'
+                   + "".join(f"<li>{html.escape(x)}</li>" for x in result.advice) + "</ul>")
+    out.append(f"<h3>{html.escape(_ranking_title(result))}</h3>")
+    out.append(_html_table("oc-agreement-ranking", _ranking_headers(result), _ranking_rows(result), range(3, 6)))
     out.append("<h3>Across the code frame</h3>")
     out.append(_html_table("oc-agreement-frame", ["statistic", "value [interval]", "reading"], _frame_rows(result), range(1, 2)))
-    out.append("<h3>Per code (present / absent)</h3>")
+    out.append("<h3>Per code (present / absent), least reliable first</h3>")
     code_headers = ["code", "label", "mentions"] + [STATISTIC_LABELS[s] for s in stats] + [f"reading of {STATISTIC_LABELS[kappa]}"]
     out.append(_html_table("oc-agreement-codes", code_headers, _code_rows(result, stats, True),
                            range(2, 3 + len(stats))))

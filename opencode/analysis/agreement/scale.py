@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from opencode.analysis.agreement.bands import krippendorff_band, landis_koch_band
+from opencode.analysis.agreement.bands import cited_krippendorff, cited_landis_koch
 from opencode.analysis.agreement.bootstrap import percentile_interval
 from opencode.analysis.agreement.stats import _ratio
 from opencode.analysis.agreement.weighted import (
@@ -197,9 +197,9 @@ def _words(name: str, value: float | None, no_interval: bool) -> str:
         return "undefined: every coder used one scale code only, or no verbatim was rated by two coders"
     band = ""
     if name in _KAPPA_LIKE:
-        band = landis_koch_band(value)
+        band = cited_landis_koch(value)
     elif name == "krippendorff_alpha":
-        band = krippendorff_band(value)
+        band = cited_krippendorff(value)
     parts = [band] if band else []
     if no_interval:
         parts.append("no interval: undefined in most resamples")

@@ -17,6 +17,8 @@ from opencode.analysis.agreement.scale import (
     ScaleRatings,
     measure_scale_agreement,
 )
+from opencode.analysis.agreement.verdict import ALPHA_BAR, KAPPA_BAR, LEFT_OUT_SPECIALS
+from opencode.coding.frames import load_frame
 from opencode.coding.reliability import code_labels, coder_sets
 from opencode.errors import OpenCodeError
 from opencode.study import assignments_store as astore
@@ -57,6 +59,12 @@ def scale_ratings(study: Study, question: str, coders: str | Sequence[str], samp
     return ScaleRatings.from_sets(by_key, scale, {c: labels[c] for c in scale})
 
 
+def special_codes(study: Study, question: str) -> dict[int, str]:
+    """The frame's codes left out of the agreement headline by default (non-answer and don't know), by number."""
+    return {c.number: c.special for c in load_frame(study, question).codes
+            if not c.is_net and c.special in LEFT_OUT_SPECIALS}
+
+
 def remember_level(study: Study, question: str, level: str, weights: str | None = None,
                    scale: Sequence[int] | None = None, actor: str = "oecode") -> None:
     """Store the question's level of measurement (and scale weights and codes) for later agreement runs."""
@@ -76,9 +84,15 @@ def agreement_level(study: Study, question: str) -> dict:
 def question_agreement(study: Study, question: str, coders: str | Sequence[str], sample: str | None = None, *,
                        n_resamples: int = 1000, random_state: int | None = 0, confidence: float = 0.95,
                        top: int = 10, level: str | None = None, weights: str | None = None,
-                       scale: Sequence[int] | None = None) -> AgreementResult | ScaleAgreementResult:
+                       scale: Sequence[int] | None = None, include_special: bool = False,
+                       kappa_bar: float = KAPPA_BAR, alpha_bar: float = ALPHA_BAR,
+                       ) -> AgreementResult | ScaleAgreementResult:
     """Agreement between coders on a question: per code and across the frame (nominal), or on the code scale at
-    an ordinal, interval or ratio level. Level, weights and scale default to the question's stored ones."""
+    an ordinal, interval or ratio level. Level, weights and scale default to the question's stored ones.
+
+    Nominal results rank the codes least to most reliable, flag those whose interval reaches under `kappa_bar`
+    or `alpha_bar`, and leave the frame's non-answer and don't-know codes out of the headline mean unless
+    `include_special`."""
     stored = agreement_level(study, question)
     level = level or stored["level"]
     if level not in LEVELS:
@@ -89,7 +103,9 @@ def question_agreement(study: Study, question: str, coders: str | Sequence[str],
                                 "(--level ordinal or interval)")
         matrix = coding_matrix(study, question, coders, sample)
         return measure_agreement(matrix, code_labels=code_labels(study, question), n_resamples=n_resamples,
-                                 confidence=confidence, random_state=random_state, top=top)
+                                 confidence=confidence, random_state=random_state, top=top,
+                                 special_codes=special_codes(study, question), include_special=include_special,
+                                 kappa_bar=kappa_bar, alpha_bar=alpha_bar)
     same_level = stored["level"] == level
     weights = weights or (stored["weights"] if same_level else None) or DEFAULT_WEIGHTS[level]
     scale = scale or (stored["scale"] if same_level else None)
