@@ -194,6 +194,8 @@ def run_lexicon(args: argparse.Namespace) -> int:
         if action == "show":
             print(f"lexicon of {who} ({st.lexicon_origin(study, q)}), version {st.get_lexicon(study, q).version_hash()}")
             print(st.get_lexicon(study, q).to_text(), end="")
+            for note in st.absent_phrase_notes(study, q, progress_bar("analysing verbatims")):
+                _warn(note)
             return 0
         if action == "export":
             path = st.export_lexicon(study, q, _one(args, "file"))

@@ -432,6 +432,17 @@ def missing_phrases(tm: TermMatrix, analyzer: Analyzer, phrases: Iterable[str] |
     return [p for p, pid in wanted.items() if vocabulary.key_names[pid] not in present]
 
 
+def absent_phrase_notes(study: Study, question: str | None, progress: Progress = None) -> list[str]:
+    """One sentence per lexicon phrase that occurs in none of the question's verbatims (none for the study
+    default, which has no verbatims of its own). Shown where the lexicon is looked at or edited, not by every
+    text command."""
+    if question is None:
+        return []
+    tm, _ = term_matrix(study, question, progress=progress)
+    return [f"phrase {phrase!r} never occurs in the verbatims of question {question} (kept in the lexicon)"
+            for phrase in tm.absent_phrases]
+
+
 def stop_word_effect(study: Study, question: str, before: Lexicon, progress: Progress = None) -> list[Any]:
     """Respondent ids of verbatims that had terms under `before` but none under the current lexicon."""
     old, _ = term_matrix(study, question, analyzer=Analyzer.from_lexicon(before), progress=progress)
