@@ -133,6 +133,7 @@ def reference(argv: list[str]) -> float:
 
 
 def main() -> int:
+    sys.stdout.reconfigure(line_buffering=True)  # each line as it is measured, also into a pipe
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rows", type=int, default=100_000)
     parser.add_argument("--keep", metavar="DIR", help="build the study in DIR and keep it (default: a temp folder)")
