@@ -13,10 +13,9 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-import nltk
+from importlib.metadata import version
 import numpy as np
 import scipy.sparse as sp
-from sklearn.feature_extraction.text import TfidfTransformer
 
 from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer, Progress
@@ -25,6 +24,11 @@ from opencode.text.tokenize import term_label
 FORMAT_VERSION = 3  # 2: placeholders are named #number, #url, #email; 3: absent phrases apart from warnings
 WEIGHTINGS = ("count", "tfidf")
 _SHOW_IDS = 10
+
+
+def _nltk_version() -> str:
+    """The installed nltk's version (its stemmers shape the terms), read without importing nltk."""
+    return version("nltk")
 
 
 def _plain(value: Any) -> Any:
@@ -101,6 +105,7 @@ class TermMatrix:
         if self.weighting == "count":
             return self.counts
         if getattr(self, "_tfidf", None) is None:
+            from sklearn.feature_extraction.text import TfidfTransformer  # only here: words and kwic never need it
             self._tfidf = TfidfTransformer().fit_transform(self.counts).tocsr()
         return self._tfidf
 
@@ -296,7 +301,7 @@ def cache_key(
     """A hash of everything a TermMatrix depends on: analyzer state, texts, ids, mask and options."""
     digest = hashlib.sha256()
     settings = {
-        "format": FORMAT_VERSION, "nltk": nltk.__version__, "analyzer": analyzer.to_dict(),
+        "format": FORMAT_VERSION, "nltk": _nltk_version(), "analyzer": analyzer.to_dict(),
         "options": matrix_options,
         "doc_ids": None if doc_ids is None else [_plain(d) for d in doc_ids],
     }
