@@ -41,7 +41,7 @@ import pandas as pd
 COMMANDS: list[tuple[str, float, list[str]]] = [
     ("words", 15.0, ["words", "{study}", "--question", "review", "--top", "20"]),
     ("words (again)", 15.0, ["words", "{study}", "--question", "review", "--top", "20"]),
-    ("themes --k 10", 15.0, ["themes", "{study}", "fit", "--question", "review", "--k", "10"]),
+    ("themes --k 10", 15.0, ["themes", "fit", "{study}", "--question", "review", "--k", "10"]),
     ("drivers", 30.0, ["drivers", "{study}", "--question", "review", "--outcome", "rating", "--split", "top2",
                        "--top", "10"]),
     ("kwic", 15.0, ["kwic", "{study}", "chocolate", "--question", "review", "--limit", "5"]),
@@ -55,8 +55,8 @@ SETUP: list[tuple[str, list[str]]] = [
     ("new", ["new", "{study}", "--from", "{csv}", "--id", "resp_id", "--question", "review",
              "--kind", "rating=single", "--kind", "region=single", "--role", "rating=outcome",
              "--role", "region=banner", "--labels", "{labels}"]),
-    ("frame import", ["frame", "{study}", "import", "--question", "review", "--file", "{frame}"]),
-    ("frame import-codes", ["frame", "{study}", "import-codes", "--question", "review", "--from", "{codes}",
+    ("frame import", ["frame", "import", "{study}", "--question", "review", "--file", "{frame}"]),
+    ("frame import-codes", ["frame", "import-codes", "{study}", "--question", "review", "--from", "{codes}",
                             "--id", "resp_id", "--column", "review_codes", "--coder", "final",
                             "--blank-means", "no-code"]),
 ]

@@ -179,7 +179,7 @@ def test_text_commands_are_quiet_about_absent_phrases_the_lexicon_verb_names_onc
         code, out, err = run(capsys, *argv)
         assert code == 0
         assert "phrase" not in err, err
-    code, out, err = run(capsys, "lexicon", study, "show", "--question", "why")
+    code, out, err = run(capsys, "lexicon", "show", study, "--question", "why")
     assert code == 0
     for phrase in absent:
         assert err.count(f"phrase {phrase!r} never occurs in the verbatims of question why") == 1

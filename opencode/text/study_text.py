@@ -537,9 +537,13 @@ def _code_of(variable: Variable, wanted: str) -> float:
 
 
 def question_kwic(study: Study, question: str, term: str, *, width: int = 40, limit: int | None = None,
-                  show: Sequence[str] = ()) -> tuple[list[KwicLine], dict[str, list[str]]]:
-    """Keyword in context for a question, with chosen closed-ended variables' labels for each line."""
-    tm, frame = term_matrix(study, question)
+                  show: Sequence[str] = (), matrix: tuple[TermMatrix, pd.DataFrame] | None = None,
+                  ) -> tuple[list[KwicLine], dict[str, list[str]]]:
+    """Keyword in context for a question, with chosen closed-ended variables' labels for each line.
+
+    matrix: the question's (tm, frame) from term_matrix when the caller has it already (saves reading it twice).
+    """
+    tm, frame = matrix if matrix is not None else term_matrix(study, question)
     lines = kwic(tm, frame["text"].tolist(), term, width=width, limit=limit)
     row_of = {key: i for i, key in enumerate(frame["respondent"])}
     columns = {}
