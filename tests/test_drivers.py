@@ -261,3 +261,36 @@ def test_l2_stability_counts_the_largest_coefficients():
     ranker = DriverRanker("l2", Cs=[0.1], n_subsamples=5, stability_top=8).fit(X, y, terms=terms)
     assert ranker.stability_.sum() == pytest.approx(8.0)
     assert ranker.stability_[:8].mean() > ranker.stability_[8:].mean()
+
+
+def test_at_scale_c_is_searched_on_a_subsample_and_the_final_fit_uses_every_row():
+    # Reference: scikit-learn LogisticRegression on all rows at the chosen C. The C search, the cross-validated
+    # figures and the stability half-samples use a stratified subsample of search_rows verbatims only.
+    X, y, terms = planted(3, n_docs=1200)
+    ranker = DriverRanker("l2", Cs=5, n_subsamples=4, search_rows=400, tol=1e-8).fit(X, y, terms=terms)
+    assert ranker.search_rows_used_ == pytest.approx(400, abs=2)
+    assert ranker.cv_probabilities_.shape == (ranker.search_rows_used_,)  # out-of-fold over the subsample
+    assert sum(ranker.class_counts_) == 1200  # the counts shown are every verbatim's
+    reference = LogisticRegression(C=ranker.C_, solver="newton-cg", tol=1e-10, max_iter=1000).fit(X, y)
+    np.testing.assert_allclose(ranker.coef_, reference.coef_.ravel(), atol=1e-4)
+    on_subsample_only = LogisticRegression(C=ranker.C_, tol=1e-10, max_iter=1000).fit(
+        X[ranker._search_rows(y)], y[ranker._search_rows(y)])
+    assert np.abs(ranker.coef_ - on_subsample_only.coef_.ravel()).max() > 1e-2
+    assert any("stratified random" in w and "1,200" in w for w in ranker.warnings_)
+    assert ranker.ranking_["docs_1"].sum() + ranker.ranking_["docs_0"].sum() == (X > 0).sum()  # 2x2 on all rows
+    whole = DriverRanker("l2", Cs=5, n_subsamples=0, search_rows=None).fit(X, y, terms=terms)
+    assert whole.search_rows_used_ == 1200 and not any("stratified random" in w for w in whole.warnings_)
+
+
+def test_fits_stopped_by_the_iteration_limit_give_one_plain_note_not_a_raw_warning():
+    import warnings as std_warnings
+    X, y, terms = planted(4)
+    with std_warnings.catch_warnings(record=True) as caught:
+        std_warnings.simplefilter("always")
+        ranker = DriverRanker("l2", Cs=3, n_subsamples=2, max_iter=1, tol=1e-12).fit(X, y, terms=terms)
+    assert not [w for w in caught if "Convergence" in w.category.__name__]
+    stalled = [w for w in ranker.warnings_ if "iteration limit" in w]
+    assert len(stalled) == 1 and ranker.n_stalled_fits_ > 0
+    assert f"{ranker.n_stalled_fits_} of the model fits stopped at the iteration limit (1)" in stalled[0]
+    calm = DriverRanker("l2", Cs=3, n_subsamples=2).fit(X, y, terms=terms)
+    assert calm.n_stalled_fits_ == 0 and not any("iteration limit" in w for w in calm.warnings_)

@@ -17,6 +17,7 @@ from opencode.study.survey_data import add_variable, analysis_values, get_questi
 from opencode.text import study_text as st
 from opencode.text.analyzer import Analyzer, Vocabulary
 from opencode.text.lexicon import Lexicon
+from opencode.text.matrix import build_matrix
 
 
 @pytest.fixture(scope="module")
@@ -233,6 +234,22 @@ def test_new_wave_invalidates(study, tmp_path, stream_calls):
     assert "wombat" in after.terms and frame["respondent"].iloc[-1] == "NEW001"
 
 
+def test_other_limits_read_the_one_cached_matrix(study, stream_calls):
+    # themes (min_df 2) and drivers (min_df 5) after words: no second analysis, one cache entry, and the same
+    # matrix a build with those limits gives (build_matrix with min_df is checked against CountVectorizer).
+    plain, frame = st.term_matrix(study, "why")
+    for limits in ({"min_df": 2}, {"min_df": 5}, {"min_df": 2, "max_df": 0.5, "weighting": "tfidf"}):
+        calls = len(stream_calls)
+        served, served_frame = st.term_matrix(study, "why", **limits)
+        assert len(stream_calls) == calls
+        built = build_matrix(frame["text"].tolist(), st.analyzer_for(study, "why"), doc_ids=frame["respondent"],
+                             exclude=frame["nonanswer"].to_numpy(dtype=bool), **limits)
+        assert served.terms == built.terms and (served.counts != built.counts).nnz == 0
+        assert served.empty_doc_ids == built.empty_doc_ids
+        assert served_frame["matrix_row"].tolist() == frame["matrix_row"].tolist()
+    assert len(cached_keys(study, get_question(study, "why").id)) == 1
+
+
 def test_options_change_key_and_cache_stays_bounded(study):
     plain, _ = st.term_matrix(study, "why")
     frequent, _ = st.term_matrix(study, "why", min_df=5)
@@ -305,7 +322,8 @@ def test_phrase_that_never_occurs_is_a_warning(study):
     tm, _ = st.term_matrix(study, "why")
     assert st.missing_phrases(tm, st.analyzer_for(study, "why")) == ["purple elephant"]
     assert st.missing_phrases(tm, st.analyzer_for(study, "why"), ["Opening Hours"]) == []
-    assert any("purple elephant" in w for w in tm.warnings)
+    assert tm.absent_phrases == ["purple elephant"]
+    assert not any("purple elephant" in w for w in tm.warnings)  # shown by the lexicon verb, not every command
 
 
 def test_stop_words_that_empty_verbatims_are_reported_by_respondent(study):

@@ -167,3 +167,19 @@ def test_words_all_nonanswers_and_empty_corpus(tmp_path, capsys):
     capsys.readouterr()
     code, out, err = run(capsys, "words", str(tmp_path / "s.study"), "--question", "why")
     assert code == 1 and "all 2 verbatims of question 'why' are non-answers" in err
+
+
+def test_text_commands_are_quiet_about_absent_phrases_the_lexicon_verb_names_once(demo_folder, capsys):
+    # The demo's lexicon has phrases that never occur in question why (it is shared with question improve).
+    study = str(demo_folder / "wrenfield.study")
+    with Study.open(study) as opened:
+        absent = st.term_matrix(opened, "why")[0].absent_phrases
+    assert absent, "the demo lexicon should hold a phrase question why never uses"
+    for argv in (["words", study, "--question", "why"], ["kwic", study, "library", "--question", "why"]):
+        code, out, err = run(capsys, *argv)
+        assert code == 0
+        assert "phrase" not in err, err
+    code, out, err = run(capsys, "lexicon", "show", study, "--question", "why")
+    assert code == 0
+    for phrase in absent:
+        assert err.count(f"phrase {phrase!r} never occurs in the verbatims of question why") == 1

@@ -7,7 +7,7 @@ from sklearn.feature_extraction.text import CountVectorizer, TfidfTransformer
 
 from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer
-from opencode.text.matrix import TermMatrix, build_matrix, cache_key
+from opencode.text.matrix import TermMatrix, build_matrix, cache_key, restrict_terms
 
 
 @pytest.fixture(scope="module")
@@ -63,10 +63,29 @@ def test_bad_corpora(texts, exclude, message):
         build_matrix(texts, Analyzer(), exclude=exclude)
 
 
-def test_unmatched_phrase_is_a_warning_not_an_error():
+def test_unmatched_phrase_is_listed_not_an_error_nor_a_warning():
     tm = build_matrix(["opening hours", "parking"], Analyzer(phrases=["opening hours", "book club"]))
-    assert any("book club" in w for w in tm.warnings)
-    assert not any("opening hours" in w for w in tm.warnings)
+    assert tm.absent_phrases == ["book club"]
+    assert not any("book club" in w for w in tm.warnings)  # the lexicon verb shows it, not every text command
+    assert TermMatrix.from_bytes(tm.to_bytes()).absent_phrases == ["book club"]
+
+
+@pytest.mark.parametrize("limits", [{"min_df": 5}, {"min_df": 2, "max_df": 0.3}, {"min_df": 0.02},
+                                    {"max_df": 40, "weighting": "tfidf"}])
+def test_restricting_the_whole_matrix_equals_building_with_limits(reviews, limits):
+    # What term_matrix serves from one cached matrix must be what a build with the limits gives; the limits
+    # themselves are checked against scikit-learn's CountVectorizer in test_document_frequency_limits.
+    analyzer = Analyzer(phrases=["dog food", "nowhere phrase"])
+    exclude = [i % 11 == 0 for i in range(len(reviews))]
+    whole = build_matrix(reviews, analyzer, exclude=exclude)
+    built = build_matrix(reviews, analyzer, exclude=exclude, **limits)
+    served = restrict_terms(whole, **limits)
+    assert served.terms == built.terms and served.labels == built.labels and served.surfaces == built.surfaces
+    assert (served.counts != built.counts).nnz == 0 and served.counts.has_sorted_indices
+    assert served.empty_doc_ids == built.empty_doc_ids and served.warnings == built.warnings
+    assert served.doc_ids == built.doc_ids and np.array_equal(served.rows_source, built.rows_source)
+    assert served.weighting == built.weighting and np.allclose(served.X.toarray(), built.X.toarray())
+    assert len(built.terms) < len(whole.terms)
 
 
 def test_document_frequency_limits(reviews):

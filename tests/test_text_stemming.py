@@ -87,3 +87,10 @@ def test_other_stop_lists_ship(code, words):
     # common practice (no published source): the commonest function words of each language.
     assert words <= bundled_stop_words(code)
     assert len(bundled_stop_words(code)) > 100
+
+
+def test_snowball_languages_written_out_are_nltks():
+    # Reference: nltk's own list (SnowballStemmer.languages, "porter" being an English variant, not a language).
+    from nltk.stem import SnowballStemmer
+    from opencode.text.stemming import SNOWBALL_LANGUAGES
+    assert set(SNOWBALL_LANGUAGES) == set(SnowballStemmer.languages) - {"porter"}

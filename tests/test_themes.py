@@ -168,3 +168,16 @@ def test_seeds_need_term_labels(corpus):
         ThemeFinder(n_themes=5, seed_terms=[["w001"]]).fit(corpus.counts)
     with pytest.raises(OpenCodeError, match="4 given for a matrix with 300 columns"):
         ThemeFinder(n_themes=5).fit(corpus.counts, terms=["a", "b", "c", "d"])
+
+
+def test_a_model_stopped_by_its_iteration_limit_gives_one_plain_note_not_a_raw_warning(corpus):
+    import warnings
+    from opencode.analysis.themes.summary import find_themes
+    counts, terms = corpus.counts, list(corpus.terms)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        run = find_themes(counts, terms, k=5, max_iter=1, tol=1e-12)
+    assert not [w for w in caught if "Convergence" in w.category.__name__]
+    assert sum("iteration limit (1)" in note for note in run.notes) == 1
+    calm = find_themes(counts, terms, k=5)
+    assert not any("iteration limit" in note for note in calm.notes)

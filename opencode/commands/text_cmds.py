@@ -188,9 +188,9 @@ def run_kwic(args: argparse.Namespace) -> int:
     if args.width < 1 or args.limit < 1:
         raise OpenCodeError("--width and --limit must be 1 or more")
     with Study.open(args.study) as study:
-        _matrix(study, args.question)  # builds (with a progress bar) or loads the cached matrix
+        matrix = _matrix(study, args.question)  # builds (with a progress bar) or loads the cached matrix
         lines, columns = st.question_kwic(study, args.question, args.term, width=args.width, limit=args.limit,
-                                          show=args.show)
+                                          show=args.show, matrix=matrix)
         print(f"{args.term!r} in question {args.question}: {len(lines)} occurrence(s)"
               + (f" (first {args.limit})" if len(lines) >= args.limit else ""))
         if lines:
@@ -273,6 +273,8 @@ def run_lexicon(args: argparse.Namespace) -> int:
         if action == "show":
             print(f"lexicon of {who} ({st.lexicon_origin(study, q)}), version {st.get_lexicon(study, q).version_hash()}")
             print(st.get_lexicon(study, q).to_text(), end="")
+            for note in st.absent_phrase_notes(study, q, progress_bar("analysing verbatims")):
+                _warn(note)
             return 0
         if action == "export":
             path = st.export_lexicon(study, q, _one(args, "file"))

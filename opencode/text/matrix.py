@@ -13,18 +13,22 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-import nltk
+from importlib.metadata import version
 import numpy as np
 import scipy.sparse as sp
-from sklearn.feature_extraction.text import TfidfTransformer
 
 from opencode.errors import OpenCodeError
 from opencode.text.analyzer import Analyzer, Progress
 from opencode.text.tokenize import term_label
 
-FORMAT_VERSION = 2  # 2: placeholders are named #number, #url, #email and shown as such
+FORMAT_VERSION = 3  # 2: placeholders are named #number, #url, #email; 3: absent phrases apart from warnings
 WEIGHTINGS = ("count", "tfidf")
 _SHOW_IDS = 10
+
+
+def _nltk_version() -> str:
+    """The installed nltk's version (its stemmers shape the terms), read without importing nltk."""
+    return version("nltk")
 
 
 def _plain(value: Any) -> Any:
@@ -59,6 +63,13 @@ def _df_limit(value: float | int, n_docs: int, name: str) -> float:
     return float(value)
 
 
+def check_limits(min_df: float | int, max_df: float | int, weighting: str, n_docs: int) -> tuple[float, float]:
+    """The document-frequency limits as counts over n_docs analysed verbatims; a clear error for bad options."""
+    if weighting not in WEIGHTINGS:
+        raise OpenCodeError(f"weighting {weighting!r}: choose one of {', '.join(WEIGHTINGS)}")
+    return _df_limit(min_df, n_docs, "min_df"), _df_limit(max_df, n_docs, "max_df")
+
+
 @dataclass
 class TermMatrix:
     """The analysed corpus: counts (docs x terms), vocabulary and what was left out."""
@@ -74,6 +85,9 @@ class TermMatrix:
     empty_doc_ids: list[Any] = field(default_factory=list)
     weighting: str = "count"
     warnings: list[str] = field(default_factory=list)
+    #: Lexicon phrases found in none of the verbatims analysed. Kept apart from `warnings`, which every text
+    #: command prints: the lexicon verb shows these once, where phrases are edited or looked at.
+    absent_phrases: list[str] = field(default_factory=list)
 
     @property
     def df(self) -> np.ndarray:
@@ -91,6 +105,7 @@ class TermMatrix:
         if self.weighting == "count":
             return self.counts
         if getattr(self, "_tfidf", None) is None:
+            from sklearn.feature_extraction.text import TfidfTransformer  # only here: words and kwic never need it
             self._tfidf = TfidfTransformer().fit_transform(self.counts).tocsr()
         return self._tfidf
 
@@ -111,7 +126,8 @@ class TermMatrix:
             "format": FORMAT_VERSION, "terms": self.terms, "labels": self.labels,
             "surfaces": self.surfaces, "doc_ids": self.doc_ids, "n_input": self.n_input,
             "excluded_doc_ids": self.excluded_doc_ids, "empty_doc_ids": self.empty_doc_ids,
-            "weighting": self.weighting, "warnings": self.warnings, "shape": list(self.counts.shape),
+            "weighting": self.weighting, "warnings": self.warnings, "absent_phrases": self.absent_phrases,
+            "shape": list(self.counts.shape),
         }
         buffer = io.BytesIO()
         np.savez(
@@ -142,6 +158,7 @@ class TermMatrix:
             doc_ids=header["doc_ids"], rows_source=rows_source, n_input=header["n_input"],
             excluded_doc_ids=header["excluded_doc_ids"], empty_doc_ids=header["empty_doc_ids"],
             weighting=header["weighting"], warnings=header["warnings"],
+            absent_phrases=header.get("absent_phrases", []),
         )
 
 
@@ -177,15 +194,13 @@ def build_matrix(
 ) -> TermMatrix:
     """Analyse verbatims into a term-document matrix; non-answers (exclude mask) are left out and listed."""
     excluded = check_corpus(texts, exclude)
-    if weighting not in WEIGHTINGS:
-        raise OpenCodeError(f"weighting {weighting!r}: choose one of {', '.join(WEIGHTINGS)}")
     ids = list(range(len(texts))) if doc_ids is None else [_plain(d) for d in doc_ids]
     if len(ids) != len(texts):
         raise OpenCodeError(f"{len(ids)} document ids were given for {len(texts)} verbatims")
     rows_source = np.flatnonzero(~excluded)
     docs = [texts[i] for i in rows_source]
+    check_limits(min_df, max_df, weighting, len(docs))  # before the slow part
     n_docs = len(docs)
-    low, high = _df_limit(min_df, n_docs, "min_df"), _df_limit(max_df, n_docs, "max_df")
 
     vocabulary = analyzer.vocabulary()
     rows, cols, data, skeys, ssurf, scount = [], [], [], [], [], []
@@ -209,8 +224,7 @@ def build_matrix(
     col = np.concatenate(cols)
     val = np.concatenate(data).astype(np.int32)
     df = np.bincount(col, minlength=n_keys)
-    keep_key = (df > 0) & (df >= low) & (df <= high)
-    kept = np.flatnonzero(keep_key)
+    kept = np.flatnonzero(df > 0)
     names = np.array(vocabulary.key_names, dtype=object)[kept]
     order = np.argsort(names, kind="stable")
     col_of_key = np.full(n_keys, -1, dtype=np.int64)
@@ -220,30 +234,59 @@ def build_matrix(
     counts = sp.csr_matrix((val[ok], (row[ok], new_col[ok])), shape=(n_docs, len(kept)), dtype=np.int32)
     counts.sort_indices()
 
-    warnings = analyzer.notes()
-    for phrase, pid in vocabulary.phrase_keys.items():
-        if hits.get(pid, 0) == 0:
-            warnings.append(f"phrase {phrase!r} never occurs in the {n_docs} verbatims analysed")
-    if len(kept) == 0:
-        raise OpenCodeError(
-            f"no term is left in any of the {n_docs} verbatims after the lexicon and the document-frequency "
-            f"limits (min_df={min_df}, max_df={max_df}); loosen the limits or the stop words"
-        )
-    empty_rows = np.flatnonzero(np.diff(counts.indptr) == 0)
-    empty_ids = [ids[rows_source[r]] for r in empty_rows]
-    if empty_ids:
-        shown = ", ".join(str(d) for d in empty_ids[:_SHOW_IDS]) + (" ..." if len(empty_ids) > _SHOW_IDS else "")
-        warnings.append(f"{len(empty_ids)} verbatim(s) have no term left after the lexicon: {shown}")
-
+    absent = [phrase for phrase, pid in vocabulary.phrase_keys.items() if hits.get(pid, 0) == 0]
     surfaces = _surface_table(np.concatenate(skeys), np.concatenate(ssurf), np.concatenate(scount),
                               col_of_key, len(kept), vocabulary.surface_names)
     terms = [str(t) for t in names[order]]
     labels = [term_label(t, forms[0][0]) if forms else t for forms, t in zip(surfaces, terms)]
-    return TermMatrix(
+    whole = TermMatrix(
         counts=counts, terms=terms, labels=labels, surfaces=surfaces,
         doc_ids=[ids[i] for i in rows_source], rows_source=rows_source, n_input=len(texts),
-        excluded_doc_ids=[ids[i] for i in np.flatnonzero(excluded)], empty_doc_ids=empty_ids,
-        weighting=weighting, warnings=warnings,
+        excluded_doc_ids=[ids[i] for i in np.flatnonzero(excluded)], empty_doc_ids=[],
+        weighting="count", warnings=analyzer.notes(), absent_phrases=absent,
+    )
+    return restrict_terms(whole, min_df=min_df, max_df=max_df, weighting=weighting)
+
+
+def _empty_note(empty_ids: Sequence[Any]) -> str:
+    shown = ", ".join(str(d) for d in empty_ids[:_SHOW_IDS]) + (" ..." if len(empty_ids) > _SHOW_IDS else "")
+    return f"{len(empty_ids)} verbatim(s) have no term left after the lexicon: {shown}"
+
+
+def restrict_terms(tm: TermMatrix, *, min_df: float | int = 1, max_df: float | int = 1.0,
+                   weighting: str = "count") -> TermMatrix:
+    """The matrix keeping only terms within the document-frequency limits, with the given weighting.
+
+    The same as building with those limits (build_matrix builds the whole vocabulary and calls this), so a
+    matrix cached without limits serves every verb: themes (min_df 2) and drivers (min_df 5) read the one
+    `words` cached instead of analysing the verbatims again. Verbatims left with no term are listed afresh.
+    """
+    n_docs = tm.counts.shape[0]
+    low, high = check_limits(min_df, max_df, weighting, n_docs)
+    df = tm.df
+    keep = np.flatnonzero((df > 0) & (df >= low) & (df <= high))
+    if len(keep) == 0:
+        raise OpenCodeError(
+            f"no term is left in any of the {n_docs} verbatims after the lexicon and the document-frequency "
+            f"limits (min_df={min_df}, max_df={max_df}); loosen the limits or the stop words"
+        )
+    if len(keep) == tm.counts.shape[1]:
+        counts, terms, labels, surfaces = tm.counts, tm.terms, tm.labels, tm.surfaces
+    else:
+        counts = tm.counts[:, keep].tocsr()
+        counts.sort_indices()
+        terms = [tm.terms[j] for j in keep]
+        labels = [tm.labels[j] for j in keep]
+        surfaces = [tm.surfaces[j] for j in keep]
+    empty_rows = np.flatnonzero(np.diff(counts.indptr) == 0)
+    empty_ids = [tm.doc_ids[r] for r in empty_rows]
+    warnings = [w for w in tm.warnings if not (tm.empty_doc_ids and w == _empty_note(tm.empty_doc_ids))]
+    if empty_ids:
+        warnings.append(_empty_note(empty_ids))
+    return TermMatrix(
+        counts=counts, terms=list(terms), labels=list(labels), surfaces=list(surfaces), doc_ids=tm.doc_ids,
+        rows_source=tm.rows_source, n_input=tm.n_input, excluded_doc_ids=tm.excluded_doc_ids,
+        empty_doc_ids=empty_ids, weighting=weighting, warnings=warnings, absent_phrases=list(tm.absent_phrases),
     )
 
 
@@ -258,7 +301,7 @@ def cache_key(
     """A hash of everything a TermMatrix depends on: analyzer state, texts, ids, mask and options."""
     digest = hashlib.sha256()
     settings = {
-        "format": FORMAT_VERSION, "nltk": nltk.__version__, "analyzer": analyzer.to_dict(),
+        "format": FORMAT_VERSION, "nltk": _nltk_version(), "analyzer": analyzer.to_dict(),
         "options": matrix_options,
         "doc_ids": None if doc_ids is None else [_plain(d) for d in doc_ids],
     }

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from itertools import combinations
 
 import numpy as np
-from nltk.metrics import edit_distance
 
 from opencode.text.matrix import TermMatrix
 from opencode.files.textout import format_table
@@ -48,6 +47,7 @@ def allowed_distance(word: str, max_distance: int) -> int:
 
 def close_pairs(rare: Iterable[str], frequent: Iterable[str], max_distance: int = 2) -> list[tuple[str, str, int]]:
     """(rare word, frequent word, distance) for pairs within the allowed Levenshtein distance."""
+    from nltk.metrics import edit_distance  # imported here: nltk costs a command seconds to import
     index: dict[str, set[str]] = defaultdict(set)
     frequent = list(frequent)
     for word in frequent:

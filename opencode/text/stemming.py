@@ -4,11 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from nltk.stem import PorterStemmer, SnowballStemmer
-
 from opencode.errors import OpenCodeError
 
-SNOWBALL_LANGUAGES: tuple[str, ...] = tuple(lang for lang in SnowballStemmer.languages if lang != "porter")
 STEMMERS = ("snowball", "porter")
 
 # ISO 639-1 codes for the Snowball languages (and the file suffix of bundled stop lists).
@@ -18,6 +15,9 @@ LANGUAGE_CODES = {
     "romanian": "ro", "russian": "ru", "spanish": "es", "swedish": "sv",
 }
 _NAMES_BY_CODE = {code: name for name, code in LANGUAGE_CODES.items()}
+#: The languages nltk's SnowballStemmer stems (its `languages` less "porter"; a test holds them equal). Written
+#: out so that naming a language does not import nltk, whose package import costs a command seconds.
+SNOWBALL_LANGUAGES: tuple[str, ...] = tuple(LANGUAGE_CODES)
 
 
 def language_name(language: str) -> str:
@@ -45,10 +45,12 @@ def make_stemmer(language: str, stemmer: str | None) -> Callable[[str], str] | N
                 f"the Porter stemmer is for English only, not {language!r}: use stemmer 'snowball' "
                 f"for {', '.join(SNOWBALL_LANGUAGES)}"
             )
+        from nltk.stem import PorterStemmer
         return PorterStemmer(mode=PorterStemmer.ORIGINAL_ALGORITHM).stem
     if name not in SNOWBALL_LANGUAGES:
         raise OpenCodeError(
             f"no stemmer for language {language!r}; stemmers exist for: {', '.join(SNOWBALL_LANGUAGES)}. "
             "Choose one of these, or switch stemming off (stemmer none) to analyse unstemmed words."
         )
+    from nltk.stem import SnowballStemmer
     return SnowballStemmer(name).stem

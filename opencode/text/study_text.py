@@ -28,7 +28,7 @@ from opencode.study.survey_data import Variable, get_question, get_variable, raw
 from opencode.text.analyzer import Analyzer, Progress
 from opencode.text.kwic import KwicLine, kwic
 from opencode.text.lexicon import Lexicon
-from opencode.text.matrix import TermMatrix, build_matrix, cache_key
+from opencode.text.matrix import TermMatrix, build_matrix, cache_key, check_limits, restrict_terms
 from opencode.text.phrases import PhraseSuggestion, suggest_phrases
 from opencode.text.stemming import SNOWBALL_LANGUAGES, language_name
 from opencode.text.stoplists import bundled_stop_words, has_stop_list
@@ -375,10 +375,13 @@ def term_matrix(
     Row i of tm.counts is frame.iloc[tm.rows_source[i]]; frame.matrix_row is -1 for rows left out.
     tm.doc_ids are respondent ids; `kwic(tm, frame.text.tolist(), term)` works on the pair.
 
-    The cache key (text.matrix.cache_key over the analyzer and options, with verbatims_fingerprint standing
-    in for the texts) covers the analyzer (the lexicon, or the `analyzer` given), every verbatim's text,
-    respondent and non-answer flag, and the options, so an edit to any of them rebuilds. A hit costs the
-    verbatims query, one hash over their text, one SELECT and TermMatrix.from_bytes: no tokenizing.
+    The study caches one matrix per analyzer and verbatims, with every term and counts; min_df, max_df and
+    weighting are applied to it on the way out (text.matrix.restrict_terms, the same as building with them),
+    so a verb asking for other limits reads the matrix another verb cached. The cache key (text.matrix.
+    cache_key over the analyzer, with verbatims_fingerprint standing in for the texts) covers the analyzer
+    (the lexicon, or the `analyzer` given), every verbatim's text, respondent and non-answer flag, so an edit
+    to any of them rebuilds. A hit costs the verbatims query, one hash over their text, one SELECT and
+    TermMatrix.from_bytes: no tokenizing.
     """
     question_id = get_question(study, question).id
     frame = verbatims(study, question)
@@ -394,22 +397,25 @@ def term_matrix(
     analyzer = analyzer if analyzer is not None else analyzer_for(study, question)
     texts = frame["text"].tolist()
     ids = frame["respondent"].tolist()
-    key = cache_key(analyzer, [verbatims_fingerprint(texts, ids, exclude)], min_df=min_df, max_df=max_df,
-                    weighting=weighting)
+    check_limits(min_df, max_df, weighting, int((~exclude).sum()))  # before any slow work
+    # One cached matrix per analyzer and verbatims: the whole vocabulary, counts. Every verb's limits and
+    # weighting are applied to it (restrict_terms), so words, themes, drivers and kwic share one analysis.
+    key = cache_key(analyzer, [verbatims_fingerprint(texts, ids, exclude)], min_df=1, max_df=1.0,
+                    weighting="count")
     blob = load_matrix_blob(study, key)
-    tm = None
+    whole = None
     if blob is not None:
         try:
-            tm = TermMatrix.from_bytes(blob)
+            whole = TermMatrix.from_bytes(blob)
         except OpenCodeError:
-            tm = None  # unreadable (e.g. written by another format version): rebuild below
-    if tm is None:
-        tm = build_matrix(texts, analyzer, doc_ids=ids, exclude=exclude, min_df=min_df, max_df=max_df,
-                          weighting=weighting, progress=progress)
+            whole = None  # unreadable (e.g. written by another format version): rebuild below
+    if whole is None:
+        whole = build_matrix(texts, analyzer, doc_ids=ids, exclude=exclude, progress=progress)
         try:
-            store_matrix_blob(study, question_id, key, tm.to_bytes())
+            store_matrix_blob(study, question_id, key, whole.to_bytes())
         except OpenCodeError as error:
-            tm.warnings.append(f"the term matrix was not cached ({error})")
+            whole.warnings.append(f"the term matrix was not cached ({error})")
+    tm = restrict_terms(whole, min_df=min_df, max_df=max_df, weighting=weighting)
     matrix_row = np.full(len(frame), -1, dtype=np.int64)
     matrix_row[tm.rows_source] = np.arange(len(tm.rows_source))
     frame["matrix_row"] = matrix_row
@@ -424,6 +430,17 @@ def missing_phrases(tm: TermMatrix, analyzer: Analyzer, phrases: Iterable[str] |
         p: keys[p] for p in (" ".join(x.split()).lower() for x in phrases) if p in keys}
     present = set(tm.terms)
     return [p for p, pid in wanted.items() if vocabulary.key_names[pid] not in present]
+
+
+def absent_phrase_notes(study: Study, question: str | None, progress: Progress = None) -> list[str]:
+    """One sentence per lexicon phrase that occurs in none of the question's verbatims (none for the study
+    default, which has no verbatims of its own). Shown where the lexicon is looked at or edited, not by every
+    text command."""
+    if question is None:
+        return []
+    tm, _ = term_matrix(study, question, progress=progress)
+    return [f"phrase {phrase!r} never occurs in the verbatims of question {question} (kept in the lexicon)"
+            for phrase in tm.absent_phrases]
 
 
 def stop_word_effect(study: Study, question: str, before: Lexicon, progress: Progress = None) -> list[Any]:
@@ -520,9 +537,13 @@ def _code_of(variable: Variable, wanted: str) -> float:
 
 
 def question_kwic(study: Study, question: str, term: str, *, width: int = 40, limit: int | None = None,
-                  show: Sequence[str] = ()) -> tuple[list[KwicLine], dict[str, list[str]]]:
-    """Keyword in context for a question, with chosen closed-ended variables' labels for each line."""
-    tm, frame = term_matrix(study, question)
+                  show: Sequence[str] = (), matrix: tuple[TermMatrix, pd.DataFrame] | None = None,
+                  ) -> tuple[list[KwicLine], dict[str, list[str]]]:
+    """Keyword in context for a question, with chosen closed-ended variables' labels for each line.
+
+    matrix: the question's (tm, frame) from term_matrix when the caller has it already (saves reading it twice).
+    """
+    tm, frame = matrix if matrix is not None else term_matrix(study, question)
     lines = kwic(tm, frame["text"].tolist(), term, width=width, limit=limit)
     row_of = {key: i for i, key in enumerate(frame["respondent"])}
     columns = {}

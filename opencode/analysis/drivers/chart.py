@@ -7,15 +7,20 @@ import textwrap
 from dataclasses import dataclass
 from pathlib import Path
 
-import matplotlib
+import pandas as pd
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import pandas as pd  # noqa: E402
+from opencode.errors import OpenCodeError
+from opencode.files.safe_write import atomic_path
+from opencode.files.palette import SIDE_A, SIDE_B
 
-from opencode.errors import OpenCodeError  # noqa: E402
-from opencode.files.safe_write import atomic_path  # noqa: E402
-from opencode.files.palette import SIDE_A, SIDE_B  # noqa: E402
+
+def _pyplot():
+    """matplotlib's pyplot on the file-only Agg backend, imported at the first chart (it costs a command's
+    start-up seconds otherwise, charts or not)."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt
 
 
 @dataclass(frozen=True)
@@ -46,7 +51,7 @@ def write_driver_chart(table: pd.DataFrame, path: str | os.PathLike, labels: tup
     if not bars.terms:
         raise OpenCodeError(f"{path}: no term has a non-zero {value}; nothing to chart")
     height = 1.2 + 0.32 * len(bars.terms)
-    fig, ax = plt.subplots(figsize=(7.5, height), dpi=120)
+    fig, ax = _pyplot().subplots(figsize=(7.5, height), dpi=120)
     try:
         positions = range(len(bars.terms))
         ax.barh(positions, bars.values, color=bars.colours, edgecolor="#000000", linewidth=0.4)
@@ -55,12 +60,12 @@ def write_driver_chart(table: pd.DataFrame, path: str | os.PathLike, labels: tup
         # Labels wrap and the figure is saved around everything drawn, so no label is cut at an edge.
         ax.set_xlabel("\n".join(textwrap.wrap(f"{value} (log-odds, penalized model): left leans to {labels[0]}, "
                                                f"right to {labels[1]}", 80)))
-        handles = [plt.Rectangle((0, 0), 1, 1, color=SIDE_A), plt.Rectangle((0, 0), 1, 1, color=SIDE_B)]
+        handles = [_pyplot().Rectangle((0, 0), 1, 1, color=SIDE_A), _pyplot().Rectangle((0, 0), 1, 1, color=SIDE_B)]
         ax.legend(handles, [labels[0], labels[1]], loc="lower right", frameon=False)  # empty: side 0 bars point left
         ax.set_title("\n".join(textwrap.wrap(title or f"Terms that predict {labels[1]} vs {labels[0]}", 70)))
         fig.tight_layout()
         with atomic_path(path, suffix=".png") as tmp:
             fig.savefig(tmp, format="png", bbox_inches="tight", pad_inches=0.1)
     finally:
-        plt.close(fig)
+        _pyplot().close(fig)
     return Path(path)

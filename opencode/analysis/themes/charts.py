@@ -6,22 +6,26 @@ import math
 import os
 from pathlib import Path
 
-import matplotlib
+from opencode.analysis.themes.search import KSearch
+from opencode.analysis.themes.summary import ThemeRun
+from opencode.files.safe_write import atomic_path
+from opencode.files.palette import OKABE_ITO, SERIES
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
 
-from opencode.analysis.themes.search import KSearch  # noqa: E402
-from opencode.analysis.themes.summary import ThemeRun  # noqa: E402
-from opencode.files.safe_write import atomic_path  # noqa: E402
-from opencode.files.palette import OKABE_ITO, SERIES  # noqa: E402
+def _pyplot():
+    """matplotlib's pyplot on the file-only Agg backend, imported at the first chart (it costs a command's
+    start-up seconds otherwise, charts or not)."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt
 
 
 def _save(figure, path: str | os.PathLike) -> Path:
     """Write the figure as PNG through a temporary file and an atomic rename, then close it."""
     with atomic_path(path, suffix=".png") as tmp:
         figure.savefig(tmp, format="png", dpi=120, bbox_inches="tight")
-    plt.close(figure)
+    _pyplot().close(figure)
     return Path(path)
 
 
@@ -30,7 +34,7 @@ def plot_theme_terms(run: ThemeRun, path: str | os.PathLike, n_terms: int = 8, c
     n_themes = len(run.themes)
     columns = max(1, min(columns, n_themes))
     rows = math.ceil(n_themes / columns)
-    figure, axes = plt.subplots(rows, columns, figsize=(3.4 * columns, 0.32 * n_terms * rows + 0.9 * rows),
+    figure, axes = _pyplot().subplots(rows, columns, figsize=(3.4 * columns, 0.32 * n_terms * rows + 0.9 * rows),
                                 squeeze=False)
     for ax, theme in zip(axes.flat, run.themes):
         terms, weights = theme.top_terms[:n_terms][::-1], theme.top_weights[:n_terms][::-1]
@@ -49,7 +53,7 @@ def plot_theme_terms(run: ThemeRun, path: str | os.PathLike, n_terms: int = 8, c
 def plot_k_curve(search: KSearch, path: str | os.PathLike) -> Path:
     """NPMI coherence and stability against k, the recommended k marked."""
     table = search.table
-    figure, coherence_ax = plt.subplots(figsize=(6.4, 3.6))
+    figure, coherence_ax = _pyplot().subplots(figsize=(6.4, 3.6))
     stability_ax = coherence_ax.twinx()
     coherence_ax.plot(table["k"], table["npmi"], marker="o", color=OKABE_ITO["blue"], label="NPMI coherence")
     stability_ax.plot(table["k"], table["stability"], marker="s", linestyle="--", color=OKABE_ITO["orange"],

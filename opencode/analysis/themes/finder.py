@@ -11,12 +11,15 @@ SHORT_TEXT_NOTE below is the user-facing paragraph on short verbatims, min_df an
 
 from __future__ import annotations
 
+import warnings
+
 from typing import Sequence
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 from sklearn.decomposition import NMF, LatentDirichletAllocation
+from sklearn.exceptions import ConvergenceWarning
 from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.utils.extmath import randomized_svd
 
@@ -298,10 +301,21 @@ class ThemeFinder(BaseEstimator):
         if start is not None:
             w0, h0 = (np.array(part, dtype=np.float64) for part in start)
             model = self._estimator(self.n_themes, init="custom", max_iter=max_iter, tol=tol)
-            kept_weights = model.fit_transform(model_input, W=w0, H=h0)
+            fit = lambda: model.fit_transform(model_input, W=w0, H=h0)  # noqa: E731
         else:
             model = self._estimator(self.n_themes, max_iter=max_iter, tol=tol)
-            kept_weights = model.fit_transform(model_input)
+            fit = lambda: model.fit_transform(model_input)  # noqa: E731
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", ConvergenceWarning)
+            kept_weights = fit()
+        stalled = [w for w in caught if issubclass(w.category, ConvergenceWarning)]
+        for other in caught:  # anything else goes on as it came
+            if other not in stalled:
+                warnings.warn_explicit(other.message, other.category, other.filename, other.lineno)
+        #: One plain sentence instead of scikit-learn's ConvergenceWarning (empty when the model converged).
+        self.convergence_note_ = "" if not stalled else (
+            f"the theme model stopped at its iteration limit ({model.max_iter}) before converging; the themes are "
+            "usable but may shift a little with another seed or a higher limit")
         self.model_ = model
         self.components_ = model.components_
         self.n_iter_ = model.n_iter_

@@ -302,7 +302,7 @@ def summarise(finder: ThemeFinder, counts, terms: Sequence[str], *, texts: Seque
                                             unit_rows, n_representatives, texts, doc_ids),
             seed_terms=seeds[theme] if theme < len(seeds) else None,
             catch_all=bool(n_included and n_dominant[theme] / n_included > catch_all_limit(finder.n_themes))))
-    notes = []
+    notes = [finder.convergence_note_] if getattr(finder, "convergence_note_", "") else []
     for summary in themes:
         if summary.catch_all:
             notes.append(f"theme {summary.index + 1} ({summary.label}) holds {summary.share:.0%} of the verbatims "
