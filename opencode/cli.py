@@ -90,8 +90,14 @@ def _command_output(args: argparse.Namespace):
             yield
             return
         out, err = sys.stdout, sys.stderr
-        sys.stdout, sys.stderr = TerminalStream(out), TerminalStream(err, keep_cr=True)
+        from opencode.files.textout import output_width
+
+        sys.stdout = TerminalStream(out, width=output_width(out))
+        sys.stderr = TerminalStream(err, keep_cr=True, width=output_width(err))
         try:
             yield
         finally:
+            for stream in (sys.stdout, sys.stderr):
+                with contextlib.suppress(Exception):
+                    stream.flush()
             sys.stdout, sys.stderr = out, err

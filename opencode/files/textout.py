@@ -1,11 +1,89 @@
-"""Aligned plain-text tables for the command line: the one table formatter every `format_*` function uses."""
+"""Plain-text tables and prose that fit the terminal: the one table formatter every `format_*` function uses.
+
+Rules every table follows (issue 14): the whole table fits `output_width()` (the terminal's width, COLUMNS when
+set, 80 when stdout is not a terminal); label columns wrap within their cell; a number is never split (a
+numeric cell keeps its whole width, a label cell is never narrower than the longest number in it); when the
+columns cannot fit side by side even with labels wrapped, the table is cut into successive blocks of columns,
+each repeating the stub (the leading label columns), rather than squeezing numbers. p and q values print through
+`format_p` everywhere.
+
+Rendering uses rich (a Table drawn by a Console with no colours into a string); rich is imported inside the
+render function so that importing this module costs nothing at start-up.
+"""
 
 from __future__ import annotations
 
+import math
+import os
+import re
+import shutil
+import sys
+import textwrap
 from collections.abc import Sequence
 from typing import Any
 
 from opencode.files.terminal_text import one_line
+
+#: Width used when stdout is not a terminal and COLUMNS is not set.
+DEFAULT_WIDTH = 80
+#: A label column may be squeezed down to this many characters (wrapping on spaces; a longer word is folded).
+LABEL_MIN = 16
+#: Spaces between two columns.
+GAP = 2
+
+_NUMBER = re.compile(r"[-+<>]?\(?\[?[0-9][0-9,]*(?:\.[0-9]+)?(?:e[-+]?[0-9]+)?%?[\]),;]*", re.I)
+
+
+def output_width(stream: Any = None) -> int:
+    """The width tables and prose are fitted to: COLUMNS when set to a number, the terminal's width when
+    `stream` (stdout by default) is a terminal, otherwise 80."""
+    value = os.environ.get("COLUMNS", "").strip()
+    if value.isdigit() and int(value) > 0:
+        return max(int(value), 20)
+    stream = sys.stdout if stream is None else stream
+    try:
+        if stream.isatty():
+            return max(shutil.get_terminal_size((DEFAULT_WIDTH, 24)).columns, 20)
+    except (AttributeError, ValueError, OSError):
+        pass
+    return DEFAULT_WIDTH
+
+
+def format_p(p: Any) -> str:
+    """A p or q value the same way in every table: '<0.001' below 0.001, else three decimals; '-' when there
+    is no test (None or NaN)."""
+    if p is None:
+        return "-"
+    try:
+        value = float(p)
+    except (TypeError, ValueError):
+        return "-"
+    if math.isnan(value):
+        return "-"
+    return "<0.001" if value < 0.001 else f"{value:.3f}"
+
+
+def wrap_text(text: str, width: int | None = None) -> str:
+    """Prose fitted to `width`: each line longer than the width is wrapped on spaces, its continuation lines
+    indented two spaces past the line's own indent. Lines that fit are kept as they are."""
+    width = width or output_width()
+    out: list[str] = []
+    for line in text.split("\n"):
+        out.extend(wrap_line(line, width))
+    return "\n".join(out)
+
+
+def wrap_line(line: str, width: int) -> list[str]:
+    """One line as the lines that fit `width` (see wrap_text)."""
+    if len(line) <= width:
+        return [line]
+    indent = line[:len(line) - len(line.lstrip(" "))]
+    if len(indent) > width // 2:
+        indent = ""
+    marker = re.match(r"(- |\* |[a-z][a-z -]{0,20}: )", line.lstrip(" "))
+    follow = indent + ("  " if marker is None or len(marker.group(1)) > 12 else " " * len(marker.group(1)))
+    return textwrap.wrap(line, width=width, initial_indent="", subsequent_indent=follow, break_long_words=True,
+                         break_on_hyphens=False, drop_whitespace=True) or [line]
 
 
 def _cell_text(value: Any) -> str:
@@ -14,8 +92,12 @@ def _cell_text(value: Any) -> str:
     if value is None:
         return ""
     if isinstance(value, float):
-        return f"{value:.3f}"
+        return "-" if math.isnan(value) else f"{value:.3f}"
     return one_line(str(value))
+
+
+def _is_number_text(text: str) -> bool:
+    return bool(text) and all(_NUMBER.fullmatch(word) or word in ("-", "[", "]") for word in text.split())
 
 
 def _auto_align(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
@@ -24,16 +106,133 @@ def _auto_align(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
                    for i in range(len(headers)))
 
 
-def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: str | None = None) -> str:
-    """A header, a rule, then one line per row, columns padded to their widest cell and two spaces apart.
+def _longest_word(text: str) -> int:
+    return max((len(w) for w in text.split()), default=0)
+
+
+class _Column:
+    """Measures of one column: its widest line, and the narrowest it may become."""
+
+    def __init__(self, header: str, cells: list[str], align: str, may_wrap: bool):
+        self.header, self.cells, self.align, self.may_wrap = header, cells, align, may_wrap
+        widest_cell = max((len(c) for c in cells), default=0)
+        self.widest = max(widest_cell, len(header))
+        numbers = max((len(w) for c in cells for w in c.split() if _NUMBER.fullmatch(w)), default=0)
+        header_floor = min(_longest_word(header), max(widest_cell, 4))
+        if may_wrap:
+            self.narrowest = max(numbers, header_floor, min(widest_cell, LABEL_MIN), 1)
+        else:
+            self.narrowest = max(widest_cell, header_floor, 1)
+        self.narrowest = min(self.narrowest, self.widest) if self.widest else 1
+
+
+def _widths(columns: list[_Column], width: int) -> list[int] | None:
+    """Column widths summing (with gaps) to at most `width`, wrap columns shrunk widest-first; None if even
+    the narrowest widths do not fit."""
+    gaps = GAP * (len(columns) - 1)
+    if sum(c.narrowest for c in columns) + gaps > width:
+        return None
+    widths = [c.widest for c in columns]
+    excess = sum(widths) + gaps - width
+    while excess > 0:
+        # shrink the column with the most room left above its narrowest width (wrap columns first)
+        room = [(w - c.narrowest) if c.may_wrap else 0 for w, c in zip(widths, columns)]
+        if max(room) <= 0:
+            room = [w - c.narrowest for w, c in zip(widths, columns)]
+        i = max(range(len(columns)), key=lambda k: room[k])
+        take = min(room[i], excess, max(1, room[i] // 2))
+        widths[i] -= take
+        excess -= take
+    return widths
+
+
+def _blocks(columns: list[_Column], stub: int, width: int) -> list[list[int]]:
+    """Column indices of each block: the stub columns, then as many of the rest as fit beside them."""
+    stub = min(stub, len(columns) - 1) if len(columns) > 1 else 0
+    rest = list(range(stub, len(columns)))
+    blocks: list[list[int]] = []
+    while rest:
+        block = list(range(stub))
+        block.append(rest.pop(0))  # at least one column a block, even if it alone is too wide
+        while rest and _widths([columns[i] for i in block + [rest[0]]], width) is not None:
+            block.append(rest.pop(0))
+        blocks.append(block)
+    return blocks or [list(range(len(columns)))]
+
+
+def _render(columns: list[_Column], widths: list[int], rows: int) -> list[str]:
+    """The table as lines (rich Table with a rule under the header, no colours, no trailing spaces)."""
+    from io import StringIO
+
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+    from rich.text import Text
+
+    rule = box.Box("    \n    \n -- \n    \n    \n    \n    \n    \n", ascii=True)
+    table = Table(box=rule, show_edge=False, pad_edge=False, padding=(0, GAP - 1, 0, 0), expand=False,
+                  show_header=True, highlight=False)
+    for column, w in zip(columns, widths):
+        justify = "right" if column.align == "r" else "left"
+        table.add_column(Text(column.header), justify=justify, width=w, min_width=w, max_width=w,
+                         overflow="fold", no_wrap=False, header_style="", style="")
+    for r in range(rows):
+        table.add_row(*(Text(c.cells[r]) for c in columns))
+    total = sum(widths) + GAP * (len(widths) - 1) + GAP
+    console = Console(width=total + 1, file=StringIO(), color_system=None, force_terminal=False,
+                      legacy_windows=False, soft_wrap=False, highlight=False, emoji=False, markup=False)
+    with console.capture() as capture:
+        console.print(table)
+    lines = [line.rstrip() for line in capture.get().split("\n")]
+    while lines and not lines[-1]:
+        lines.pop()
+    # the rule under the header: one dash run per column, GAP spaces apart
+    for i, line in enumerate(lines):
+        if line and set(line) <= {"-", " "} and "-" in line:
+            lines[i] = (" " * GAP).join("-" * w for w in widths)
+            break
+    return lines
+
+
+def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: str | None = None, *,
+                 width: int | None = None, wrap: Sequence[int | str] | None = None, title: str | None = None,
+                 note: str | Sequence[str] | None = None, stub: int | None = None) -> str:
+    """A header, a rule, then one line (or a few wrapped lines) per row, fitted to `width`.
 
     `align` is one letter per column ('l' or 'r'); by default numeric columns are right-aligned, the rest left.
+    `wrap` names the columns (index or header) whose text may wrap; by default every left-aligned column whose
+    cells are not all numbers. Right-aligned and numeric columns keep every cell whole on one line. `width`
+    defaults to `output_width()`. When the columns cannot fit side by side, they are printed in successive
+    blocks, each repeating the first `stub` columns (by default the columns up to the first label column).
+    `title` goes above the table and `note` (a line or lines, e.g. "sorted by ...") below it, both wrapped.
     """
+    width = width or output_width()
+    headers = [one_line(str(h)) for h in headers]
     align = align or _auto_align(headers, rows)
-    cells = [[one_line(str(h)) for h in headers]] + [[_cell_text(c) for c in row] for row in rows]
-    widths = [max(len(r[i]) for r in cells) for i in range(len(headers))]
-
-    def line(values: Sequence[str]) -> str:
-        return "  ".join(v.rjust(w) if a == "r" else v.ljust(w) for v, w, a in zip(values, widths, align)).rstrip()
-
-    return "\n".join([line(cells[0]), line(["-" * w for w in widths])] + [line(r) for r in cells[1:]])
+    texts = [[_cell_text(c) for c in row] for row in rows]
+    cells = [[row[i] for row in texts] for i in range(len(headers))]
+    if wrap is None:
+        may_wrap = [a == "l" and not all(_is_number_text(c) or not c for c in cells[i])
+                    for i, a in enumerate(align)]
+    else:
+        named = {w if isinstance(w, int) else headers.index(w) for w in wrap}
+        may_wrap = [i in named for i in range(len(headers))]
+    columns = [_Column(h, cells[i], align[i], may_wrap[i]) for i, h in enumerate(headers)]
+    if stub is None:
+        first_label = next((i for i, m in enumerate(may_wrap) if m), 0)
+        stub = min(first_label + 1, 2)
+    out: list[str] = []
+    if title:
+        out += [wrap_text(title, width), ""]
+    widths = _widths(columns, width)
+    if widths is not None:
+        out += _render(columns, widths, len(texts))
+    else:
+        for b, block in enumerate(_blocks(columns, stub, width)):
+            chosen = [columns[i] for i in block]
+            block_widths = _widths(chosen, width) or [c.narrowest for c in chosen]
+            out += ([""] if b else []) + _render(chosen, block_widths, len(texts))
+    if note:
+        notes = [note] if isinstance(note, str) else list(note)
+        out += [""] + [wrap_text(n, width) for n in notes]
+    return "\n".join(out)
