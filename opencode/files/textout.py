@@ -118,7 +118,7 @@ class _Column:
         widest_cell = max((len(c) for c in cells), default=0)
         self.widest = max(widest_cell, len(header))
         numbers = max((len(w) for c in cells for w in c.split() if _NUMBER.fullmatch(w)), default=0)
-        header_floor = min(_longest_word(header), max(widest_cell, 4))
+        header_floor = min(_longest_word(header), 12)
         if may_wrap:
             self.narrowest = max(numbers, header_floor, min(widest_cell, LABEL_MIN), 1)
         else:
@@ -146,16 +146,30 @@ def _widths(columns: list[_Column], width: int) -> list[int] | None:
     return widths
 
 
-def _blocks(columns: list[_Column], stub: int, width: int) -> list[list[int]]:
-    """Column indices of each block: the stub columns, then as many of the rest as fit beside them."""
-    stub = min(stub, len(columns) - 1) if len(columns) > 1 else 0
-    rest = list(range(stub, len(columns)))
+def _blocks(columns: list[_Column], stub: int, width: int,
+            units: list[tuple[int, list[int]]]) -> list[list[int]]:
+    """Column indices of each block: the stub columns, then as many units (columns that stay together, each
+    in a group) as fit beside them; a new group starts a new block when it would fit whole there but not here."""
+    def fits(block: list[int]) -> bool:
+        return _widths([columns[i] for i in block], width) is not None
+
+    group_columns: dict[int, list[int]] = {}
+    for group, unit in units:
+        group_columns.setdefault(group, []).extend(unit)
     blocks: list[list[int]] = []
-    while rest:
-        block = list(range(stub))
-        block.append(rest.pop(0))  # at least one column a block, even if it alone is too wide
-        while rest and _widths([columns[i] for i in block + [rest[0]]], width) is not None:
-            block.append(rest.pop(0))
+    block: list[int] = []
+    for k, (group, unit) in enumerate(units):
+        if block:
+            starts_group = k > 0 and group != units[k - 1][0]
+            candidate = block + unit
+            whole = list(range(stub)) + group_columns[group]
+            if not fits(candidate) or (starts_group and not fits(block + group_columns[group]) and fits(whole)):
+                blocks.append(block)
+                block = []
+        if not block:
+            block = list(range(stub))
+        block += unit
+    if block:
         blocks.append(block)
     return blocks or [list(range(len(columns)))]
 
@@ -196,7 +210,8 @@ def _render(columns: list[_Column], widths: list[int], rows: int) -> list[str]:
 
 def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: str | None = None, *,
                  width: int | None = None, wrap: Sequence[int | str] | None = None, title: str | None = None,
-                 note: str | Sequence[str] | None = None, stub: int | None = None) -> str:
+                 note: str | Sequence[str] | None = None, stub: int | None = None,
+                 groups: Sequence[tuple[str, Sequence[Sequence[int]]]] | None = None) -> str:
     """A header, a rule, then one line (or a few wrapped lines) per row, fitted to `width`.
 
     `align` is one letter per column ('l' or 'r'); by default numeric columns are right-aligned, the rest left.
@@ -205,6 +220,9 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     defaults to `output_width()`. When the columns cannot fit side by side, they are printed in successive
     blocks, each repeating the first `stub` columns (by default the columns up to the first label column).
     `title` goes above the table and `note` (a line or lines, e.g. "sorted by ...") below it, both wrapped.
+    `groups` (title, units) gathers the columns after the stub under a title printed above each block that
+    holds them (never cut; "continued" when the group was split); a unit (a list of column indices) is never
+    split across blocks.
     """
     width = width or output_width()
     headers = [one_line(str(h)) for h in headers]
@@ -224,14 +242,22 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     out: list[str] = []
     if title:
         out += [wrap_text(title, width), ""]
+    if groups is None:
+        groups = [("", [[i] for i in range(min(stub, len(columns) - 1) if len(columns) > 1 else 0, len(columns))])]
+    units = [(g, list(unit)) for g, (_, group_units) in enumerate(groups) for unit in group_units]
     widths = _widths(columns, width)
-    if widths is not None:
-        out += _render(columns, widths, len(texts))
-    else:
-        for b, block in enumerate(_blocks(columns, stub, width)):
-            chosen = [columns[i] for i in block]
-            block_widths = _widths(chosen, width) or [c.narrowest for c in chosen]
-            out += ([""] if b else []) + _render(chosen, block_widths, len(texts))
+    blocks = [list(range(len(columns)))] if widths is not None else _blocks(columns, stub, width, units)
+    shown: set[int] = set()
+    for b, block in enumerate(blocks):
+        chosen = [columns[i] for i in block]
+        block_widths = _widths(chosen, width) or [c.narrowest for c in chosen]
+        heads = []
+        for g, (group_title, group_units) in enumerate(groups):
+            members = {i for unit in group_units for i in unit}
+            if group_title and members & set(block):
+                heads.append(group_title + (" (continued)" if g in shown else ""))
+                shown.add(g)
+        out += ([""] if b else []) + [wrap_text(h, width) for h in heads] + _render(chosen, block_widths, len(texts))
     if note:
         notes = [note] if isinstance(note, str) else list(note)
         out += [""] + [wrap_text(n, width) for n in notes]
