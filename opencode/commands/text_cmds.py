@@ -114,14 +114,15 @@ def run_words(args: argparse.Namespace) -> int:
 
 # -- kwic -------------------------------------------------------------------------------------------------------------
 def run_kwic(args: argparse.Namespace) -> int:
+    from opencode.text.kwic import kwic_summary
+
     if args.width < 1 or args.limit < 1:
         raise OpenCodeError("--width and --limit must be 1 or more")
     with Study.open(args.study) as study:
         _matrix(study, args.question)  # builds (with a progress bar) or loads the cached matrix
         lines, columns = st.question_kwic(study, args.question, args.term, width=args.width, limit=args.limit,
                                           show=args.show)
-        print(f"{args.term!r} in question {args.question}: {len(lines)} occurrence(s)"
-              + (f" (first {args.limit})" if len(lines) >= args.limit else ""))
+        print(kwic_summary(args.term, args.question, lines))
         if lines:
             print(st.format_question_kwic(lines, columns, args.width))
     return 0
