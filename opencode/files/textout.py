@@ -117,6 +117,7 @@ class _Column:
         self.header, self.cells, self.align, self.may_wrap = header, cells, align, may_wrap
         widest_cell = max((len(c) for c in cells), default=0)
         self.widest = max(widest_cell, len(header))
+        self.widest_cell = widest_cell
         numbers = max((len(w) for c in cells for w in c.split() if _NUMBER.fullmatch(w)), default=0)
         header_floor = min(_longest_word(header), 12)
         if may_wrap:
@@ -135,8 +136,11 @@ def _widths(columns: list[_Column], width: int) -> list[int] | None:
     widths = [c.widest for c in columns]
     excess = sum(widths) + gaps - width
     while excess > 0:
-        # shrink the column with the most room left above its narrowest width (wrap columns first)
-        room = [(w - c.narrowest) if c.may_wrap else 0 for w, c in zip(widths, columns)]
+        # shrink the column with the most room left: first headers wider than their cells (a wrapped header costs
+        # a line once), then wrap columns down to their narrowest, then anything left
+        room = [w - max(c.widest_cell, c.narrowest) for w, c in zip(widths, columns)]
+        if max(room) <= 0:
+            room = [(w - c.narrowest) if c.may_wrap else 0 for w, c in zip(widths, columns)]
         if max(room) <= 0:
             room = [w - c.narrowest for w, c in zip(widths, columns)]
         i = max(range(len(columns)), key=lambda k: room[k])
