@@ -366,4 +366,4 @@ def format_frame(frame: Frame, counts: dict[int, int] | None = None) -> str:
     headers = ["code", "label", "kind", "key", "special", "state", "rule", "count"]
     if counts is None:
         headers, rows = headers[:-1], [r[:-1] for r in rows]
-    return format_table(headers, rows)
+    return format_table(headers, rows, note="in code-frame order (a net above its codes)")

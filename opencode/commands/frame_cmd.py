@@ -209,8 +209,10 @@ def _rule(study: Study, args: argparse.Namespace) -> None:
         hits = rules.rule_hits(study, args.question, text, code=args.code)
         print(f"rule for code {args.code}: {text}")
         print(f"would pre-code {hits.count} of {hits.total} verbatims (nothing written)")
-        for verbatim_id, verbatim in list(zip(hits.verbatim_ids, hits.texts))[: args.show]:
-            print(f"  {verbatim_id:>7}  {verbatim[:100]}")
+        shown = list(zip(hits.verbatim_ids, hits.texts))[: args.show]
+        if shown:
+            print(format_table(["verbatim", "text"], [[i, " ".join(t.split())] for i, t in shown], align="rl",
+                               note=f"{len(shown)} of {hits.count} matches, in verbatim order"))
         return
     rules.set_rule(study, args.question, args.code, text, actor=_actor(args))
     print(f"code {args.code} rule set: {text}" if text else f"code {args.code} rule removed")

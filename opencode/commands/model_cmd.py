@@ -59,7 +59,7 @@ def _report(study: Study, args: argparse.Namespace) -> None:
     print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
                        [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
                         if r["suggests"] else [r["code"], r["label"][:40], r["examples"], "cannot suggest", "", "", ""]
-                        for r in rows]))
+                        for r in rows], note="in code-frame order"))
 
 
 def _share(value: float) -> str:
@@ -77,12 +77,13 @@ def _curve(study: Study, args: argparse.Namespace) -> None:
           "people code the rest")
     print(format_table(["threshold", "auto-coded", "accuracy", "precision", "recall", "verbatims"],
                        [[f"{r['threshold']:.2f}", _share(r["coverage"]), _share(r["accuracy"]), _ratio(r["precision"]),
-                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr"))
+                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr",
+                       note="by threshold"))
     print(f"per code on the verbatims auto-coded at {report.threshold:.2f}:")
     print(format_table(["code", "label", "machine", "person", "both", "precision", "recall", ""],
                        [[c["code"], c["label"][:40], c["machine"], c["person"], c["both"], _ratio(c["precision"]),
                          _ratio(c["recall"]), "" if c["suggests"] else "cannot suggest"] for c in report.codes],
-                       align="rlrrrrrl"))
+                       align="rlrrrrrl", note="in code-frame order"))
     for note in report.notes:
         print(f"- {note}")
     print("pick a threshold whose accuracy you accept; then: oecode model STUDY apply --question Q --threshold T")
@@ -95,7 +96,7 @@ def _suggest(study: Study, args: argparse.Namespace) -> None:
         best = values.sort_values(ascending=False).head(3)
         rows.append([int(verbatim_id), "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
     print(f"{len(proba)} verbatims not yet coded by {_coder(args)}; first {len(rows)}:")
-    print(format_table(["verbatim", "likeliest codes (probability)"], rows))
+    print(format_table(["verbatim", "likeliest codes (probability)"], rows, note="in verbatim order"))
     print(SUGGESTION_NOTE)
 
 
@@ -111,18 +112,18 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
     if args.kind == "learn":
         items = machine_coding.learning_queue(study, args.question, _coder(args), n=args.limit)
         print("code these next (the model is least sure about them):")
-        print(format_table(["verbatim", "doubt", "code", "p", "text"],
+        print(format_table(["verbatim", "doubt", "code", "probability", "text"],
                            [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
-                            for i in items]))
+                            for i in items], note="most doubtful first"))
     else:
         items = machine_coding.second_look_queue(study, args.question, args.coder, n=args.limit)
         print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
-        print(format_table(["verbatim", "coder", "code", "p", "why", "text"],
+        print(format_table(["verbatim", "coder", "code", "probability", "why", "text"],
                            [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
-                            for i in items]))
+                            for i in items], note="strongest disagreement first"))
 
 
 def _rules(study: Study, args: argparse.Namespace) -> None:
     written = rules.apply_rules(study, args.question, coder=_coder(args))
-    print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())]))
+    print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())], note="by code"))
     print(f"rule codes are suggestions for {_coder(args)}: they count only once a person accepts them at the desk")

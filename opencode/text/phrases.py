@@ -192,5 +192,5 @@ def format_phrase_suggestions(rows: Sequence[PhraseSuggestion]) -> str:
     return format_table(
         ["phrase", "count", "G2", "PMI"],
         [[r.phrase, r.count, f"{r.g2:.1f}", f"{r.pmi:.2f}"] for r in rows],
-        align="lrrr",
+        align="lrrr", note="sorted by G2 (log-likelihood ratio), largest first",
     )

@@ -54,7 +54,7 @@ def format_k_search(search: KSearch) -> str:
     headers = ["", "k", "NPMI", "UMass", "stability", "unexplained"]
     headers += ["largest", "theme"] if has_largest else []
     align = "lrrrrr" + ("rl" if has_largest else "") + "r"
-    table = format_table(headers + ["rank"], rows, align=align)
+    table = format_table(headers + ["rank"], rows, align=align, note="by k")
     return "\n".join([table, "", search.note])
 
 
@@ -63,7 +63,8 @@ def format_comparison(table: pd.DataFrame) -> str:
     rows = [["" if pd.isna(row.theme_a) else int(row.theme_a) + 1, _shorten(row.label_a, 30),
              "" if pd.isna(row.theme_b) else int(row.theme_b) + 1, _shorten(row.label_b, 30), f"{row.jaccard:.2f}"]
             for row in table.itertuples()]
-    return format_table(["A", "label A", "B", "label B", "Jaccard"], rows, align="rlrlr")
+    return format_table(["A", "label A", "B", "label B", "Jaccard"], rows, align="rlrlr", wrap=[1, 3],
+                        note="best match first (by Jaccard)")
 
 
 def p_value_text(p: float) -> str:

@@ -494,7 +494,8 @@ def format_run_list(table: pd.DataFrame) -> str:
     """Stored runs as an aligned table."""
     if table.empty:
         return "no theme runs kept yet"
-    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").astype(str).values.tolist())
+    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").astype(str).values.tolist(),
+                        note="by run number")
 
 
 def format_unexplained(table: pd.DataFrame, width: int | None = None) -> str:
