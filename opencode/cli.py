@@ -90,10 +90,10 @@ def _command_output(args: argparse.Namespace):
             yield
             return
         out, err = sys.stdout, sys.stderr
-        from opencode.files.textout import output_width
+        from opencode.files.textout import prose_width
 
-        sys.stdout = TerminalStream(out, width=output_width(out))
-        sys.stderr = TerminalStream(err, keep_cr=True, width=output_width(err))
+        sys.stdout = TerminalStream(out, width=prose_width(out))
+        sys.stderr = TerminalStream(err, keep_cr=True, width=prose_width(err))
         try:
             yield
         finally:

@@ -49,6 +49,17 @@ def output_width(stream: Any = None) -> int:
     return DEFAULT_WIDTH
 
 
+def prose_width(stream: Any = None) -> int | None:
+    """The width prose is wrapped to on `stream`: as output_width when COLUMNS is set or the stream is a
+    terminal; None (no wrapping, one line per message for scripts) when it is a pipe or a file."""
+    value = os.environ.get("COLUMNS", "").strip()
+    try:
+        terminal = (sys.stdout if stream is None else stream).isatty()
+    except (AttributeError, ValueError, OSError):
+        terminal = False
+    return output_width(stream) if (value.isdigit() and int(value) > 0) or terminal else None
+
+
 def format_p(p: Any) -> str:
     """A p or q value the same way in every table: '<0.001' below 0.001, else three decimals; '-' when there
     is no test (None or NaN)."""
@@ -82,7 +93,7 @@ def wrap_line(line: str, width: int) -> list[str]:
         indent = ""
     marker = re.match(r"(- |\* |[a-z][a-z -]{0,20}: )", line.lstrip(" "))
     follow = indent + ("  " if marker is None or len(marker.group(1)) > 12 else " " * len(marker.group(1)))
-    return textwrap.wrap(line, width=width, initial_indent="", subsequent_indent=follow, break_long_words=True,
+    return textwrap.wrap(line, width=width, initial_indent="", subsequent_indent=follow, break_long_words=False,
                          break_on_hyphens=False, drop_whitespace=True) or [line]
 
 
@@ -125,12 +136,18 @@ class _Column:
         else:
             self.narrowest = max(widest_cell, header_floor, 1)
         self.narrowest = min(self.narrowest, self.widest) if self.widest else 1
+        # the last resort when even the narrowest widths do not fit: labels fold down to 6 characters and
+        # numeric cells wrap at their spaces (an interval under its estimate); a number is still never split
+        words = max((_longest_word(c) for c in cells), default=0)
+        self.tightest = min(self.narrowest, max(numbers, header_floor, 6 if may_wrap else words, 1))
 
 
-def _widths(columns: list[_Column], width: int) -> list[int] | None:
+def _widths(columns: list[_Column], width: int, tight: bool = False) -> list[int] | None:
     """Column widths summing (with gaps) to at most `width`, wrap columns shrunk widest-first; None if even
-    the narrowest widths do not fit."""
+    the narrowest widths (the tightest with `tight`) do not fit."""
     gaps = GAP * (len(columns) - 1)
+    if tight:
+        columns = [_Tight(c) for c in columns]
     if sum(c.narrowest for c in columns) + gaps > width:
         return None
     widths = [c.widest for c in columns]
@@ -148,6 +165,14 @@ def _widths(columns: list[_Column], width: int) -> list[int] | None:
         widths[i] -= take
         excess -= take
     return widths
+
+
+class _Tight:
+    """A column seen with its tightest width as its narrowest."""
+
+    def __init__(self, column: _Column):
+        self.widest, self.widest_cell, self.may_wrap = column.widest, column.widest_cell, column.may_wrap
+        self.narrowest = column.tightest
 
 
 def _blocks(columns: list[_Column], stub: int, width: int,
@@ -254,7 +279,7 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     shown: set[int] = set()
     for b, block in enumerate(blocks):
         chosen = [columns[i] for i in block]
-        block_widths = _widths(chosen, width) or [c.narrowest for c in chosen]
+        block_widths = _widths(chosen, width) or _widths(chosen, width, tight=True) or [c.tightest for c in chosen]
         heads = []
         for g, (group_title, group_units) in enumerate(groups):
             members = {i for unit in group_units for i in unit}

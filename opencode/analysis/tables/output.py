@@ -112,7 +112,7 @@ def format_table(table: Table, width: int | None = None) -> str:
             groups.append((f"Banner: {title}" if title else "", units))
             column += cell.span
     text = textout.format_table(headers, rows, align=align, width=width, wrap=wrap, title=layout.title,
-                                note=["rows in code-frame order (a net above its codes)", *layout.notes], stub=stub,
+                                note=["rows in code-frame order, each net above its codes", *layout.notes], stub=stub,
                                 groups=groups)
     return text + "\n"
 
