@@ -15,10 +15,10 @@ from opencode.study import desk_queries as dq
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
+from opencode.coding.choices import FINAL  # noqa: F401  (re-exported)
 
 SOURCES = ("hand", "rule", "machine")
 SUGGESTED = ("rule", "machine")
-FINAL = "final"
 
 
 @dataclass(frozen=True)

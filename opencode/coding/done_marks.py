@@ -16,15 +16,7 @@ from opencode.coding.history import Change
 from opencode.errors import OpenCodeError
 from opencode.study import survey_data
 from opencode.study.store import Study, now
-
-#: Which verbatims a call acts on.
-FILTERS = {
-    "answered-without-codes": "answered verbatims (not non-answers) that hold no code of the coder",
-    "without-codes": "verbatims that hold no code of the coder (non-answers included)",
-    "with-codes": "verbatims that hold a code of the coder",
-    "non-answers": "verbatims flagged as non-answers",
-    "all": "every verbatim of the question",
-}
+from opencode.coding.choices import FILTERS  # noqa: F401  (which verbatims a call acts on; re-exported)
 
 
 @dataclass

@@ -17,9 +17,8 @@ from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study
 from opencode.files.textout import format_table
+from opencode.coding.choices import KINDS, SPECIALS  # noqa: F401  (re-exported)
 
-KINDS = ("code", "net")
-SPECIALS = ("nonanswer", "other", "dontknow")
 #: Keys the desk keeps for itself (moving, undo, search); hotkeys must be other single characters.
 RESERVED_HOTKEYS = frozenset(" /?")
 #: Editable code fields -> the column storing them.

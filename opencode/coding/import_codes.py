@@ -33,11 +33,8 @@ from opencode.study import assignments_store as astore
 from opencode.study import frames_store as fstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
+from opencode.coding.choices import BLANK_MEANINGS, DEFAULT_DELIMITERS, LAYOUTS  # noqa: F401  (re-exported)
 
-LAYOUTS = ("auto", "delimited", "flags", "mentions", "long")
-BLANK_MEANINGS = ("uncoded", "no-code")
-#: Where a cell of several codes is split unless a delimiter is given: at any of these characters.
-DEFAULT_DELIMITERS = ",;|"
 _SPLIT = re.compile(r"\s*[;,|]\s*")
 _TRAILING_NUMBER = re.compile(r"(\d+)$")
 _BLANK = {"", "nan", "none", "null", "\\n", "."}

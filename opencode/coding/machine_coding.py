@@ -24,8 +24,7 @@ from opencode.study import assignments_store as astore
 from opencode.study import models_store
 from opencode.study import survey_data
 from opencode.study.store import Study, now
-
-FINAL = "final"
+from opencode.coding.choices import FINAL  # noqa: F401  (the adjudicated codes; re-exported)
 
 
 @dataclass
@@ -164,7 +163,7 @@ def _load(study: Study, question_id: int, question: str | None) -> TrainedModel:
         return cached
     if model_id is None:
         raise OpenCodeError(f"question {question or question_id!r}: no machine coder trained yet "
-                            "(oecode model STUDY train --question Q)")
+                            "(oecode model train STUDY --question Q)")
     meta, blob, created = models_store.load_model_row(study, model_id)
     model = MachineCoder.from_state(meta, blob)
     question = question or meta.get("question")

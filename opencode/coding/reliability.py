@@ -33,8 +33,8 @@ from opencode.study import samples_store as sstore
 from opencode.study import survey_data
 from opencode.study.store import Study, now
 from opencode.files.textout import format_table
+from opencode.coding.choices import MACHINE  # noqa: F401  (re-exported)
 
-MACHINE = "machine"
 MAX_STRATA = 50  # a stratifying variable with more values than this is almost surely not closed-ended
 
 
@@ -221,7 +221,7 @@ def format_sample_status(status: SampleStatus) -> str:
     n = len(status.sample.verbatim_ids)
     head = f"sample {status.sample.name} of question {status.sample.question}: {n:,} verbatims"
     if not status.progress:
-        return head + "\nno coders assigned yet (oecode sample STUDY assign --name NAME --coders A,B)"
+        return head + "\nno coders assigned yet (oecode sample assign STUDY --name NAME --coders A,B)"
     rows = [[p.coder, f"{p.finished:,}", f"{p.remaining:,}", f"{100 * p.finished / n:.0f}%" if n else "-"]
             for p in status.progress]
     return "\n".join([head, format_table(["coder", "finished", "to do", "done"], rows,

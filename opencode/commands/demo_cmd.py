@@ -4,18 +4,20 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.commands.common import progress_line
-from opencode.demo_job import run_demo
+from opencode.commands.common import add_verb, progress_line
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    demo = subparsers.add_parser("demo", help="run the whole job on the bundled demo survey")
+    demo = add_verb(subparsers, "demo", "run the whole job on the bundled demo survey",
+                    ["oecode demo", "oecode demo --out /tmp/wrenfield"])
     demo.add_argument("--out", default="oecode-demo", help="folder for the demo study and outputs "
                       "(default: ./oecode-demo)")
     demo.set_defaults(handler=run, overwrite=True)  # the demo replaces its own outputs in its folder
 
 
 def run(args: argparse.Namespace) -> int:
+    from opencode.demo_job import run_demo
+
     outputs = run_demo(args.out, progress=progress_line)
     print(outputs.summary)
     print()

@@ -4,9 +4,13 @@ from __future__ import annotations
 
 import argparse
 
+from opencode.commands.common import add_verb
+
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    code = subparsers.add_parser("code", help="code verbatims at the terminal desk (keys: F1 inside)")
+    code = add_verb(subparsers, "code", "code verbatims at the terminal desk (keys: F1 inside)",
+                    ["oecode code survey.study --question why --coder ash",
+                     "oecode code survey.study --question why --coder ash --screen themes"])
     code.add_argument("study", help="the study file (NAME.study)")
     code.add_argument("--question", required=True, help="the open question to code")
     code.add_argument("--coder", required=True, help="your coder name (e.g. initials); codes are kept per coder")

@@ -5,13 +5,13 @@ from __future__ import annotations
 import argparse
 import csv
 
-from opencode.analysis.drivers import study as sdr
-from opencode.files.targets import check_targets
+from typing import TYPE_CHECKING
+
 from opencode.commands.common import progress_bar, add_overwrite_option
 from opencode.errors import OpenCodeError
-from opencode.files.cell_guard import guard_row
-from opencode.files.safe_write import atomic_open
-from opencode.study.store import Study
+
+if TYPE_CHECKING:
+    from opencode.analysis.drivers import study as sdr
 
 USAGE_NOTE = """splits (side 1 first, then side 0):
   --split "4,5 vs 1,2"     codes, ranges (4-5) or value labels
@@ -71,6 +71,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run_drivers(args: argparse.Namespace) -> int:
+    from opencode.analysis.drivers import study as sdr
+    from opencode.files.targets import check_targets
+    from opencode.study.store import Study
+
     if args.top < 1:
         raise OpenCodeError(f"--top {args.top}: give at least 1")
     if args.chart and not args.chart.lower().endswith(".png"):
@@ -100,6 +104,9 @@ def run_drivers(args: argparse.Namespace) -> int:
 
 def write_csv(result: sdr.StudyDrivers, tables, path: str):
     """Every term of every comparison, one row each (cells guarded against spreadsheet formulas)."""
+    from opencode.files.cell_guard import guard_row
+    from opencode.files.safe_write import atomic_open
+
     with atomic_open(path, newline="") as handle:
         writer = csv.writer(handle)
         columns = list(tables[0].columns)

@@ -1,4 +1,4 @@
-"""`oecode model STUDY ACTION --question Q`: keyword-rule pre-coding and the machine coder.
+"""`oecode model ACTION STUDY --question Q`: keyword-rule pre-coding and the machine coder.
 
 Machine and rule codes are suggestions until a person accepts them at the desk.
 """
@@ -7,43 +7,94 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.coding import rules
-from opencode.coding import machine_coding
-from opencode.commands.common import progress_line
-from opencode.study.store import Study
-from opencode.files.textout import format_table
+from typing import TYPE_CHECKING
 
-ACTIONS = ("train", "report", "curve", "suggest", "apply", "queue", "rules")
+from opencode.coding.choices import FINAL
+from opencode.commands.common import add_action, add_actions, progress_line
+
+if TYPE_CHECKING:
+    from opencode.study.store import Study
+
 SUGGESTION_NOTE = "machine codes are suggestions: they count only once a person accepts them at the desk"
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    p = subparsers.add_parser("model", help="pre-code by keyword rules; train and use the machine coder")
-    p.add_argument("study")
-    p.add_argument("action", choices=ACTIONS)
-    p.add_argument("--question", required=True)
-    p.add_argument("--coder", help="train: learn from this coder only; apply/rules/suggest/queue: for this coder "
-                   "(default final)")
-    p.add_argument("--threshold", type=float, help="apply: code only verbatims the model is this sure about; "
-                   "curve: show per-code precision and recall at this threshold (default 0.80)")
-    p.add_argument("--target-accuracy", type=float, help="apply: pick the threshold reaching this accuracy")
-    p.add_argument("--kind", choices=("learn", "second-look"), default="learn", help="queue: which queue")
-    p.add_argument("--limit", type=int, default=20, help="suggest/queue: how many to show")
-    p.add_argument("--min-examples", type=int, default=5, help="train: skip codes with fewer coded examples")
-    p.set_defaults(handler=run)
+    verb = subparsers.add_parser("model", help="pre-code by keyword rules; train and use the machine coder",
+                                 description="Pre-code a question by its keyword rules, or train the machine coder "
+                                 "on people's codes and use its suggestions. Machine and rule codes are "
+                                 "suggestions until a person accepts them at the desk.",
+                                 epilog="example:\n  oecode model train survey.study --question why",
+                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+    actions = add_actions(verb)
+    S = "survey.study --question why"
+    p = add_action(actions, "train", "train the machine coder on people's codes (cross-validated per code)",
+                   [f"oecode model train {S}", f"oecode model train {S} --coder ash --min-examples 10"])
+    _question(p)
+    p.add_argument("--coder", help="learn from this coder only (default: every person's codes)")
+    p.add_argument("--min-examples", type=int, default=5, help="skip codes with fewer coded examples (default 5)")
+    p = add_action(actions, "report", "the trained model: precision, recall, F1 and kappa per code",
+                   [f"oecode model report {S}"])
+    _question(p)
+    p = add_action(actions, "curve", "coverage against accuracy: how much the model can code at each threshold",
+                   [f"oecode model curve {S} --threshold 0.9"])
+    _question(p)
+    p.add_argument("--threshold", type=float, help="show per-code precision and recall at this threshold "
+                   "(default 0.80)")
+    p = add_action(actions, "suggest", "the likeliest codes of verbatims a coder has not coded",
+                   [f"oecode model suggest {S} --coder ash --limit 10"])
+    _question(p)
+    _coder(p)
+    _limit(p)
+    p = add_action(actions, "apply", "store the model's suggestions above a threshold",
+                   [f"oecode model apply {S} --threshold 0.9", f"oecode model apply {S} --target-accuracy 0.95"])
+    _question(p)
+    _coder(p)
+    sure = p.add_mutually_exclusive_group()
+    sure.add_argument("--threshold", type=float, help="code only verbatims the model is this sure about")
+    sure.add_argument("--target-accuracy", type=float, help="pick the threshold reaching this accuracy")
+    p = add_action(actions, "queue", "verbatims for people: least sure (learn) or worth a second look",
+                   [f"oecode model queue {S} --kind second-look --limit 5"])
+    _question(p)
+    _coder(p)
+    p.add_argument("--kind", choices=("learn", "second-look"), default="learn",
+                   help="learn: what the model is least sure about (default); second-look: hand codes it "
+                   "strongly disagrees with")
+    _limit(p)
+    p = add_action(actions, "rules", "pre-code verbatims by the frame's keyword rules (as suggestions)",
+                   [f"oecode model rules {S} --coder ash"])
+    _question(p)
+    _coder(p)
+    for p in actions.choices.values():
+        p.set_defaults(handler=run)
+
+
+def _question(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--question", required=True, help="the open question")
+
+
+def _coder(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--coder", help=f"for this coder (default {FINAL})")
+
+
+def _limit(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--limit", type=int, default=20, help="how many to show (default 20)")
 
 
 def run(args: argparse.Namespace) -> int:
+    from opencode.study.store import Study
+
     with Study.open(args.study) as study:
         globals()[f"_{args.action.replace('-', '_')}"](study, args)
     return 0
 
 
-def _coder(args: argparse.Namespace) -> str:
-    return args.coder or machine_coding.FINAL
+def _coder_of(args: argparse.Namespace) -> str:
+    return args.coder or FINAL
 
 
 def _train(study: Study, args: argparse.Namespace) -> None:
+    from opencode.coding import machine_coding
+
     progress_line("analysing verbatims and cross-validating each code")
     trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
     print(f"model {trained.id}: suggests {len(trained.model.classes_)} of {len(trained.model.codes_)} codes")
@@ -51,6 +102,9 @@ def _train(study: Study, args: argparse.Namespace) -> None:
 
 
 def _report(study: Study, args: argparse.Namespace) -> None:
+    from opencode.coding import machine_coding
+    from opencode.files.textout import format_table
+
     trained = machine_coding.load_model(study, args.question)
     for note in trained.notes:
         print(note)
@@ -71,6 +125,9 @@ def _ratio(value: float) -> str:
 
 
 def _curve(study: Study, args: argparse.Namespace) -> None:
+    from opencode.coding import machine_coding
+    from opencode.files.textout import format_table
+
     report = machine_coding.curve(study, args.question, code_threshold=0.8 if args.threshold is None
                                   else args.threshold)
     print("semi-automatic coding: the model codes a verbatim only when sure of every code it can suggest; "
@@ -86,31 +143,39 @@ def _curve(study: Study, args: argparse.Namespace) -> None:
                        align="rlrrrrrl", note="in code-frame order"))
     for note in report.notes:
         print(f"- {note}")
-    print("pick a threshold whose accuracy you accept; then: oecode model STUDY apply --question Q --threshold T")
+    print("pick a threshold whose accuracy you accept; then: oecode model apply STUDY --question Q --threshold T")
 
 
 def _suggest(study: Study, args: argparse.Namespace) -> None:
-    proba = machine_coding.suggest(study, args.question, coder=_coder(args))
+    from opencode.coding import machine_coding
+    from opencode.files.textout import format_table
+
+    proba = machine_coding.suggest(study, args.question, coder=_coder_of(args))
     rows = []
     for verbatim_id, values in proba.head(args.limit).iterrows():
         best = values.sort_values(ascending=False).head(3)
         rows.append([int(verbatim_id), "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
-    print(f"{len(proba)} verbatims not yet coded by {_coder(args)}; first {len(rows)}:")
+    print(f"{len(proba)} verbatims not yet coded by {_coder_of(args)}; first {len(rows)}:")
     print(format_table(["verbatim", "likeliest codes (probability)"], rows, note="in verbatim order"))
     print(SUGGESTION_NOTE)
 
 
 def _apply(study: Study, args: argparse.Namespace) -> None:
-    report = machine_coding.apply_machine(study, args.question, args.threshold, args.target_accuracy, coder=_coder(args))
+    from opencode.coding import machine_coding
+
+    report = machine_coding.apply_machine(study, args.question, args.threshold, args.target_accuracy, coder=_coder_of(args))
     print(f"threshold {report.threshold:.2f}: {report.assignments} machine codes on {report.verbatims} of "
-          f"{report.candidates} verbatims not yet coded by {_coder(args)} ({report.replaced} earlier machine "
+          f"{report.candidates} verbatims not yet coded by {_coder_of(args)} ({report.replaced} earlier machine "
           "suggestions replaced)")
     print(SUGGESTION_NOTE)
 
 
 def _queue(study: Study, args: argparse.Namespace) -> None:
+    from opencode.coding import machine_coding
+    from opencode.files.textout import format_table
+
     if args.kind == "learn":
-        items = machine_coding.learning_queue(study, args.question, _coder(args), n=args.limit)
+        items = machine_coding.learning_queue(study, args.question, _coder_of(args), n=args.limit)
         print("code these next (the model is least sure about them):")
         print(format_table(["verbatim", "doubt", "code", "probability", "text"],
                            [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
@@ -124,6 +189,9 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
 
 
 def _rules(study: Study, args: argparse.Namespace) -> None:
-    written = rules.apply_rules(study, args.question, coder=_coder(args))
+    from opencode.coding import rules
+    from opencode.files.textout import format_table
+
+    written = rules.apply_rules(study, args.question, coder=_coder_of(args))
     print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())], note="by code"))
-    print(f"rule codes are suggestions for {_coder(args)}: they count only once a person accepts them at the desk")
+    print(f"rule codes are suggestions for {_coder_of(args)}: they count only once a person accepts them at the desk")

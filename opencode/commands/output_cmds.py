@@ -6,16 +6,11 @@ import argparse
 import sys
 from pathlib import Path
 
-from opencode.analysis.tables import coded_data
-from opencode.analysis.tables.study import TABLE_SUFFIXES, question_tables, write_tables
-from opencode.analysis.tables.output import format_table
-from opencode.coding.assignments import FINAL
+from opencode.analysis.choices import TABLE_SUFFIXES
+from opencode.coding.choices import FINAL
 from opencode.errors import OpenCodeError
-from opencode.export import triple_s
-from opencode.files.safe_write import check_writable_target
-from opencode.export.study_export import EXPORT_FORMATS, export_study, export_targets
-from opencode.study.store import Study
-from opencode.commands.common import add_overwrite_option
+from opencode.export.choices import EXPORT_FORMATS, SSS_FORMATS, SSS_MULTIPLE_LAYOUTS
+from opencode.commands.common import add_overwrite_option, add_verb
 RAW_REMINDER = ("reminder: verbatims can identify respondents; your organisation's data-protection rules come "
                 "first: share this file only as they allow")
 MASKED_REMINDER = ("verbatims masked: e-mail addresses, phone numbers and web addresses replaced; names and other "
@@ -23,7 +18,9 @@ MASKED_REMINDER = ("verbatims masked: e-mail addresses, phone numbers and web ad
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    tables = subparsers.add_parser("tables", help="code frequencies, or codes by banner variables with tests")
+    tables = add_verb(subparsers, "tables", "code frequencies, or codes by banner variables with tests", [
+        "oecode tables survey.study --question why --banner support children",
+        "oecode tables survey.study --question why --ci --out tables.xlsx"])
     tables.add_argument("study")
     tables.add_argument("--question", required=True, help="the open question")
     tables.add_argument("--banner", nargs="+", action="extend", default=[], metavar="VAR",
@@ -38,7 +35,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_overwrite_option(tables)
     tables.set_defaults(handler=run_tables)
 
-    export = subparsers.add_parser("export", help="coded data as CSV, XLSX, SPSS, Stata or Triple-S")
+    export = add_verb(subparsers, "export", "coded data as CSV, XLSX, SPSS, Stata or Triple-S", [
+        "oecode export survey.study --out why.sav --question why --all-closed",
+        "oecode export survey.study --format sss --out why.sss --verbatims masked"])
     export.add_argument("study")
     export.add_argument("--format", dest="fmt", help=f"one of {', '.join(EXPORT_FORMATS)} (default: from --out)")
     export.add_argument("--out", required=True, help="the file to write (sss: the metadata .sss beside its data)")
@@ -52,13 +51,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     closed = export.add_mutually_exclusive_group()
     closed.add_argument("--closed", nargs="+", action="extend", metavar="VAR", help="closed-ended variables to carry")
     closed.add_argument("--all-closed", action="store_true", help="carry every single-choice and numeric variable")
-    export.add_argument("--sss-data", choices=triple_s.FORMATS, default="fixed", help="Triple-S data file layout")
-    export.add_argument("--sss-multiple", choices=triple_s.MULTIPLE_LAYOUTS, default="bitstring",
+    export.add_argument("--sss-data", choices=SSS_FORMATS, default="fixed", help="Triple-S data file layout")
+    export.add_argument("--sss-multiple", choices=SSS_MULTIPLE_LAYOUTS, default="bitstring",
                         help="Triple-S multiple-response layout")
     add_overwrite_option(export)
     export.set_defaults(handler=run_export)
 
-    report = subparsers.add_parser("report", help="one self-contained HTML report: frames, frequencies, charts, tables")
+    report = add_verb(subparsers, "report", "one self-contained HTML report: frames, frequencies, charts, tables",
+                      ["oecode report survey.study --out report.html --banner support --coders ash,bryn"])
     report.add_argument("study")
     report.add_argument("--out", required=True, help="the report file (.html)")
     report.add_argument("--question", nargs="+", action="extend", metavar="Q",
@@ -99,6 +99,11 @@ def _level(percent: float | None, option: str) -> float | None:
 
 
 def run_tables(args: argparse.Namespace) -> int:
+    from opencode.analysis.tables.output import format_table
+    from opencode.analysis.tables.study import question_tables, write_tables
+    from opencode.files.safe_write import check_writable_target
+    from opencode.study.store import Study
+
     if args.out and Path(args.out).suffix.lower() not in TABLE_SUFFIXES:
         raise OpenCodeError(f"{args.out}: tables are written as {', '.join(TABLE_SUFFIXES)}")
     if args.out:
@@ -116,6 +121,9 @@ def run_tables(args: argparse.Namespace) -> int:
 
 
 def run_export(args: argparse.Namespace) -> int:
+    from opencode.export.study_export import export_study, export_targets
+    from opencode.study.store import Study
+
     export_targets(args.out, args.fmt, args.sss_data)
     closed = None if args.all_closed else (args.closed or [])
     with Study.open(args.study) as study:
@@ -137,7 +145,10 @@ def run_export(args: argparse.Namespace) -> int:
 def run_report(args: argparse.Namespace) -> int:
     from opencode.analysis.agreement.study import question_agreement
     from opencode.coding.reliability import parse_coders
+    from opencode.analysis.tables import coded_data
     from opencode.export.report import build_report
+    from opencode.files.safe_write import check_writable_target
+    from opencode.study.store import Study
 
     check_writable_target(args.out)
     notes: list[str] = []

@@ -1,47 +1,64 @@
-"""`oecode sample` (reliability samples for blind double coding) and `oecode agree` (agreement, adjudication)."""
+"""`oecode sample ACTION` (reliability samples for blind double coding) and `oecode agree` (agreement, adjudication)."""
 
 from __future__ import annotations
 
 import argparse
 import html
+from typing import TYPE_CHECKING
 
-from opencode.analysis.agreement.report import (format_agreement_html, format_agreement_text,
-                                               format_scale_agreement_text, write_agreement_csv,
-                                               write_scale_agreement_csv)
-from opencode.analysis.agreement.scale import ScaleAgreementResult
-from opencode.analysis.agreement.study import LEVELS, question_agreement, remember_level
-from opencode.coding import adjudication, reliability
+from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
+from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
-from opencode.files.safe_write import atomic_open
-from opencode.study.store import Study
-from opencode.files.targets import check_target
-from opencode.commands.common import add_overwrite_option
+from opencode.commands.common import add_action, add_actions, add_overwrite_option, add_verb
 
-SAMPLE_ACTIONS = ("draw", "assign", "status", "list")
+if TYPE_CHECKING:
+    from opencode.study.store import Study
+
 ADJUDICATE = ("agreed", "take", "union", "set", "undo")
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    s = subparsers.add_parser("sample", help="reliability samples: draw verbatims for blind double coding, "
-                              "assign them to coders, follow progress")
-    s.add_argument("study")
-    s.add_argument("action", choices=SAMPLE_ACTIONS)
-    s.add_argument("--question", required=True, help="the open question")
-    s.add_argument("--name", help="the sample's name (draw, assign, status)")
+    verb = subparsers.add_parser("sample", help="reliability samples: draw verbatims for blind double coding, "
+                                 "assign them to coders, follow progress",
+                                 description="Reliability samples: draw verbatims for blind double coding, "
+                                 "assign them to coders, follow their progress.",
+                                 epilog="example:\n  oecode sample draw survey.study --question why --name check "
+                                 "--n 150", formatter_class=argparse.RawDescriptionHelpFormatter)
+    actions = add_actions(verb)
+    S = "survey.study --question why"
+    s = add_action(actions, "draw", "draw a sample of verbatims (stratified on request)",
+                   [f"oecode sample draw {S} --name check --n 150 --strata support",
+                    f"oecode sample draw {S} --name check --percent 10"])
+    _question(s)
+    _name(s)
     size = s.add_mutually_exclusive_group()
-    size.add_argument("--n", type=int, help="draw: how many verbatims")
-    size.add_argument("--percent", type=float, help="draw: what percentage of the verbatims")
-    s.add_argument("--strata", help="draw: a closed-ended variable to stratify by (proportional allocation)")
-    s.add_argument("--seed", type=int, default=0, help="draw: the random seed (default 0; same seed, same sample)")
-    s.add_argument("--include-nonanswers", action="store_true", help="draw: also draw non-answers")
-    s.add_argument("--coders", help="assign: the coders, comma-separated (e.g. ash,bryn)")
-    s.add_argument("--actor", default="oecode", help="who does this (for the audit trail)")
-    s.set_defaults(handler=run_sample)
+    size.add_argument("--n", type=int, help="how many verbatims")
+    size.add_argument("--percent", type=float, help="what percentage of the verbatims")
+    s.add_argument("--strata", help="a closed-ended variable to stratify by (proportional allocation)")
+    s.add_argument("--seed", type=int, default=0, help="the random seed (default 0; same seed, same sample)")
+    s.add_argument("--include-nonanswers", action="store_true", help="also draw non-answers")
+    _actor(s)
+    s = add_action(actions, "assign", "give a sample to coders, who then code it blind",
+                   [f"oecode sample assign {S} --name check --coders ash,bryn"])
+    _question(s)
+    _name(s)
+    s.add_argument("--coders", help="the coders, comma-separated (e.g. ash,bryn; needed)")
+    _actor(s)
+    s = add_action(actions, "status", "how far each coder is with a sample",
+                   [f"oecode sample status {S} --name check"])
+    _question(s)
+    _name(s)
+    s = add_action(actions, "list", "the samples of a question", [f"oecode sample list {S}"])
+    _question(s)
+    for s in actions.choices.values():
+        s.set_defaults(handler=run_sample)
 
-    a = subparsers.add_parser("agree", help="agreement between coders (kappa, alpha, AC1) and adjudication into final")
+    a = add_verb(subparsers, "agree", "agreement between coders (kappa, alpha, AC1) and adjudication into final", [
+        "oecode agree survey.study --question why --coders ash,bryn --differences 5",
+        "oecode agree survey.study --question why --coders ash,bryn --adjudicate agreed"])
     a.add_argument("study")
     a.add_argument("--question", required=True, help="the open question")
-    a.add_argument("--coders", required=True, help=f"coders compared, comma-separated; {reliability.MACHINE!r} "
+    a.add_argument("--coders", required=True, help=f"coders compared, comma-separated; {MACHINE!r} "
                    "stands for the machine coder's suggestions")
     a.add_argument("--sample", help="only the verbatims of this reliability sample")
     a.add_argument("--resamples", type=int, default=1000, help="bootstrap resamples for intervals (0: none)")
@@ -67,6 +84,18 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.set_defaults(handler=run_agree)
 
 
+def _question(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--question", required=True, help="the open question")
+
+
+def _name(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--name", help="the sample's name (needed)")
+
+
+def _actor(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--actor", default="oecode", help="who does this (for the audit trail)")
+
+
 def _need(args: argparse.Namespace, verb: str, *names: str) -> None:
     for name in names:
         if getattr(args, name) is None:
@@ -74,6 +103,9 @@ def _need(args: argparse.Namespace, verb: str, *names: str) -> None:
 
 
 def run_sample(args: argparse.Namespace) -> int:
+    from opencode.coding import reliability
+    from opencode.study.store import Study
+
     with Study.open(args.study) as study:
         if args.action == "list":
             found = reliability.list_samples(study, args.question)
@@ -99,6 +131,8 @@ def run_sample(args: argparse.Namespace) -> int:
 
 
 def _adjudicate(study: Study, args: argparse.Namespace) -> None:
+    from opencode.coding import adjudication, reliability
+
     verb = f"agree --adjudicate {args.adjudicate}"
     if args.adjudicate == "agreed":
         count = adjudication.accept_agreed(study, args.question, args.coders, args.sample, actor=args.actor)
@@ -136,12 +170,23 @@ def _scale_codes(text: str | None) -> list[int] | None:
 
 
 def _write_html(path: str, fragment: str, title: str) -> None:
+    from opencode.files.safe_write import atomic_open
+
     with atomic_open(path, "w") as handle:
         handle.write(f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>{html.escape(title)}'
                      f"</title></head><body>\n{fragment}\n</body></html>\n")
 
 
 def run_agree(args: argparse.Namespace) -> int:
+    from opencode.analysis.agreement.report import (format_agreement_html, format_agreement_text,
+                                                   format_scale_agreement_text, write_agreement_csv,
+                                                   write_scale_agreement_csv)
+    from opencode.analysis.agreement.scale import ScaleAgreementResult
+    from opencode.analysis.agreement.study import question_agreement, remember_level
+    from opencode.coding import adjudication, reliability
+    from opencode.files.targets import check_target
+    from opencode.study.store import Study
+
     if args.csv:
         check_target(args.csv)  # before the slow work
     with Study.open(args.study) as study:

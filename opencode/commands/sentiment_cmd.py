@@ -1,4 +1,4 @@
-"""`oecode sentiment`: score a question's verbatims (VADER) into closed variables, and the mix per code."""
+"""`oecode sentiment score|mix`: score a question's verbatims (VADER) into closed variables, and the mix per code."""
 
 from __future__ import annotations
 
@@ -6,37 +6,44 @@ import argparse
 import sys
 from pathlib import Path
 
+from opencode.commands.common import add_action, add_actions
 from opencode.errors import OpenCodeError
-from opencode.files.safe_write import check_writable_target
-from opencode.study.store import Study
 
-ACTIONS = ("score", "mix")
 MIX_SUFFIXES = (".csv", ".xlsx", ".html")
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    s = subparsers.add_parser("sentiment", help="sentiment of verbatims (VADER, English): score them into closed "
-                              "variables, or show the negative / neutral / positive mix within each code")
-    s.add_argument("study")
-    s.add_argument("action", choices=ACTIONS, help="score: score and store <question>_sentiment and "
-                   "<question>_sentiment_score; mix: row %% per code and net")
+    verb = subparsers.add_parser("sentiment", help="sentiment of verbatims (VADER, English): score them into closed "
+                                 "variables, or show the negative / neutral / positive mix within each code",
+                                 description="Sentiment of a question's verbatims (VADER, English): score them "
+                                 "into closed variables, or show the negative / neutral / positive mix within each "
+                                 "code.", epilog="example:\n  oecode sentiment score survey.study --question why",
+                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+    actions = add_actions(verb)
+    s = add_action(actions, "score", "score and store <question>_sentiment and <question>_sentiment_score",
+                   ["oecode sentiment score survey.study --question why --cut 0.1"], handler=run_sentiment)
     s.add_argument("--question", required=True, help="the open question")
-    s.add_argument("--cut", type=float, default=0.05, help="score: compound score at or beyond +-CUT is positive / "
+    s.add_argument("--cut", type=float, default=0.05, help="compound score at or beyond +-CUT is positive / "
                    "negative (default 0.05, the package's documented threshold)")
-    s.add_argument("--whole", action="store_true", help="score: score each verbatim as one text instead of "
+    s.add_argument("--whole", action="store_true", help="score each verbatim as one text instead of "
                    "sentence by sentence")
-    s.add_argument("--coder", default="final", help="mix: whose codes (default 'final')")
-    s.add_argument("--with-suggestions", action="store_true", help="mix: count machine and rule suggestions too")
-    weights = s.add_mutually_exclusive_group()
-    weights.add_argument("--weight", help="mix: the weight variable (default: the study's weight, if any)")
-    weights.add_argument("--unweighted", action="store_true", help="mix: ignore the survey weight")
-    s.add_argument("--out", help="mix: also write the table (.csv, .xlsx or .html)")
-    s.add_argument("--actor", default="oecode", help="score: who does this (for the audit trail)")
-    s.set_defaults(handler=run_sentiment)
+    s.add_argument("--actor", default="oecode", help="who does this (for the audit trail)")
+    m = add_action(actions, "mix", "row %% negative / neutral / positive per code and net",
+                   ["oecode sentiment mix survey.study --question why --with-suggestions --out mix.xlsx"],
+                   handler=run_sentiment)
+    m.add_argument("--question", required=True, help="the open question")
+    m.add_argument("--coder", default="final", help="whose codes (default 'final')")
+    m.add_argument("--with-suggestions", action="store_true", help="count machine and rule suggestions too")
+    weights = m.add_mutually_exclusive_group()
+    weights.add_argument("--weight", help="the weight variable (default: the study's weight, if any)")
+    weights.add_argument("--unweighted", action="store_true", help="ignore the survey weight")
+    m.add_argument("--out", help="also write the table (.csv, .xlsx or .html)")
 
 
 def run_sentiment(args: argparse.Namespace) -> int:
     from opencode.analysis.sentiment import study as sentiment
+    from opencode.files.safe_write import check_writable_target
+    from opencode.study.store import Study
 
     if args.action == "score":
         with Study.open(args.study) as study:

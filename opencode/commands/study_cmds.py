@@ -4,14 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.commands.common import parse_number_list, parse_pairs, progress_line
-from opencode.ingest.importer import ImportOptions, import_survey
-from opencode.study.store import Study
-from opencode.study.summary import format_summary, summarise
+from opencode.commands.common import add_verb, parse_number_list, parse_pairs, progress_line
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    new = subparsers.add_parser("new", help="create a study from a survey file, or merge a later wave into one")
+    new = add_verb(subparsers, "new", "create a study from a survey file, or merge a later wave into one", [
+        "oecode new survey.study --from survey.sav --id resp_id --question q12_why --question q13_improve",
+        "oecode new survey.study --from wave2.csv --id resp_id --question q12_why --missing support=9"])
     new.add_argument("study", help="the study file (NAME.study); merged into if it exists")
     new.add_argument("--from", dest="source", required=True, help="CSV, TSV, XLSX, SPSS .sav, Stata .dta or Parquet")
     new.add_argument("--id", dest="id_column", required=True, help="the respondent id column")
@@ -30,12 +29,15 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     new.add_argument("--missing", action="append", metavar="COL=9,99", help="missing-value codes of a column")
     new.set_defaults(handler=run_new)
 
-    info = subparsers.add_parser("info", help="questions, verbatim counts and closed-ended variables of a study")
+    info = add_verb(subparsers, "info", "questions, verbatim counts and closed-ended variables of a study",
+                    ["oecode info survey.study"])
     info.add_argument("study")
     info.set_defaults(handler=run_info)
 
 
 def run_new(args: argparse.Namespace) -> int:
+    from opencode.ingest.importer import ImportOptions, import_survey
+
     options = ImportOptions(
         id_column=args.id_column, questions=args.question, sheet=args.sheet, encoding=args.encoding,
         delimiter=args.delimiter, labels_file=args.labels, kinds=parse_pairs(args.kind, "--kind"),
@@ -58,6 +60,9 @@ def run_new(args: argparse.Namespace) -> int:
 
 
 def run_info(args: argparse.Namespace) -> int:
+    from opencode.study.store import Study
+    from opencode.study.summary import format_summary, summarise
+
     with Study.open(args.study) as study:
         print(format_summary(summarise(study)))
     return 0

@@ -7,6 +7,7 @@ import argparse
 import getpass
 import os
 
+from opencode.commands.common import add_action, add_verb
 from opencode.errors import BadInput
 from opencode.study.address import is_server_address, parse_address
 
@@ -14,21 +15,25 @@ ADDRESS_HELP = "a server study: postgresql://USER@HOST/DATABASE?study=NAME, or '
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    push = subparsers.add_parser("push", help="copy a study file into a PostgreSQL server (one schema per study)")
+    push = add_verb(subparsers, "push", "copy a study file into a PostgreSQL server (one schema per study)",
+                    ["oecode push wrenfield.study \"'service=oecode-local study=wrenfield'\""])
     push.add_argument("study", help="the study file (NAME.study)")
     push.add_argument("address", help=ADDRESS_HELP)
     push.add_argument("--replace", action="store_true", help="replace a study of the same name on the server")
     push.set_defaults(handler=run_push)
 
-    pull = subparsers.add_parser("pull", help="copy a study from a PostgreSQL server into a study file")
+    pull = add_verb(subparsers, "pull", "copy a study from a PostgreSQL server into a study file",
+                    ["oecode pull \"'service=oecode-local study=wrenfield'\" copy.study"])
     pull.add_argument("address", help=ADDRESS_HELP)
     pull.add_argument("file", help="the study file to write (NAME.study)")
     pull.add_argument("--replace", action="store_true", help="overwrite the file if it exists")
     pull.set_defaults(handler=run_pull)
 
-    team = subparsers.add_parser("team", help="coders and leads of a server study; a local server for trying it")
+    team = add_verb(subparsers, "team", "coders and leads of a server study; a local server for trying it",
+                    ["oecode team server team-pg"])
     actions = team.add_subparsers(dest="action", metavar="ACTION", required=True)
-    grant = actions.add_parser("grant", help="let people code (--coder) or lead (--lead) a server study")
+    grant = add_action(actions, "grant", "let people code (--coder) or lead (--lead) a server study",
+                       ["oecode team grant \"'service=oecode-local study=wrenfield'\" --coder kit --lead ann --ask-password"], study=False)
     grant.add_argument("address", help=ADDRESS_HELP)
     grant.add_argument("--coder", action="append", default=[], help="a coder's name = database user (repeat)")
     grant.add_argument("--lead", action="append", default=[], help="a lead's name = database user (repeat)")
@@ -38,29 +43,34 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     secret.add_argument("--password-env", metavar="VAR",
                         help="set the password from this environment variable (for scripts)")
     grant.set_defaults(handler=run_grant)
-    revoke = actions.add_parser("revoke", help="take a member out of a server study's team (their login stays)")
+    revoke = add_action(actions, "revoke", "take a member out of a server study's team (their login stays)",
+                        ["oecode team revoke \"'service=oecode-local study=wrenfield'\" kit"], study=False)
     revoke.add_argument("address", help=ADDRESS_HELP)
     revoke.add_argument("name")
     revoke.set_defaults(handler=run_revoke)
-    members = actions.add_parser("list", help="the leads and coders of a server study")
+    members = add_action(actions, "list", "the leads and coders of a server study",
+                         ["oecode team list \"'service=oecode-local study=wrenfield'\""], study=False)
     members.add_argument("address", help=ADDRESS_HELP)
     members.set_defaults(handler=run_list)
-    server = actions.add_parser("server", help="start a throwaway PostgreSQL server in a folder, for trying "
-                                "team work on one machine (not for real data)")
+    server = add_action(actions, "server", "start a throwaway PostgreSQL server in a folder, for trying team work "
+                        "on one machine (not for real data)",
+                        ["oecode team server team-pg", "oecode team server team-pg --stop"], study=False)
     server.add_argument("folder")
     server.add_argument("--port", type=int, help="TCP port on 127.0.0.1 (default: a free one)")
     server.add_argument("--run-as", metavar="USER", help="start it as this account (needed when you are root)")
     server.add_argument("--stop", action="store_true", help="stop the server started in the folder")
     server.set_defaults(handler=run_server)
 
-    handout = subparsers.add_parser("handout", help="give a coder a copy of the study to code without a server")
+    handout = add_verb(subparsers, "handout", "give a coder a copy of the study to code without a server",
+                       ["oecode handout wrenfield.study --coder kit --out kit.study"])
     handout.add_argument("study", help="the study (file or server address)")
     handout.add_argument("--coder", required=True, help="the coder the copy is for")
     handout.add_argument("--out", required=True, help="the copy to write (NAME.study)")
     handout.add_argument("--replace", action="store_true", help="overwrite the copy if it exists")
     handout.set_defaults(handler=run_handout)
 
-    merge = subparsers.add_parser("merge", help="bring a coder's copy (from handout) back into the study")
+    merge = add_verb(subparsers, "merge", "bring a coder's copy (from handout) back into the study",
+                     ["oecode merge wrenfield.study kit.study"])
     merge.add_argument("study", help="the study (file or server address)")
     merge.add_argument("copy", help="the coder's copy (NAME.study)")
     merge.set_defaults(handler=run_merge)

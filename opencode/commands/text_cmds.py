@@ -1,36 +1,35 @@
-"""`oecode words | kwic | phrases | lexicon`: a question's terms, keyword in context, phrases and lexicon."""
+"""`oecode words | kwic | phrases ACTION | lexicon ACTION`: a question's terms, keyword in context, phrases and lexicon."""
 
 from __future__ import annotations
 
 import argparse
 import sys
 
-import numpy as np
+from typing import TYPE_CHECKING
 
-from opencode.commands.common import progress_bar, add_overwrite_option
+from opencode.commands.common import add_action, add_actions, add_overwrite_option, add_verb, progress_bar
 from opencode.errors import OpenCodeError
-from opencode.study.store import Study
-from opencode.text import study_text as st
-from opencode.text.spelling_variants import format_variants, suggest_variants
-from opencode.text.phrases import format_phrase_suggestions
-from opencode.text.words import format_top_terms, top_terms
+
+if TYPE_CHECKING:
+    from opencode.study.store import Study
+    from opencode.text import study_text as st
 
 SMALL_BASE = 30  # common practice (no published source): read percentages on fewer than 30 with care
 _SHOW_IDS = 20
-PHRASE_ACTIONS = ("suggest", "add", "accept", "remove")
-LEXICON_ACTIONS = ("show", "stop-add", "stop-remove", "merge", "unmerge", "stem", "language", "exception",
-                   "numbers", "negations", "variants", "import", "export")
+S = "survey.study --question why"
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    words = subparsers.add_parser("words", help="a question's top terms with counts, %% of verbatims and word forms")
+    words = add_verb(subparsers, "words", "a question's top terms with counts, %% of verbatims and word forms",
+                     [f"oecode words {S} --top 15", f"oecode words {S} --top 10 --where support=1"])
     _common(words)
     words.add_argument("--top", type=int, default=30, help="how many terms (default 30)")
     words.add_argument("--where", metavar="VAR=CODE", action="append", default=[],
                        help="only respondents with this code or value label (repeat: all must hold)")
     words.set_defaults(handler=run_words)
 
-    kw = subparsers.add_parser("kwic", help="every occurrence of a term in its verbatims, aligned")
+    kw = add_verb(subparsers, "kwic", "every occurrence of a term in its verbatims, aligned",
+                  ["oecode kwic survey.study safe --question why --show support age_band --limit 8"])
     kw.add_argument("study")
     kw.add_argument("term", help="a term, or any word form of it")
     kw.add_argument("--question", required=True, help="the open question")
@@ -40,30 +39,90 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                     help="closed-ended variables to show beside each line (by value label)")
     kw.set_defaults(handler=run_kwic)
 
-    ph = subparsers.add_parser("phrases", help="suggest, add, accept or remove multi-word phrases")
-    _common(ph)
-    ph.add_argument("action", choices=PHRASE_ACTIONS)
-    ph.add_argument("values", nargs="*", help="add/remove: phrases in quotes; accept: ranks from the last list")
-    ph.add_argument("--min-count", type=int, default=5, help="suggest: pairs seen at least this often (default 5)")
-    ph.add_argument("--top", type=int, default=30, help="suggest: how many suggestions (default 30)")
-    ph.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
-    ph.set_defaults(handler=run_phrases)
+    ph = subparsers.add_parser("phrases", help="suggest, add, accept or remove multi-word phrases",
+                               description="Multi-word phrases (one term each): suggestions by Dunning's "
+                               "log-likelihood, and the phrases of a question's lexicon.",
+                               epilog=f"example:\n  oecode phrases suggest {S} --top 10",
+                               formatter_class=argparse.RawDescriptionHelpFormatter)
+    actions = add_actions(ph)
+    p = add_action(actions, "suggest", "word pairs seen together more than chance (log-likelihood, PMI)",
+                   [f"oecode phrases suggest {S} --top 10 --min-count 3"])
+    _question(p)
+    p.add_argument("--min-count", type=int, default=5, help="pairs seen at least this often (default 5)")
+    p.add_argument("--top", type=int, default=30, help="how many suggestions (default 30)")
+    p = add_action(actions, "accept", "add suggestions by their rank in the last list",
+                   [f"oecode phrases accept survey.study 1 3 --question why"], usage="RANK [RANK ...]")
+    p.add_argument("values", nargs="+", metavar="RANK", help="ranks from the last suggestion list")
+    _question(p)
+    _actor(p)
+    for name, what in (("add", "add phrases to the question's lexicon"),
+                       ("remove", "remove phrases from the question's lexicon")):
+        p = add_action(actions, name, what, [f'oecode phrases {name} survey.study "opening hours" --question why'],
+                       usage="PHRASE [PHRASE ...]")
+        p.add_argument("values", nargs="+", metavar="PHRASE", help="a phrase (in quotes)")
+        _question(p)
+        _actor(p)
+    for p in actions.choices.values():
+        p.set_defaults(handler=run_phrases)
 
     lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language; "
-                                "import or export it")
-    lex.add_argument("study")
-    lex.add_argument("action", choices=LEXICON_ACTIONS)
-    lex.add_argument("values", nargs="*", help="the words, merge ('a,b->target'), on/off, language or file; "
-                     "numbers: placeholder (every number one term, shown as #number), keep (each number its own "
-                     "term) or drop; negations: keep, join (\"no damage\" becomes one term) or drop")
-    where = lex.add_mutually_exclusive_group(required=True)
-    where.add_argument("--question", help="the open question whose lexicon to use")
-    where.add_argument("--study-default", action="store_true",
-                       help="the study's default lexicon (used by questions without their own)")
-    lex.add_argument("--remove", action="store_true", help="exception: drop the word's stem exception")
-    lex.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
-    add_overwrite_option(lex)
-    lex.set_defaults(handler=run_lexicon)
+                                "import or export it",
+                                description="A question's lexicon (or the study's default one): stop words, "
+                                "merges, stemming, language, stem exceptions, numbers, negations.",
+                                epilog=f"example:\n  oecode lexicon show {S}",
+                                formatter_class=argparse.RawDescriptionHelpFormatter)
+    actions = add_actions(lex)
+    for name, what, usage, metavar, nargs, example in LEXICON_ACTIONS:
+        p = add_action(actions, name, what, [f"oecode lexicon {name} survey.study {example}".replace("  ", " ")
+                                             + " --question why"], usage=usage)
+        if metavar:
+            p.add_argument("values", nargs=nargs, metavar=metavar, help=LEXICON_VALUES.get(name, "the words"))
+        else:
+            p.set_defaults(values=[])
+        where = p.add_mutually_exclusive_group(required=True)
+        where.add_argument("--question", help="the open question whose lexicon to use")
+        where.add_argument("--study-default", action="store_true",
+                           help="the study's default lexicon (used by questions without their own)")
+        if name == "exception":
+            p.add_argument("--remove", action="store_true", help="drop the word's stem exception")
+        if name not in ("show", "variants", "export"):
+            _actor(p)
+        if name == "export":
+            add_overwrite_option(p)
+        p.set_defaults(handler=run_lexicon, remove=False)
+
+
+#: lexicon actions: name, help, usage after STUDY, values metavar, nargs, example values
+LEXICON_ACTIONS = (
+    ("show", "the lexicon as text", "", None, None, ""),
+    ("stop-add", "add stop words (left out of every term list)", "WORD [WORD ...]", "WORD", "+", "open late"),
+    ("stop-remove", "take words off the stop list", "WORD [WORD ...]", "WORD", "+", "late"),
+    ("merge", "count several words as one term", "'A,B->TERM'", "MERGE", 1, "'libary,liberry->library'"),
+    ("unmerge", "undo merges", "TERM [TERM ...]", "TERM", "+", "library"),
+    ("stem", "stemming on or off (or the stemmer)", "on|off|snowball|porter", "STEMMER", 1, "off"),
+    ("language", "the language of stop words and stemming", "LANGUAGE", "LANGUAGE", 1, "english"),
+    ("exception", "keep a word from stemming, or give its stem", "WORD[=STEM]", "WORD", 1, "news=news"),
+    ("numbers", "how numbers count", "placeholder|keep|drop", "MODE", 1, "keep"),
+    ("negations", "how negation words count", "keep|join|drop", "MODE", 1, "join"),
+    ("variants", "likely spelling variants of the question's terms, to merge", "", None, None, ""),
+    ("import", "replace the lexicon by a lexicon file", "FILE", "FILE", 1, "lexicon.txt"),
+    ("export", "write the lexicon to a file", "FILE", "FILE", 1, "lexicon.txt"),
+)
+LEXICON_VALUES = {
+    "merge": "the merge: 'a,b->target'", "unmerge": "the merged terms (or 'a,b->target' merges) to undo",
+    "stem": "on, off, snowball or porter", "language": "the language name (english, french, ...)",
+    "exception": "WORD (never stemmed) or WORD=STEM",
+    "numbers": "placeholder (every number one term, shown as #number), keep (each number its own term) or drop",
+    "negations": "keep, join (\"no damage\" becomes one term) or drop", "import": "the lexicon file",
+    "export": "the file to write"}
+
+
+def _question(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--question", required=True, help="the open question")
+
+
+def _actor(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
 
 
 def _common(parser: argparse.ArgumentParser) -> None:
@@ -80,6 +139,8 @@ def _ids(ids: list) -> str:
 
 
 def _matrix(study: Study, question: str) -> tuple:
+    from opencode.text import study_text as st
+
     tm, frame = st.term_matrix(study, question, progress=progress_bar("analysing verbatims"))
     for message in tm.warnings:
         _warn(message)
@@ -88,6 +149,12 @@ def _matrix(study: Study, question: str) -> tuple:
 
 # -- words ----------------------------------------------------------------------------------------------------------
 def run_words(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from opencode.study.store import Study
+    from opencode.text import study_text as st
+    from opencode.text.words import format_top_terms, top_terms
+
     if args.top < 1:
         raise OpenCodeError(f"--top {args.top}: give a number of terms of 1 or more")
     with Study.open(args.study) as study:
@@ -114,6 +181,8 @@ def run_words(args: argparse.Namespace) -> int:
 
 # -- kwic -------------------------------------------------------------------------------------------------------------
 def run_kwic(args: argparse.Namespace) -> int:
+    from opencode.study.store import Study
+    from opencode.text import study_text as st
     from opencode.text.kwic import kwic_summary
 
     if args.width < 1 or args.limit < 1:
@@ -130,6 +199,10 @@ def run_kwic(args: argparse.Namespace) -> int:
 
 # -- phrases ------------------------------------------------------------------------------------------------------------
 def run_phrases(args: argparse.Namespace) -> int:
+    from opencode.study.store import Study
+    from opencode.text import study_text as st
+    from opencode.text.phrases import format_phrase_suggestions
+
     with Study.open(args.study) as study:
         q = args.question
         if args.action == "suggest":
@@ -142,7 +215,7 @@ def run_phrases(args: argparse.Namespace) -> int:
             print("  #  " + table[0] + "\n" + "---  " + table[1])
             for rank, line in enumerate(table[2:], start=1):
                 print(f"{rank:>3}  {line}")
-            print(f"accept with: oecode phrases {args.study} accept RANK [RANK ...] --question {q}")
+            print(f"accept with: oecode phrases accept {args.study} RANK [RANK ...] --question {q}")
             return 0
         if args.action == "accept":
             try:
@@ -188,6 +261,10 @@ def _one(args: argparse.Namespace, what: str) -> str:
 
 
 def run_lexicon(args: argparse.Namespace) -> int:
+    from opencode.study.store import Study
+    from opencode.text import study_text as st
+    from opencode.text.spelling_variants import format_variants, suggest_variants
+
     q = None if args.study_default else args.question
     who = "the study default" if q is None else f"question {q}"
     with Study.open(args.study) as study:
@@ -207,7 +284,7 @@ def run_lexicon(args: argparse.Namespace) -> int:
             rows = suggest_variants(tm)
             print(format_variants(rows) if rows else f"no likely spelling variants in question {q}")
             if rows:
-                print(f"merge one with: oecode lexicon {args.study} merge \"RARE->TERM\" --question {q}")
+                print(f"merge one with: oecode lexicon merge {args.study} \"RARE->TERM\" --question {q}")
             return 0
         before = st.get_lexicon(study, q)
         change = _change(study, q, args)
@@ -220,6 +297,8 @@ def run_lexicon(args: argparse.Namespace) -> int:
 
 
 def _change(study: Study, q: str | None, args: argparse.Namespace) -> st.LexiconChange:
+    from opencode.text import study_text as st
+
     action, actor = args.action, args.actor
     if action == "stop-add":
         return st.add_stop_words(study, q, args.values, actor=actor)

@@ -12,8 +12,7 @@ from opencode.export import spss_stata, tabular, triple_s
 from opencode.export.dataset import sibling_path
 from opencode.files.targets import check_targets
 from opencode.study.store import Study
-
-EXPORT_FORMATS = ("csv", "xlsx", "sav", "dta", "sss")
+from opencode.export.choices import EXPORT_FORMATS  # noqa: F401  (re-exported)
 
 
 @dataclass

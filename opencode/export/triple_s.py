@@ -48,11 +48,10 @@ from opencode.export.dataset import (
 )
 from opencode.files.safe_write import atomic_open
 from opencode.files.targets import check_targets
+from opencode.export.choices import SSS_FORMATS as FORMATS, SSS_MULTIPLE_LAYOUTS as MULTIPLE_LAYOUTS  # noqa: F401
 
 SSS_VERSION = "2.0"
 RECORD_IDENT = "A"
-FORMATS = ("fixed", "csv")
-MULTIPLE_LAYOUTS = ("bitstring", "spread")
 
 
 @dataclass

@@ -122,7 +122,7 @@ def sentiment_settings(study: Study, question: str) -> dict | None:
 def sentiment_banner(study: Study, question: str) -> BannerVariable:
     """The stored category variable as a BannerVariable; a clear error when the question was not scored."""
     if sentiment_settings(study, question) is None:
-        raise OpenCodeError(f"question {question!r} has no sentiment scores yet; run: oecode sentiment STUDY score "
+        raise OpenCodeError(f"question {question!r} has no sentiment scores yet; run: oecode sentiment score STUDY "
                             f"--question {question}")
     return coded_data.banner_variable(study, category_name(question))
 

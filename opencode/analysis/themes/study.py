@@ -478,7 +478,7 @@ def format_question_themes(result: QuestionThemes, n_terms: int = 8, n_verbatims
                       "dominates; chi-square p per theme, q = Benjamini-Hochberg across themes):",
                   format_prevalence(run, width=width)]
     lines += ["", f"unexplained: {run.n_unexplained} verbatim(s) with terms explained by no theme "
-                  f"(oecode themes STUDY show {result.run_id if result.run_id is not None else 'RUN'} --unexplained)"]
+                  f"(oecode themes show STUDY {result.run_id if result.run_id is not None else 'RUN'} --unexplained)"]
     return "\n".join(lines)
 
 
