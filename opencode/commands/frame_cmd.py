@@ -7,7 +7,9 @@ from typing import TYPE_CHECKING
 
 from opencode.coding.choices import BLANK_MEANINGS, DEFAULT_DELIMITERS, FILTERS, KINDS, LAYOUTS, SPECIALS
 from opencode.errors import OpenCodeError
-from opencode.commands.common import add_action, add_actions, add_overwrite_option
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, emit_table,
+)
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -26,6 +28,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p = add_action(actions, "list", "the frame's codes and nets (with one coder's counts)", [f"oecode frame list {S}"])
     _question(p)
     p.add_argument("--coder", help="count this coder's hand codes beside each code")
+    add_table_output_options(p)
 
     p = add_action(actions, "add", "add a code (or a net) to the frame",
                    [f'oecode frame add {S} --label "Opening hours" --hotkey h',
@@ -201,6 +204,8 @@ def _list(study: Study, args: argparse.Namespace) -> None:
 
     frame = frames.load_frame(study, args.question)
     counts = code_counts(study, args.question, args.coder) if args.coder else None
+    if emit_table(args, frames.frame_records(frame, counts), "frame"):
+        return
     print(f"frame {frame.name}: {sum(not c.is_net for c in frame.codes)} codes, "
           f"{sum(c.is_net for c in frame.codes)} nets" + (f"; counts: hand codes of {args.coder}" if counts else ""))
     print(frames.format_frame(frame, counts))

@@ -10,7 +10,7 @@ import argparse
 from typing import TYPE_CHECKING
 
 from opencode.coding.choices import FINAL
-from opencode.commands.common import add_action, add_actions, progress_line
+from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, progress_line
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -35,11 +35,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p = add_action(actions, "report", "the trained model: precision, recall, F1 and kappa per code",
                    [f"oecode model report {S}"])
     _question(p)
+    add_table_output_options(p)
     p = add_action(actions, "curve", "coverage against accuracy: how much the model can code at each threshold",
                    [f"oecode model curve {S} --threshold 0.9"])
     _question(p)
     p.add_argument("--threshold", type=float, help="show per-code precision and recall at this threshold "
                    "(default 0.80)")
+    add_table_output_options(p, csv_help="the curve (one row per threshold) as CSV instead of the text (or "
+                                         "written to PATH)")
     p = add_action(actions, "suggest", "the likeliest codes of verbatims a coder has not coded",
                    [f"oecode model suggest {S} --coder ash --limit 10"])
     _question(p)
@@ -60,6 +63,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="learn: what the model is least sure about (default); second-look: hand codes it "
                    "strongly disagrees with")
     _limit(p)
+    add_table_output_options(p)
     p = add_action(actions, "rules", "pre-code verbatims by the frame's keyword rules (as suggestions)",
                    [f"oecode model rules {S} --coder ash"])
     _question(p)
@@ -106,9 +110,11 @@ def _report(study: Study, args: argparse.Namespace) -> None:
     from opencode.files.textout import format_table
 
     trained = machine_coding.load_model(study, args.question)
+    rows = machine_coding.code_report(study, args.question)
+    if emit_table(args, rows, "model report"):
+        return
     for note in trained.notes:
         print(note)
-    rows = machine_coding.code_report(study, args.question)
     print("cross-validated, machine versus human (probability 0.5):")
     print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
                        [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
@@ -130,6 +136,8 @@ def _curve(study: Study, args: argparse.Namespace) -> None:
 
     report = machine_coding.curve(study, args.question, code_threshold=0.8 if args.threshold is None
                                   else args.threshold)
+    if emit_table(args, report.rows, "coverage curve"):
+        return
     print("semi-automatic coding: the model codes a verbatim only when sure of every code it can suggest; "
           "people code the rest")
     print(format_table(["threshold", "auto-coded", "accuracy", "precision", "recall", "verbatims"],
@@ -176,12 +184,16 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
 
     if args.kind == "learn":
         items = machine_coding.learning_queue(study, args.question, _coder_of(args), n=args.limit)
+        if emit_table(args, items, "queue"):
+            return
         print("code these next (the model is least sure about them):")
         print(format_table(["verbatim", "doubt", "code", "probability", "text"],
                            [[i["verbatim_id"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
                             for i in items], note="most doubtful first"))
     else:
         items = machine_coding.second_look_queue(study, args.question, args.coder, n=args.limit)
+        if emit_table(args, items, "queue"):
+            return
         print("hand codes worth a second look (the model strongly disagrees in cross-validation):")
         print(format_table(["verbatim", "coder", "code", "probability", "why", "text"],
                            [[i["verbatim_id"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]

@@ -9,7 +9,9 @@ from typing import TYPE_CHECKING
 from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
 from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
-from opencode.commands.common import add_action, add_actions, add_overwrite_option, add_verb
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table,
+)
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -64,7 +66,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--resamples", type=int, default=1000, help="bootstrap resamples for intervals (0: none)")
     a.add_argument("--seed", type=int, default=0, help="bootstrap seed")
     a.add_argument("--top", type=int, default=10, help="how many disputed verbatims and swapped codes to list")
-    a.add_argument("--csv", help="also write the results as a long CSV file")
+    add_table_output_options(a, csv_help="the statistics per code as CSV on stdout instead of the text; with PATH, "
+                                         "also write the results as a long CSV file",
+                             json_help="the statistics per code as JSON records on stdout instead of the text (or "
+                                       "written to PATH)")
     a.add_argument("--html", help="also write the results as an HTML page")
     a.add_argument("--differences", type=int, metavar="N", help="list N verbatims where the coders differ")
     a.add_argument("--level", choices=LEVELS, help="the codes' level of measurement: nominal (per-code statistics, "
@@ -177,6 +182,17 @@ def _write_html(path: str, fragment: str, title: str) -> None:
                      f"</title></head><body>\n{fragment}\n</body></html>\n")
 
 
+def _agreement_frame(result):
+    """The agreement statistics as one table: per code for nominal codes, the scale table for a scale."""
+    if hasattr(result, "to_frame"):
+        return result.to_frame()
+    import pandas as pd
+
+    from opencode.analysis.agreement.report import _SCALE_HEADERS, _scale_rows
+
+    return pd.DataFrame(_scale_rows(result), columns=_SCALE_HEADERS)
+
+
 def run_agree(args: argparse.Namespace) -> int:
     from opencode.analysis.agreement.report import (format_agreement_html, format_agreement_text,
                                                    format_scale_agreement_text, write_agreement_csv,
@@ -187,8 +203,9 @@ def run_agree(args: argparse.Namespace) -> int:
     from opencode.files.targets import check_target
     from opencode.study.store import Study
 
-    if args.csv:
-        check_target(args.csv)  # before the slow work
+    for path in (args.csv, args.json):
+        if path and path != "-":
+            check_target(path)  # before the slow work
     with Study.open(args.study) as study:
         if args.adjudicate:
             _adjudicate(study, args)
@@ -200,10 +217,13 @@ def run_agree(args: argparse.Namespace) -> int:
         if args.level:
             remember_level(study, args.question, args.level, args.weights, scale, actor=args.actor)
         where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
-        print(f"Agreement on {where}\n")
         on_scale = isinstance(result, ScaleAgreementResult)
+        if emit_table(argparse.Namespace(csv="-" if args.csv == "-" else None, json=args.json),
+                      _agreement_frame(result), "agreement table"):
+            return 0
+        print(f"Agreement on {where}\n")
         print((format_scale_agreement_text if on_scale else format_agreement_text)(result), end="")
-        if args.csv:
+        if args.csv and args.csv != "-":
             print(f"\nwrote {(write_scale_agreement_csv if on_scale else write_agreement_csv)(result, args.csv)}")
         if args.html:
             _write_html(args.html, format_agreement_html(result, f"Coder agreement: {where}"),

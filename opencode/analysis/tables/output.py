@@ -117,6 +117,39 @@ def format_table(table: Table, width: int | None = None) -> str:
     return text + "\n"
 
 
+def table_records(table: Table) -> list[dict]:
+    """The table's body rows as records for scripts: one key per column (a mark column named after the column it
+    marks, banner columns prefixed by their variable's label), numbers as numbers (shares 0-1), NaN as None,
+    plus the row's kind (base, code, net, ...)."""
+    layout = layout_table(table)
+    names: list[str] = []
+    prefixes: list[str] = []
+    if layout.header_rows > 1:
+        for cell in layout.rows[0]:
+            prefixes += [str(cell.value or "")] * cell.span
+    for i, cell in enumerate(layout.rows[layout.header_rows - 1]):
+        name = str(cell.value or "")
+        if not name and names:
+            name = f"{names[-1]} mark"
+        if prefixes and prefixes[i]:
+            name = f"{prefixes[i]}: {name}"
+        while name in names:
+            name += " (2)"
+        names.append(name)
+    records = []
+    for cells, kind in zip(layout.rows[layout.header_rows:], layout.row_kinds[layout.header_rows:]):
+        record: dict[str, Any] = {"row kind": kind}
+        for name, cell in zip(names, cells):
+            value = cell.value
+            if isinstance(value, numbers.Real) and not isinstance(value, bool):
+                value = float(value) if math.isfinite(float(value)) else None
+                if value is not None and cell.kind == "count":
+                    value = int(value)
+            record[name] = value
+        records.append(record)
+    return records
+
+
 def write_csv(table: Table, path: str | os.PathLike) -> Path:
     """Write one table as CSV (percentages 0-100, one decimal); text cells guarded against formulas."""
     layout = layout_table(table)

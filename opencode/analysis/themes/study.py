@@ -79,6 +79,18 @@ class QuestionThemes:
                               "share": t.share, "n_dominant": t.n_dominant, "npmi": t.npmi, "umass": t.umass}
                              for t in self.run.themes])
 
+    def to_full_frame(self) -> pd.DataFrame:
+        """to_frame plus, for a run fitted with `by`, each group's share and the theme's p and q."""
+        table = self.to_frame()
+        prevalence = self.run.prevalence
+        if prevalence is None:
+            return table
+        for j, group in enumerate(prevalence.shares.columns):
+            table[f"share in {group}"] = prevalence.shares.to_numpy()[:, j]
+        table["p"] = prevalence.tests["p"].to_numpy()
+        table["q"] = prevalence.tests["p_adjusted"].to_numpy()
+        return table
+
 
 @dataclass
 class QuestionKSearch:
