@@ -137,7 +137,7 @@ def emit_table(args: argparse.Namespace, frame, name: str = "table") -> bool:
     from opencode.files.terminal_text import unwrapped
 
     if isinstance(frame, pd.DataFrame):
-        table = frame.convert_dtypes(convert_string=False, convert_boolean=False)  # whole numbers stay whole
+        table = frame.convert_dtypes()  # whole numbers stay whole (a code column with a gap is not 1.0)
         columns = [str(c) for c in table.columns]
         rows = [list(row) for row in table.itertuples(index=False)]
     else:
