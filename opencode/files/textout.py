@@ -31,6 +31,11 @@ LABEL_MIN = 16
 #: Spaces between two columns.
 GAP = 2
 
+#: Stands for a space that must not break while a table is laid out (inside "0.717 [0.596, 0.817]", "se 0.054").
+_KEEP = "\ue000"
+#: A number with its interval, or a short tag with its number: kept on one line.
+_GROUP = re.compile(r"[-+<>]?[0-9][0-9.,]*%?\s\[[-+<>]?[0-9][0-9.,]*%?,\s[-+<>]?[0-9][0-9.,]*%?\]"
+                    r"|\b[A-Za-z]{1,3}\s[-+<>]?[0-9][0-9.,]*%?(?![0-9])")
 _NUMBER = re.compile(r"[-+<>]?\(?\[?[0-9][0-9,]*(?:\.[0-9]+)?(?:e[-+]?[0-9]+)?%?[\]),;]*", re.I)
 
 
@@ -107,8 +112,14 @@ def _cell_text(value: Any) -> str:
     return one_line(str(value))
 
 
+def _protect(text: str) -> str:
+    """`text` with the spaces inside number groups (see _GROUP) replaced by _KEEP."""
+    return _GROUP.sub(lambda m: m.group(0).replace(" ", _KEEP), text)
+
+
 def _is_number_text(text: str) -> bool:
-    return bool(text) and all(_NUMBER.fullmatch(word) or word in ("-", "[", "]") for word in text.split())
+    return bool(text) and all(_NUMBER.fullmatch(word) or word in ("-", "[", "]")
+                              for word in text.replace(_KEEP, " ").split())
 
 
 def _auto_align(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
@@ -129,7 +140,8 @@ class _Column:
         widest_cell = max((len(c) for c in cells), default=0)
         self.widest = max(widest_cell, len(header))
         self.widest_cell = widest_cell
-        numbers = max((len(w) for c in cells for w in c.split() if _NUMBER.fullmatch(w)), default=0)
+        numbers = max((len(w) for c in cells for w in c.split()
+                       if _NUMBER.fullmatch(w) or (_KEEP in w and any(ch.isdigit() for ch in w))), default=0)
         header_floor = min(_longest_word(header), 12)
         if may_wrap:
             self.narrowest = max(numbers, header_floor, min(widest_cell, LABEL_MIN), 1)
@@ -226,7 +238,7 @@ def _render(columns: list[_Column], widths: list[int], rows: int) -> list[str]:
                       legacy_windows=False, soft_wrap=False, highlight=False, emoji=False, markup=False)
     with console.capture() as capture:
         console.print(table)
-    lines = [line.rstrip() for line in capture.get().split("\n")]
+    lines = [line.replace(_KEEP, " ").rstrip() for line in capture.get().split("\n")]
     while lines and not lines[-1]:
         lines.pop()
     # the rule under the header: one dash run per column, GAP spaces apart
@@ -256,7 +268,7 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     width = width or output_width()
     headers = [one_line(str(h)) for h in headers]
     align = align or _auto_align(headers, rows)
-    texts = [[_cell_text(c) for c in row] for row in rows]
+    texts = [[_protect(_cell_text(c)) for c in row] for row in rows]
     cells = [[row[i] for row in texts] for i in range(len(headers))]
     if wrap is None:
         may_wrap = [a == "l" and not all(_is_number_text(c) or not c for c in cells[i])

@@ -345,11 +345,15 @@ def write_indicators(study: Study, question: str, result: StudyDrivers | None, t
 
 
 def _cell(value: Any, fmt: str) -> str:
+    if fmt == "p":
+        from opencode.files.textout import format_p
+
+        return html.escape(format_p(value))
     return html.escape(fmt.format(value) if isinstance(value, (int, float, np.integer, np.floating)) else str(value))
 
 
 _HTML_COLUMNS = [("label", "term", "{}"), ("odds_ratio", "odds ratio", "{:.2f}"), ("stability", "stability", "{:.2f}"),
-                 ("docs_1", "verbatims, {one}", "{}"), ("docs_0", "verbatims, {zero}", "{}"), ("q", "q (BH)", "{:.3g}")]
+                 ("docs_1", "verbatims, {one}", "{}"), ("docs_0", "verbatims, {zero}", "{}"), ("q", "q (BH)", "p")]
 
 
 def _side_rows(comparison: DriverComparison, side: int, n: int) -> str:
