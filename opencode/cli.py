@@ -66,6 +66,8 @@ class Parser(argparse.ArgumentParser):
 
     #: the long options of the (sub)command being parsed; main sets it on the top parser
     long_options: list[str] = []
+    #: option -> the other actions of the same verb that take it ("oecode model queue"), for a misplaced option
+    elsewhere: dict[str, list[str]] = {}
 
     def error(self, message: str):
         self.exit(2, f"{self.format_usage()}{self.prog}: error: {message}{suggestion(message, self)}\n")
@@ -80,8 +82,12 @@ def suggestion(message: str, parser: argparse.ArgumentParser) -> str:
     unknown = re.search(r"unrecognized arguments: (.*)", message)
     if unknown:
         options = getattr(parser, "long_options", None) or _long_options(parser)
+        elsewhere = getattr(parser, "elsewhere", {})
         for word in unknown.group(1).split():
-            near = nearest(word.split("=", 1)[0], options) if word.startswith("--") else None
+            name = word.split("=", 1)[0]
+            if name in elsewhere:
+                return f"; {name} is an option of {' and '.join(elsewhere[name])}"
+            near = nearest(name, options) if word.startswith("--") else None
             if near:
                 return f"; did you mean {near}?"
     return ""
@@ -155,15 +161,17 @@ def parse(words: list[str]) -> tuple[argparse.ArgumentParser, argparse.Namespace
         actions = _sub_choices(leaf)
         if actions:
             module = importlib.import_module(f"opencode.commands.{VERBS[verb][0]}")
-            default = getattr(module, "default_action", None)
             words = reorder(words, at, actions)
-            rest = words[at + 1:]
-            if default and rest and rest[0] not in actions and not rest[0].startswith("-") \
-                    and (len(rest) == 1 or rest[1].startswith("-")) and not any(w in actions for w in rest):
-                words = words[:at + 1] + [default(rest)] + rest
+            if hasattr(module, "old_words"):  # the verb's own way of reading its older command lines
+                words = words[:at + 1] + module.old_words(words[at + 1:])
             rest = words[at + 1:]
             if rest and rest[0] in actions:
                 leaf = actions[rest[0]]
+                own = set(_long_options(leaf))
+                leaf.elsewhere = {}
+                for name, other in actions.items():
+                    for option in set(_long_options(other)) - own:
+                        leaf.elsewhere.setdefault(option, []).append(f"oecode {verb} {name}")
             elif rest and not rest[0].startswith("-"):
                 typed = [w for w in rest[:2] if not w.startswith("-")]
                 near = next(((w, n) for w in typed if (n := nearest(w, actions))), None)

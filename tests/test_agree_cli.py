@@ -20,15 +20,15 @@ def run(capsys, *argv: str) -> tuple[int, str, str]:
 
 
 def test_sample_draw_assign_status_list(demo_copy, capsys):
-    code, out, _ = run(capsys, "sample", demo_copy, "draw", "--question", "why", "--name", "rel1", "--percent", "10",
+    code, out, _ = run(capsys, "sample", "draw", demo_copy, "--question", "why", "--name", "rel1", "--percent", "10",
                        "--strata", "age_band", "--seed", "4")
     assert code == 0 and "sample rel1 of question why: 221 of 2,211 verbatims" in out and "stratum" in out
-    code, out, _ = run(capsys, "sample", demo_copy, "assign", "--question", "why", "--name", "rel1",
+    code, out, _ = run(capsys, "sample", "assign", demo_copy, "--question", "why", "--name", "rel1",
                        "--coders", "ash,bryn")
     assert code == 0 and "coded blind by ash, bryn" in out
-    code, out, _ = run(capsys, "sample", demo_copy, "status", "--question", "why", "--name", "rel1")
+    code, out, _ = run(capsys, "sample", "status", demo_copy, "--question", "why", "--name", "rel1")
     assert code == 0 and re.search(r"^ash\s+\d+\s+\d+", out, re.M) and "finished by every assigned coder" in out
-    code, out, _ = run(capsys, "sample", demo_copy, "list", "--question", "why")
+    code, out, _ = run(capsys, "sample", "list", demo_copy, "--question", "why")
     assert code == 0 and "coders: ash, bryn" in out
 
 
@@ -52,7 +52,7 @@ def test_agree_prints_tables_and_writes_csv_and_html(demo_copy, tmp_path, capsys
 def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys, csv_sets):
     sets = csv_sets
     agreed = sum(sets["ash"][r] == sets["bryn"][r] for r in sets["ash"])
-    run(capsys, "sample", demo_copy, "draw", "--question", "why", "--name", "rel1", "--n", "400", "--seed", "1")
+    run(capsys, "sample", "draw", demo_copy, "--question", "why", "--name", "rel1", "--n", "400", "--seed", "1")
     code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--sample", "rel1",
                        "--resamples", "0")
     assert code == 0 and "reliability sample rel1" in out

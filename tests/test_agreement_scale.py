@@ -136,8 +136,8 @@ def rated_study(tmp_path_factory):
                 writer.writerow([f"R{i:03d}", "bryn", int(second[i])])
     target = folder / "reviews.study"
     assert main(["new", str(target), "--from", str(survey), "--id", "rid", "--question", "review"]) == 0
-    assert main(["frame", str(target), "import", "--question", "review", "--file", str(frame)]) == 0
-    assert main(["frame", str(target), "import-codes", "--question", "review", "--from", str(codes),
+    assert main(["frame", "import", str(target), "--question", "review", "--file", str(frame)]) == 0
+    assert main(["frame", "import-codes", str(target), "--question", "review", "--from", str(codes),
                  "--column", "rating", "--coder-column", "coder", "--id", "rid"]) == 0
     return target, first, second
 

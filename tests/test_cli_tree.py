@@ -114,6 +114,11 @@ def test_old_order_runs_like_the_new(demo_copy, capsys):
     old = capsys.readouterr().out
     assert main(["lexicon", "show", demo_copy, "--question", "why"]) == 0
     assert capsys.readouterr().out == old
+    assert main(["frame", demo_copy, "edit", "--question", "why", "--code", "1", "--label", "Safe"]) == 0
+    capsys.readouterr()
+    assert main(["frame", demo_copy, "undo", "--question", "why"]) == 0  # undo took --question before: still does
+    assert capsys.readouterr().out.startswith("undo: ")
+    assert main(["sample", demo_copy, "list", "--question", "why"]) == 0
 
 
 @pytest.mark.parametrize("words, message", [
@@ -133,6 +138,10 @@ def test_mistyped_verb_or_action_is_one_line_with_the_nearest(words, message, ca
     (["frame", "list", "s.study", "--qeustion", "why"], "did you mean --question?"),
     (["model", "queue", "s.study", "--question", "why", "--kind", "secnd-look"], "did you mean 'second-look'?"),
     (["frame", "add", "s.study", "--question", "why", "--lable", "x"], "did you mean --label?"),
+    (["model", "train", "s.study", "--question", "why", "--kind", "learn"], "--kind is an option of oecode model "
+     "queue"),
+    (["frame", "list", "s.study", "--question", "why", "--into", "3"], "--into is an option of oecode frame merge "
+     "and oecode frame delete"),
 ])
 def test_mistyped_option_or_choice_suggests_the_nearest(words, message, capsys):
     with pytest.raises(SystemExit) as stop:

@@ -110,7 +110,7 @@ def test_import_codes_from_a_study_variable_uses_its_labels(breach_csv, tmp_path
         variable = survey_data.get_variable(study, "breach_type")
         assert variable.kind == "single" and "Loss, Theft" in variable.value_labels.values()
         single_codes = {label: int(code) for code, label in variable.value_labels.items()}
-    code, out, _ = run(capsys, "frame", study_path, "import-codes", "--question", "description",
+    code, out, _ = run(capsys, "frame", "import-codes", study_path, "--question", "description",
                        "--column", "breach_type", "--create", "--coder", "final")
     assert code == 0, out
     blanked = int((table["breach_type"] == "").sum())
@@ -188,14 +188,14 @@ def test_done_command(breach_csv, tmp_path, capsys):
     blanked = int((table["breach_type"] == "").sum())
     study_path = tmp_path / "c.study"
     import_survey(study_path, path, ImportOptions("case", ["description"]))
-    assert run(capsys, "frame", study_path, "import-codes", "--question", "description", "--column", "breach_type",
+    assert run(capsys, "frame", "import-codes", study_path, "--question", "description", "--column", "breach_type",
                "--create", "--coder", "ash")[0] == 0
-    code, out, _ = run(capsys, "frame", study_path, "done", "--question", "description", "--coder", "ash")
+    code, out, _ = run(capsys, "frame", "done", study_path, "--question", "description", "--coder", "ash")
     assert code == 0 and f"{blanked:,} of {blanked:,} verbatims (answered-without-codes) marked done" in out
-    code, out, _ = run(capsys, "frame", study_path, "not-done", "--question", "description", "--coder", "ash",
+    code, out, _ = run(capsys, "frame", "not-done", study_path, "--question", "description", "--coder", "ash",
                        "--which", "answered-without-codes")
     assert code == 0 and "marked not done" in out
-    code, _, err = run(capsys, "frame", study_path, "done", "--question", "description")
+    code, _, err = run(capsys, "frame", "done", study_path, "--question", "description")
     assert code != 0 and "--coder" in err
 
 

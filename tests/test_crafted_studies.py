@@ -51,7 +51,7 @@ VERBS = {
 ARGS = {
     "info": ["info", "{s}"], "words": ["words", "{s}", "--question", "why"],
     "tables": ["tables", "{s}", "--question", "why", "--banner", "support"],
-    "frame": ["frame", "{s}", "list", "--question", "why"],
+    "frame": ["frame", "list", "{s}", "--question", "why"],
     "export": ["export", "{s}", "--format", "csv", "--all-closed", "--out", "{o}"],
     "report": ["report", "{s}", "--out", "{o}"],
 }
@@ -100,7 +100,7 @@ def test_malformed_frame_json_is_one_line(base_study, tmp_path, capsys, content,
     before = file_digest(study)
     source = tmp_path / "frame.json"
     source.write_bytes(content)
-    code = main(["frame", str(study), "import", "--question", "why", "--file", str(source)])
+    code = main(["frame", "import", str(study), "--question", "why", "--file", str(source)])
     _, err = capsys.readouterr()
     assert code == 1 and "frame.json" in err and message in err and "Traceback" not in err, err
     assert file_digest(study) == before
@@ -112,7 +112,7 @@ def test_malformed_lexicon_file_is_one_line(base_study, tmp_path, capsys):
     before = file_digest(study)
     source = tmp_path / "lexicon.txt"
     source.write_bytes(b"\xff\xfe[broken\x00")
-    code = main(["lexicon", str(study), "import", str(source), "--question", "why"])
+    code = main(["lexicon", "import", str(study), str(source), "--question", "why"])
     _, err = capsys.readouterr()
     assert code == 1 and "lexicon.txt" in err and "Traceback" not in err, err
     assert file_digest(study) == before

@@ -185,11 +185,11 @@ def test_curve_report_and_command_say_what_the_model_cannot_suggest(location_stu
         assert report.n_verbatims == 209 and report.left_out == 942
         assert any("exactly the codes a person gave" in n for n in report.notes)
         assert any("Schonlau & Couper (2016)" in n and "here at 0.80" in n for n in report.notes)
-    assert main(["model", str(path), "curve", "--question", "desc", "--threshold", "0.7"]) == 0
+    assert main(["model", "curve", str(path), "--question", "desc", "--threshold", "0.7"]) == 0
     out = capsys.readouterr().out
     assert "cannot suggest" in out and "per code on the verbatims auto-coded at 0.70" in out
     assert "942 non-answer or empty verbatims left out" in out
-    assert main(["model", str(path), "report", "--question", "desc"]) == 0
+    assert main(["model", "report", str(path), "--question", "desc"]) == 0
     assert "942 coded non-answer or empty verbatims left out" in capsys.readouterr().out
 
 

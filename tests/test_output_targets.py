@@ -36,9 +36,9 @@ WRITERS = {
     "export sss": ["export", "{study}", "--format", "sss", "--coder", "ash", "--out", "{out}"],
     "report": ["report", "{study}", "--coder", "ash", "--out", "{out}"],
     "tables": ["tables", "{study}", "--question", "why", "--coder", "ash", "--out", "{out}"],
-    "frame export": ["frame", "{study}", "export", "--question", "why", "--file", "{out}"],
-    "frame codebook": ["frame", "{study}", "codebook", "--question", "why", "--file", "{out}"],
-    "lexicon export": ["lexicon", "{study}", "export", "{out}", "--question", "why"],
+    "frame export": ["frame", "export", "{study}", "--question", "why", "--file", "{out}"],
+    "frame codebook": ["frame", "codebook", "{study}", "--question", "why", "--file", "{out}"],
+    "lexicon export": ["lexicon", "export", "{study}", "{out}", "--question", "why"],
     "themes chart": ["themes", "{study}", "--question", "why", "--k", "3", "--chart", "{out}"],
     "drivers chart": ["drivers", "{study}", "--question", "why", "--outcome", "support", "--chart", "{out}"],
     "drivers csv": ["drivers", "{study}", "--question", "why", "--outcome", "support", "--csv", "{out}"],
@@ -136,7 +136,7 @@ def test_companion_never_replaces_the_users_survey(tmp_path, capsys):
     survey.write_text("rid,why,support\nA1,late hours help,1\nA2,not safe at night,5\nA3,fine,2\n", encoding="utf-8")
     study = tmp_path / "s.study"
     assert main(["new", str(study), "--from", str(survey), "--id", "rid", "--question", "why"]) == 0
-    assert main(["frame", str(study), "add", "--question", "why", "--label", "Safety"]) == 0
+    assert main(["frame", "add", str(study), "--question", "why", "--label", "Safety"]) == 0
     capsys.readouterr()
     before = file_digest(survey)
     for extra in ([], ["--overwrite"]):

@@ -148,7 +148,7 @@ def test_language_without_lexicon_is_refused_and_nothing_written(demo_copy):
         set_lexicon(study, "why", type(lexicon).from_dict({**lexicon.to_dict(), "language": "german",
                                                           "stemmer": None}))
     before = file_digest(demo_copy)
-    assert main(["sentiment", str(demo_copy), "score", "--question", "why"]) == 1
+    assert main(["sentiment", "score", str(demo_copy), "--question", "why"]) == 1
     assert file_digest(demo_copy) == before
 
 
@@ -195,7 +195,7 @@ def test_mix_table_matches_a_plain_crosstab(scored_demo, tmp_path, capsys):
                          [np.sum(answered & ~has & (values == k)) for k in (1, 2, 3)]])
     assert table.row_p[row] == pytest.approx(chi2_contingency(observed, correction=False)[1])
     assert len(keys) == len(values)
-    assert main(["sentiment", str(path), "mix", "--question", "why", "--coder", "ash", "--unweighted",
+    assert main(["sentiment", "mix", str(path), "--question", "why", "--coder", "ash", "--unweighted",
                  "--out", str(tmp_path / "mix.csv")]) == 0
     out = capsys.readouterr().out
     assert "within each code (row %)" in out and "negative" in out
@@ -204,7 +204,7 @@ def test_mix_table_matches_a_plain_crosstab(scored_demo, tmp_path, capsys):
 
 
 def test_mix_needs_scores_first(demo_copy, capsys):
-    assert main(["sentiment", str(demo_copy), "mix", "--question", "why", "--coder", "ash"]) == 1
+    assert main(["sentiment", "mix", str(demo_copy), "--question", "why", "--coder", "ash"]) == 1
     assert "has no sentiment scores yet" in capsys.readouterr().err
 
 

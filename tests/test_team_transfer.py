@@ -18,14 +18,14 @@ from team_server import study_name
 
 #: Commands that leave rows in every table of a study (lexicons, matrix cache, theme runs, models, samples...).
 FILLING = [
-    "lexicon STUDY stop-add quite --question why",
-    "lexicon STUDY merge 'later,latest->late' --study-default",
+    "lexicon stop-add STUDY quite --question why",
+    "lexicon merge STUDY 'later,latest->late' --study-default",
     "words STUDY --question why --top 5",
-    "phrases STUDY suggest --question why --top 5",
-    "themes STUDY --question why --k 4",
-    "sample STUDY draw --question why --name check --n 40",
-    "sample STUDY assign --question why --name check --coders ash,bryn",
-    "model STUDY train --question why --coder ash",
+    "phrases suggest STUDY --question why --top 5",
+    "themes fit STUDY --question why --k 4",
+    "sample draw STUDY --question why --name check --n 40",
+    "sample assign STUDY --question why --name check --coders ash,bryn",
+    "model train STUDY --question why --coder ash",
     "drivers STUDY --question why --outcome support --split top2 --indicators safe staff",
 ]
 

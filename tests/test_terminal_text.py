@@ -63,10 +63,10 @@ def hostile_study(tmp_path):
     return path
 
 
-@pytest.mark.parametrize("argv", [["info", "{s}"], ["frame", "{s}", "list", "--question", "why"],
+@pytest.mark.parametrize("argv", [["info", "{s}"], ["frame", "list", "{s}", "--question", "why"],
                                   ["words", "{s}", "--question", "why"],
-                                  ["frame", "{s}", "edit", "--question", "why", "--code", "7", "--label", HOSTILE],
-                                  ["frame", "{s}", "rule", "--question", "why", "--code", "1", "--dry-run"]])
+                                  ["frame", "edit", "{s}", "--question", "why", "--code", "7", "--label", HOSTILE],
+                                  ["frame", "rule", "{s}", "--question", "why", "--code", "1", "--dry-run"]])
 def test_verbs_print_no_control_characters(hostile_study, capfd, argv):
     code = main([str(hostile_study) if a == "{s}" else a for a in argv])
     out, err = capfd.readouterr()

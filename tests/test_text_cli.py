@@ -87,42 +87,42 @@ def test_kwic_aligned_with_shown_variables(path, capsys):
 
 
 def test_phrases_suggest_accept_add_remove(path, capsys):
-    code, out, err = run(capsys, "phrases", path, "suggest", "--question", "why", "--top", "4", "--min-count", "10")
+    code, out, err = run(capsys, "phrases", "suggest", path, "--question", "why", "--top", "4", "--min-count", "10")
     assert code == 0
     ranked = [line for line in out.splitlines() if line[:3].strip().isdigit()]
     assert [line.split()[0] for line in ranked] == ["1", "2", "3", "4"]
     second = " ".join(ranked[1].split()[1:3])
-    code, out, err = run(capsys, "phrases", path, "accept", "2", "--question", "why", "--actor", "ash")
+    code, out, err = run(capsys, "phrases", "accept", path, "2", "--question", "why", "--actor", "ash")
     assert code == 0 and second.lower() in out
-    code, out, err = run(capsys, "phrases", path, "add", "purple elephant", "--question", "why")
+    code, out, err = run(capsys, "phrases", "add", path, "purple elephant", "--question", "why")
     assert code == 0
     assert "phrase 'purple elephant' never occurs in the verbatims of question why" in err
     with Study.open(path) as study:
         assert st.get_lexicon(study, "why").phrases == sorted([second.lower(), "purple elephant"])
-    code, out, err = run(capsys, "phrases", path, "remove", "purple elephant", "--question", "why")
+    code, out, err = run(capsys, "phrases", "remove", path, "purple elephant", "--question", "why")
     assert code == 0
-    code, out, err = run(capsys, "phrases", path, "accept", "9", "--question", "why")
+    code, out, err = run(capsys, "phrases", "accept", path, "9", "--question", "why")
     assert code == 1 and "no suggestion number 9" in err
-    code, out, err = run(capsys, "phrases", path, "accept", "two", "--question", "why")
+    code, out, err = run(capsys, "phrases", "accept", path, "two", "--question", "why")
     assert code == 1 and "ranks are whole numbers" in err
 
 
 def test_lexicon_actions(path, tmp_path, capsys):
-    assert run(capsys, "lexicon", path, "show", "--question", "why")[1].startswith(
+    assert run(capsys, "lexicon", "show", path, "--question", "why")[1].startswith(
         "lexicon of question why (built-in default)")
-    code, out, err = run(capsys, "lexicon", path, "stop-add", "work", "go", "--question", "why")
+    code, out, err = run(capsys, "lexicon", "stop-add", path, "work", "go", "--question", "why")
     assert code == 0 and "stop-add (added: work, go)" in out
     assert "now have no term left (respondent ids): WR" in err
-    assert run(capsys, "lexicon", path, "merge", "libary,liberry->library", "--question", "why")[0] == 0
-    assert run(capsys, "lexicon", path, "unmerge", "liberry", "--question", "why")[0] == 0
-    assert run(capsys, "lexicon", path, "exception", "news", "--question", "why")[0] == 0
-    assert run(capsys, "lexicon", path, "stem", "porter", "--question", "why")[0] == 0
-    code, out, err = run(capsys, "lexicon", path, "show", "--question", "why")
+    assert run(capsys, "lexicon", "merge", path, "libary,liberry->library", "--question", "why")[0] == 0
+    assert run(capsys, "lexicon", "unmerge", path, "liberry", "--question", "why")[0] == 0
+    assert run(capsys, "lexicon", "exception", path, "news", "--question", "why")[0] == 0
+    assert run(capsys, "lexicon", "stem", path, "porter", "--question", "why")[0] == 0
+    code, out, err = run(capsys, "lexicon", "show", path, "--question", "why")
     assert "(own)" in out.splitlines()[0]
     assert "[stop+]\ngo\nwork\n" in out and "libary -> library" in out and "news ->" in out and "porter" in out
     export = tmp_path / "why.lexicon"
-    assert run(capsys, "lexicon", path, "export", str(export), "--question", "why")[0] == 0
-    assert run(capsys, "lexicon", path, "import", str(export), "--question", "improve")[0] == 0
+    assert run(capsys, "lexicon", "export", path, str(export), "--question", "why")[0] == 0
+    assert run(capsys, "lexicon", "import", path, str(export), "--question", "improve")[0] == 0
     with Study.open(path) as study:
         assert st.get_lexicon(study, "improve") == st.get_lexicon(study, "why")
         actions = [row[0] for row in study._db.execute("SELECT action FROM audit WHERE entity = 'lexicon' ORDER BY id")]
@@ -131,8 +131,8 @@ def test_lexicon_actions(path, tmp_path, capsys):
 
 
 def test_lexicon_study_default_and_variants(path, capsys):
-    assert run(capsys, "lexicon", path, "stop-add", "council", "--study-default")[0] == 0
-    assert "council" in run(capsys, "lexicon", path, "show", "--question", "improve")[1]
+    assert run(capsys, "lexicon", "stop-add", path, "council", "--study-default")[0] == 0
+    assert "council" in run(capsys, "lexicon", "show", path, "--question", "improve")[1]
     code, out, err = run(capsys, "lexicon", path, "variants", "--question", "why")
     assert code == 0 and out.splitlines()[0].split()[:2] == ["rare", "term"]
     assert "openning" in out or "opeen" in out  # typos planted in the demo survey
@@ -141,24 +141,24 @@ def test_lexicon_study_default_and_variants(path, capsys):
 def test_lexicon_bad_input(path, tmp_path, capsys):
     code, out, err = run(capsys, "lexicon", path, "language", "welsh", "--question", "why")
     assert code == 1 and "no stemmer for language 'welsh'" in err and "stem off" in err
-    assert run(capsys, "lexicon", path, "stem", "off", "--question", "why")[0] == 0
+    assert run(capsys, "lexicon", "stem", path, "off", "--question", "why")[0] == 0
     code, out, err = run(capsys, "lexicon", path, "language", "welsh", "--question", "why")
     assert code == 0 and "no bundled stop list" in out
-    code, out, err = run(capsys, "lexicon", path, "stem", "maybe", "--question", "why")
+    code, out, err = run(capsys, "lexicon", "stem", path, "maybe", "--question", "why")
     assert code == 1 and "choose on, off, snowball or porter" in err
-    code, out, err = run(capsys, "lexicon", path, "merge", "a b", "--question", "why")
+    code, out, err = run(capsys, "lexicon", "merge", path, "a b", "--question", "why")
     assert code == 1 and "write it as 'word,other->target'" in err
     bad = tmp_path / "bad.lexicon"
     bad.write_text("[language]\nenglish\n[stemmer]\nsnowball\n[phrases]\nopening hours\n[nonsense]\n",
                    encoding="utf-8")
-    code, out, err = run(capsys, "lexicon", path, "import", str(bad), "--question", "why")
+    code, out, err = run(capsys, "lexicon", "import", path, str(bad), "--question", "why")
     assert code == 1 and "bad.lexicon, line 7: unknown section [nonsense]" in err
-    code, out, err = run(capsys, "lexicon", path, "show", "--question", "whom")
+    code, out, err = run(capsys, "lexicon", "show", path, "--question", "whom")
     assert code == 1 and "no open question named 'whom'" in err
     code, out, err = run(capsys, "words", path, "--question", "whom")
     assert code == 1 and err.startswith("oecode words:") and "Traceback" not in err
     with pytest.raises(SystemExit):  # argparse: --question or --study-default is required
-        main(["lexicon", path, "show"])
+        main(["lexicon", "show", path])
 
 
 def test_words_all_nonanswers_and_empty_corpus(tmp_path, capsys):

@@ -153,6 +153,8 @@ def test_command_lines_of_the_old_order_still_run(study_path, capsys):
     assert code == 0 and re.search(rf"^{_run_id(out)}\s+themes\s", listed, re.M)
     code = main(["themes", study_path, "--question", "why", "--k-range", "9:3"])  # a search, by its --k-range
     assert code == 1 and "must not exceed" in capsys.readouterr().err
+    code = main(["themes", study_path, "fit", "--question", "why", "--k-range", "9:3"])  # fit --k-range searched
+    assert code == 1 and "must not exceed" in capsys.readouterr().err
 def test_promote_of_a_missing_theme(study_path, capsys, two_runs):
     a, _ = two_runs
     code, _, err = _run(capsys, "promote", study_path, a, 9, "--question", "why")

@@ -144,6 +144,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         p = add_action(actions, name, what, [f"oecode frame {name} survey.study --coder ash"])
         p.add_argument("--coder", help="whose change (default: --actor, else 'oecode')")
         _actor_option(p)
+        p.add_argument("--question", help=argparse.SUPPRESS)  # accepted as before actions came first: undo takes
+        # back the person's last change, whichever question it was on
 
     for name, what in (("done", "mark verbatims finished with no code for a coder (one undoable step)"),
                        ("not-done", "take back done marks for a coder")):
@@ -331,7 +333,7 @@ def _import_codes(study: Study, args: argparse.Namespace) -> None:
         if report.blank_means == "uncoded":
             print(f"{blank:,} answered verbatims have a blank code cell for {who}: left not coded (out of the base); "
                   f"if blank means no code applies, run again with --blank-means no-code or mark them with: "
-                  f"oecode frame {args.study} done --question {args.question} --coder {who}")
+                  f"oecode frame done {args.study} --question {args.question} --coder {who}")
         else:
             print(f"{blank:,} answered verbatims have a blank code cell for {who}: marked done with no code")
     if report.unmatched_respondents:
@@ -347,7 +349,7 @@ def _done(study: Study, args: argparse.Namespace, done: bool = True) -> None:
     report = done_marks.set_done(study, args.question, args.coder, args.which, done=done)
     state = "done" if done else "not done"
     print(f"{args.question}: {report.changed:,} of {report.chosen:,} verbatims ({args.which}) marked {state} for "
-          f"{args.coder}; undo with: oecode frame {args.study} undo --coder {args.coder}")
+          f"{args.coder}; undo with: oecode frame undo {args.study} --coder {args.coder}")
 
 
 def _not_done(study: Study, args: argparse.Namespace) -> None:

@@ -16,14 +16,14 @@ ADDRESS_HELP = "a server study: postgresql://USER@HOST/DATABASE?study=NAME, or '
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     push = add_verb(subparsers, "push", "copy a study file into a PostgreSQL server (one schema per study)",
-                    ["oecode push wrenfield.study \"'service=oecode-local study=wrenfield'\""])
+                    ["oecode push wrenfield.study 'service=oecode-local study=wrenfield'"])
     push.add_argument("study", help="the study file (NAME.study)")
     push.add_argument("address", help=ADDRESS_HELP)
     push.add_argument("--replace", action="store_true", help="replace a study of the same name on the server")
     push.set_defaults(handler=run_push)
 
     pull = add_verb(subparsers, "pull", "copy a study from a PostgreSQL server into a study file",
-                    ["oecode pull \"'service=oecode-local study=wrenfield'\" copy.study"])
+                    ["oecode pull 'service=oecode-local study=wrenfield' copy.study"])
     pull.add_argument("address", help=ADDRESS_HELP)
     pull.add_argument("file", help="the study file to write (NAME.study)")
     pull.add_argument("--replace", action="store_true", help="overwrite the file if it exists")
@@ -33,7 +33,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                     ["oecode team server team-pg"])
     actions = team.add_subparsers(dest="action", metavar="ACTION", required=True)
     grant = add_action(actions, "grant", "let people code (--coder) or lead (--lead) a server study",
-                       ["oecode team grant \"'service=oecode-local study=wrenfield'\" --coder kit --lead ann --ask-password"], study=False)
+                       ["oecode team grant 'service=oecode-local study=wrenfield' --coder kit --lead ann "
+                        "--ask-password"], study=False)
     grant.add_argument("address", help=ADDRESS_HELP)
     grant.add_argument("--coder", action="append", default=[], help="a coder's name = database user (repeat)")
     grant.add_argument("--lead", action="append", default=[], help="a lead's name = database user (repeat)")
@@ -44,12 +45,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         help="set the password from this environment variable (for scripts)")
     grant.set_defaults(handler=run_grant)
     revoke = add_action(actions, "revoke", "take a member out of a server study's team (their login stays)",
-                        ["oecode team revoke \"'service=oecode-local study=wrenfield'\" kit"], study=False)
+                        ["oecode team revoke 'service=oecode-local study=wrenfield' kit"], study=False)
     revoke.add_argument("address", help=ADDRESS_HELP)
     revoke.add_argument("name")
     revoke.set_defaults(handler=run_revoke)
     members = add_action(actions, "list", "the leads and coders of a server study",
-                         ["oecode team list \"'service=oecode-local study=wrenfield'\""], study=False)
+                         ["oecode team list 'service=oecode-local study=wrenfield'"], study=False)
     members.add_argument("address", help=ADDRESS_HELP)
     members.set_defaults(handler=run_list)
     server = add_action(actions, "server", "start a throwaway PostgreSQL server in a folder, for trying team work "

@@ -1,4 +1,5 @@
-"""`oecode words | kwic | phrases ACTION | lexicon ACTION`: a question's terms, keyword in context, phrases and lexicon."""
+"""`oecode words | kwic | phrases ACTION | lexicon ACTION`: a question's terms, keyword in context, phrases and
+the lexicon."""
 
 from __future__ import annotations
 

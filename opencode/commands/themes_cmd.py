@@ -93,10 +93,17 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _actor(delete)
 
 
-def default_action(words: list[str]) -> str:
-    """The action of a command line written before themes had actions (`oecode themes STUDY --question Q
-    --k 8`): fit, or search when it scores a range of k."""
-    return "search" if any(w == "--k-range" or w.startswith("--k-range=") for w in words) else "fit"
+def old_words(words: list[str]) -> list[str]:
+    """A command line written before themes had actions of their own, read as today's (the words after
+    `themes`, the action already moved first): no action meant fit (`oecode themes STUDY --question Q --k 8`),
+    and fit with --k-range was a search."""
+    searching = any(w == "--k-range" or w.startswith("--k-range=") for w in words)
+    if words and not words[0].startswith("-") and words[0] not in HANDLERS \
+            and (len(words) == 1 or words[1].startswith("-")):
+        return ["search" if searching else "fit", *words]
+    if words and words[0] == "fit" and searching:
+        return ["search", *words[1:]]
+    return words
 
 
 def _question(parser: argparse.ArgumentParser, needed: bool = False) -> None:
@@ -230,7 +237,8 @@ def _promote(study: Study, args: argparse.Namespace) -> int:
     print(f"draft code {code.number} {code.label!r} added from theme {theme} of run {run_id}"
           + (f" (hotkey {code.hotkey})" if code.hotkey else ""))
     print(f"starting rule: {code.rule}")
-    print("it is a draft: check its label, notes and rule before coding with it (oecode frame edit, oecode frame rule)", file=sys.stderr)
+    print("it is a draft: check its label, notes and rule before coding with it (oecode frame edit, oecode frame "
+          "rule)", file=sys.stderr)
     return 0
 
 
@@ -243,4 +251,5 @@ def _delete(study: Study, args: argparse.Namespace) -> int:
     return 0
 
 
-HANDLERS = {"fit": _fit, "search": _search, "list": _list, "show": _show, "compare": _compare, "promote": _promote, "delete": _delete}
+HANDLERS = {"fit": _fit, "search": _search, "list": _list, "show": _show, "compare": _compare, "promote": _promote,
+            "delete": _delete}

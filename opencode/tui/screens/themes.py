@@ -59,7 +59,8 @@ class ThemesScreen(StudyScreen):
         self.query_one("#themes-table", DataTable).add_columns("theme", "draft label", "verbatims", "top terms")
         title = Text(f" theme runs of {s.question.name}  ·  {len(self.runs)} saved", style="bold")
         if not self.runs:
-            title.append("  ·  none yet: run `oecode themes` to find some", style="italic")
+            title.append("  ·  none yet: run `oecode themes search` or `oecode themes fit` to find some",
+                         style="italic")
         self.query_one("#themes-title", Static).update(title)
         self.show_run()
         runs.focus()
