@@ -94,3 +94,15 @@ def test_csv_to_a_file_keeps_the_text(run, demo_folder):
     assert "threshold" in out  # the text table still printed
     rows = _csv((demo_folder / "curve.csv").read_text(encoding="utf-8"))
     assert list(rows[0]) == ["threshold", "coverage", "accuracy", "precision", "recall", "verbatims"]
+
+
+def test_info_and_sample_status_json(run):
+    out, _ = run("info", STUDY, "--json")
+    records = json.loads(out)
+    assert {r["what"] for r in records} == {"open question", "closed-ended variable"}
+    assert any(r["name"] == "support" and "Strongly oppose" in r["values"] for r in records)
+    run("sample", "draw", STUDY, "--question", "why", "--name", "t", "--n", "20")
+    run("sample", "assign", STUDY, "--question", "why", "--name", "t", "--coders", "ash,bryn")
+    out, _ = run("sample", "status", STUDY, "--question", "why", "--name", "t", "--csv")
+    rows = _csv(out)
+    assert [r["coder"] for r in rows] == ["ash", "bryn"] and all(int(r["to_do"]) >= 0 for r in rows)

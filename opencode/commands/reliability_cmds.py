@@ -50,6 +50,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    [f"oecode sample status {S} --name check"])
     _question(s)
     _name(s)
+    add_table_output_options(s)
     s = add_action(actions, "list", "the samples of a question", [f"oecode sample list {S}"])
     _question(s)
     for s in actions.choices.values():
@@ -131,7 +132,12 @@ def run_sample(args: argparse.Namespace) -> int:
             print(f"sample {assigned.name}: {len(assigned.verbatim_ids):,} verbatims, coded blind by "
                   f"{', '.join(assigned.coders)}")
         else:
-            print(reliability.format_sample_status(reliability.sample_status(study, args.question, args.name)))
+            status = reliability.sample_status(study, args.question, args.name)
+            n = len(status.sample.verbatim_ids)
+            if not emit_table(args, [{"coder": p.coder, "finished": p.finished, "to_do": p.remaining,
+                                      "done_share": p.finished / n if n else None} for p in status.progress],
+                              "sample status"):
+                print(reliability.format_sample_status(status))
     return 0
 
 

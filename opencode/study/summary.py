@@ -44,6 +44,18 @@ def summarise(study: Study) -> StudySummary:
     return StudySummary(str(study.path), survey_data.respondent_count(study), questions, closed)
 
 
+def summary_records(summary: StudySummary) -> list[dict]:
+    """The summary as one table for scripts: a row per open question, then a row per closed-ended variable
+    (`what` says which), with every field."""
+    rows = [{"what": "open question", "name": q.name, "label": q.label, "verbatims": q.verbatims,
+             "nonanswers": q.nonanswers, "coded": q.coded} for q in summary.questions]
+    for v in summary.variables:
+        rows.append({"what": "closed-ended variable", "name": v.name, "label": v.label, "kind": v.kind,
+                     "role": v.role, "missing_codes": "; ".join(_plain(c) for c in sorted(v.missing_codes)),
+                     "values": "; ".join(f"{_plain(code)}={text}" for code, text in v.value_labels.items())})
+    return rows
+
+
 def format_summary(summary: StudySummary, width: int | None = None) -> str:
     """The summary as plain text for the terminal: two tables fitted to `width` (labels and value lists wrap)."""
     from opencode.files.textout import format_table
