@@ -1,7 +1,8 @@
 """Benchmark how fast the `oecode` command answers, against a bare interpreter measured in the same run.
 
 Each command runs as a fresh process (the installed `oecode` script), REPEATS times; the median is compared
-with the median of `python -c pass` from the same interpreter.
+with the median of `python -c pass` from the same interpreter. The runs go round-robin (every command once,
+then again), so a busy moment on the machine falls on all commands alike.
 Targets: `oecode --help`, `oecode --version` and `oecode VERB --help` (every verb) within 0.25 s of the bare
 interpreter; `oecode info` on the demo study under 1 s.
 Usage: python bench/bench_startup.py [--repeats N] [--study PATH.study]  (without --study, the demo study is
@@ -32,15 +33,17 @@ def oecode_script() -> str:
     return found
 
 
-def median_seconds(command: list[str], repeats: int) -> float:
-    times = []
+def median_seconds(commands: list[list[str]], repeats: int) -> list[float]:
+    """The median wall time of each command, the commands run round-robin `repeats` times."""
+    times: list[list[float]] = [[] for _ in commands]
     for _ in range(repeats):
-        start = time.perf_counter()
-        done = subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-        times.append(time.perf_counter() - start)
-        if done.returncode != 0:
-            raise SystemExit(f"bench_startup: {' '.join(command)} failed: {done.stderr.decode()[-400:]}")
-    return statistics.median(times)
+        for command, kept in zip(commands, times):
+            start = time.perf_counter()
+            done = subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+            kept.append(time.perf_counter() - start)
+            if done.returncode != 0:
+                raise SystemExit(f"bench_startup: {' '.join(command)} failed: {done.stderr.decode()[-400:]}")
+    return [statistics.median(kept) for kept in times]
 
 
 def main() -> int:
@@ -59,7 +62,9 @@ def main() -> int:
 
             print("building the demo study ...", file=sys.stderr)
             study = str(build_demo_study(Path(tmp) / "wrenfield.study"))
-        bare = median_seconds([sys.executable, "-c", "pass"], args.repeats)
+        helps = [["--help"], ["--version"]] + [[verb, "--help"] for verb in VERBS]
+        commands = [[sys.executable, "-c", "pass"], *([script, *words] for words in helps), [script, "info", study]]
+        bare, *medians = median_seconds(commands, args.repeats)
         print(f"python -c pass (reference): {bare:.3f} s (median of {args.repeats})")
         print(f"{'command':<34}{'median s':>10}{'over bare s':>13}{'ratio':>8}  target")
         failures = []
@@ -70,14 +75,12 @@ def main() -> int:
             if not ok:
                 failures.append(label)
 
-        helps = [["--help"], ["--version"]] + [[verb, "--help"] for verb in VERBS]
         worst = 0.0
-        for words in helps:
-            seconds = median_seconds([script, *words], args.repeats)
+        for words, seconds in zip(helps, medians):
             worst = max(worst, seconds - bare)
             report(f"oecode {' '.join(words)}", seconds, seconds - bare <= HELP_MARGIN,
                    f"<= bare + {HELP_MARGIN:.2f}")
-        seconds = median_seconds([script, "info", study], args.repeats)
+        seconds = medians[-1]
         report("oecode info DEMO.study", seconds, seconds < INFO_LIMIT, f"< {INFO_LIMIT:.1f} s")
         print(f"worst help/version: bare + {worst:.3f} s (target bare + {HELP_MARGIN:.2f} s)")
         print("all targets met" if not failures else f"targets missed: {', '.join(failures)}")

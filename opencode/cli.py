@@ -13,13 +13,9 @@ import difflib
 import importlib
 import os
 import re
-import sqlite3
 import sys
 
 from opencode.version import __version__
-from opencode.errors import OpenCodeError
-from opencode.files.targets import output_policy
-from opencode.files.terminal_text import TerminalStream, terminal_text
 
 #: Verbs that draw a full-screen terminal app: their output is not filtered.
 SCREEN_VERBS = {"code"}
@@ -197,7 +193,11 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "handler", None):
         parser.print_help()
         return 2
+    import sqlite3
+
+    from opencode.errors import OpenCodeError
     from opencode.files.interrupts import record_interrupts
+    from opencode.files.terminal_text import terminal_text
 
     record_interrupts()
     try:
@@ -224,6 +224,8 @@ def _command_output(args: argparse.Namespace):
     """While a verb runs: existing files are replaced only with --overwrite (or a yes at a terminal prompt),
     and nothing from user data can send control characters to the terminal."""
     from opencode.commands.common import confirm_replace
+    from opencode.files.targets import output_policy
+    from opencode.files.terminal_text import TerminalStream
 
     with output_policy(overwrite=bool(getattr(args, "overwrite", False)), confirm=confirm_replace):
         if args.verb in SCREEN_VERBS:
