@@ -13,6 +13,7 @@ import shlex
 import pytest
 
 import opencode.cli as cli
+import opencode.files.terminal_text as terminal_text
 from opencode.files.terminal_text import TerminalStream
 from test_readme_commands import walkthrough_commands
 
@@ -30,11 +31,12 @@ def test_walkthrough_output_fits_the_width(width, demo_folder, monkeypatch, caps
             super().__init__(*args, **kwargs)
             streams.append(self)
 
-    monkeypatch.setattr(cli, "TerminalStream", Recorded)
+    monkeypatch.setattr(terminal_text, "TerminalStream", Recorded)  # cli.py imports it when a verb runs
     too_wide, tables_wrapped = [], []
     for command in walkthrough_commands():
         streams.clear()
         assert cli.main(shlex.split(command)[1:]) == 0, command
+        assert streams, "the command's output did not pass through TerminalStream"
         captured = capsys.readouterr()
         for line in (captured.out + captured.err).splitlines():
             if len(line.split("\r")[-1]) > width:
