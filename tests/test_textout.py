@@ -134,3 +134,8 @@ def test_terminal_stream_wraps_prose_but_not_inside_unwrapped():
     assert all(len(line) <= 30 for line in lines[:-1])
     assert lines[-1] == "x," * 40
     assert len(stream.wrapped) == 1
+
+
+def test_narrow_two_column_table_never_repeats_a_column():
+    text = format_table(["verbatim", "a very long header that cannot fit"], [[12345678, "x" * 30]], width=20, stub=2)
+    assert text.count("12345678") == 1

@@ -283,8 +283,9 @@ def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]], align: s
     out: list[str] = []
     if title:
         out += [wrap_text(title, width), ""]
+    stub = min(stub, len(columns) - 1) if len(columns) > 1 else 0  # at least one column beside the stub
     if groups is None:
-        groups = [("", [[i] for i in range(min(stub, len(columns) - 1) if len(columns) > 1 else 0, len(columns))])]
+        groups = [("", [[i] for i in range(stub, len(columns))])]
     units = [(g, list(unit)) for g, (_, group_units) in enumerate(groups) for unit in group_units]
     widths = _widths(columns, width)
     blocks = [list(range(len(columns)))] if widths is not None else _blocks(columns, stub, width, units)
