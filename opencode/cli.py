@@ -232,8 +232,14 @@ def _command_output(args: argparse.Namespace):
             yield
             return
         out, err = sys.stdout, sys.stderr
-        sys.stdout, sys.stderr = TerminalStream(out), TerminalStream(err, keep_cr=True)
+        from opencode.files.textout import prose_width
+
+        sys.stdout = TerminalStream(out, width=prose_width(out))
+        sys.stderr = TerminalStream(err, keep_cr=True, width=prose_width(err))
         try:
             yield
         finally:
+            for stream in (sys.stdout, sys.stderr):
+                with contextlib.suppress(Exception):
+                    stream.flush()
             sys.stdout, sys.stderr = out, err

@@ -17,6 +17,14 @@ from opencode.resources import demo_dir
 from opencode.study.store import Study
 
 
+@pytest.fixture(autouse=True)
+def _no_inherited_columns(monkeypatch):
+    """Output width as in a pipe (80, prose unwrapped) unless a test sets COLUMNS itself: a COLUMNS left in the
+    environment (a shell, or a terminal library run by an earlier test in the same worker) must not change
+    what a test reads."""
+    monkeypatch.delenv("COLUMNS", raising=False)
+
+
 @pytest.fixture
 def small_csv(tmp_path: Path) -> Path:
     """A tiny survey export with an id, one open question and a few closed-ended columns."""

@@ -141,7 +141,7 @@ def test_prevalence_uses_value_labels_without_missing_codes(study, fitted):
     assert prevalence.tests.loc[0, "chi2"] == pytest.approx(chi2)
     assert prevalence.tests.loc[0, "p"] == pytest.approx(p)
     assert_allclose(prevalence.tests["p_adjusted"], multipletests(prevalence.tests["p"], method="fdr_bh")[1])
-    text = sth.format_question_themes(fitted)
+    text = sth.format_question_themes(fitted, width=200)  # wide enough for every group label on one line
     assert all(label in text for label in labels) and p_value_text(prevalence.tests.loc[0, 'p_adjusted']) in text
 
 

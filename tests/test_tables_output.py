@@ -31,7 +31,7 @@ def make_tables(weighted=False):
 
 def test_terminal_text_shows_letters_bases_and_marks():
     freq, table = make_tables()
-    text = format_table(table)
+    text = format_table(table, width=200)  # one block: every banner column on the row's line
     lines = text.splitlines()
     assert lines[0] == "Why <b>so</b>?: column % by banner"
     assert any(line.lstrip().startswith("Base: answered") for line in lines)

@@ -96,7 +96,7 @@ def test_lexicon_keeps_numbers_as_literal_terms(study_path, texts, capsys):
     assert "choose one of placeholder, keep, drop" in capsys.readouterr().err
     assert main(["kwic", path, "2013", "--question", "desc", "--limit", "200"]) == 0
     occurrences = sum(NUMBER.findall(t).count("2013") for t in texts)
-    assert f"'2013' in question desc: {occurrences} occurrence(s)" in capsys.readouterr().out
+    assert f"'2013' in question desc: all {occurrences} occurrences" in capsys.readouterr().out
 
 
 def test_lexicon_text_keeps_placeholders_and_new_settings():

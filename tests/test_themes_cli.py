@@ -37,7 +37,8 @@ def two_runs(study_path):
     return a, b
 
 
-def test_fit_prints_the_run(study_path, capsys, tmp_path):
+def test_fit_prints_the_run(study_path, capsys, tmp_path, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "200")  # group labels as whole column heads (narrower: they wrap)
     chart = tmp_path / "terms.png"
     code, out, err = _run(capsys, "fit", study_path, "--question", "why", "--k", 4, "--by", "support",
                           "--chart", chart, "--random-state", 2)

@@ -142,7 +142,8 @@ def test_compare_runs_matches_themes(data, run):
     assert len(table) == 5
     assert table["theme_a"].isna().sum() == 1
     assert (table["jaccard"].iloc[:4] > 0.5).all()
-    assert format_comparison(table).count("\n") == 6
+    text = format_comparison(table)
+    assert text.count("\n") == 8 and text.endswith("\n\nbest match first (by Jaccard)")  # 5 rows, then the order
 
 
 def test_unexplained_listing(data):

@@ -337,8 +337,22 @@ def label_key(label: str) -> str:
     return _LABEL_SPACE.sub(" ", str(label)).strip().casefold()
 
 
-def format_frame(frame: Frame, counts: dict[int, int] | None = None) -> str:
-    """A frame as a table: number, label (indented under its net), kind, hotkey, special, state, count."""
+def frame_records(frame: Frame, counts: dict[int, int] | None = None) -> list[dict]:
+    """Every code and net in frame order (a net above its codes) with all its fields, and `count` when counts
+    are given: the frame as rows for CSV or JSON."""
+    records = []
+    for code, _ in _in_frame_order(frame):
+        record = {name: getattr(code, name) for name in ("number", "label", "kind", "net", "description", "include",
+                                                         "exclude", "hotkey", "special", "active", "rule")}
+        record["examples"] = "; ".join(code.examples)
+        if counts is not None:
+            record["count"] = None if code.is_net else counts.get(code.number, 0)
+        records.append(record)
+    return records
+
+
+def _in_frame_order(frame: Frame) -> list[tuple[Code, int]]:
+    """(code, depth under nets) in frame order: each net followed by its codes, by number."""
     depth: dict[int, int] = {}
     by_number = frame.by_number()
 
@@ -357,12 +371,17 @@ def format_frame(frame: Frame, counts: dict[int, int] | None = None) -> str:
                 walk(code.number)
 
     walk(None)
+    return [(c, level(c.number)) for c in ordered]
+
+
+def format_frame(frame: Frame, counts: dict[int, int] | None = None) -> str:
+    """A frame as a table: number, label (indented under its net), kind, hotkey, special, state, count."""
     rows = []
-    for c in ordered:
+    for c, depth in _in_frame_order(frame):
         count = None if counts is None else (counts.get(c.number, 0) if not c.is_net else None)
-        rows.append([c.number, "  " * level(c.number) + c.label, c.kind, c.hotkey or "", c.special or "",
+        rows.append([c.number, "  " * depth + c.label, c.kind, c.hotkey or "", c.special or "",
                      "active" if c.active else "retired", "yes" if c.rule else "", count])
     headers = ["code", "label", "kind", "key", "special", "state", "rule", "count"]
     if counts is None:
         headers, rows = headers[:-1], [r[:-1] for r in rows]
-    return format_table(headers, rows)
+    return format_table(headers, rows, note="in code-frame order (a net above its codes)")

@@ -224,7 +224,8 @@ def format_sample_status(status: SampleStatus) -> str:
         return head + "\nno coders assigned yet (oecode sample assign STUDY --name NAME --coders A,B)"
     rows = [[p.coder, f"{p.finished:,}", f"{p.remaining:,}", f"{100 * p.finished / n:.0f}%" if n else "-"]
             for p in status.progress]
-    return "\n".join([head, format_table(["coder", "finished", "to do", "done"], rows),
+    return "\n".join([head, format_table(["coder", "finished", "to do", "done"], rows,
+                                                   note="coders in the order assigned"),
                       f"finished by every assigned coder: {status.finished_by_all:,} of {n:,}"])
 
 

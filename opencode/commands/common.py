@@ -102,3 +102,110 @@ def confirm_replace(path: Path) -> bool:
     print(f"oecode: {path} already exists; replace it? [y/N] ", end="", file=sys.stderr, flush=True)
     answer = sys.stdin.readline()
     return answer.strip().lower() in ("y", "yes")
+
+
+# -- table output for scripts ---------------------------------------------------------------------------------------
+def add_table_output_options(parser: argparse.ArgumentParser, wide: bool = False, csv_help: str = "",
+                             json_help: str = "") -> None:
+    """--csv and --json (the full columns, for scripts) and, where a table moves columns out, --wide.
+
+    `--csv` / `--json` alone print the table to stdout instead of the text table; followed by a PATH they
+    write the file and the text table is printed as usual."""
+    parser.add_argument("--csv", nargs="?", const="-", metavar="PATH",
+                        help=csv_help or "print the full table as CSV instead of text (or write it to PATH)")
+    parser.add_argument("--json", nargs="?", const="-", metavar="PATH",
+                        help=json_help or "print the full table as JSON records instead of text (or write it to "
+                                          "PATH)")
+    if wide:
+        parser.add_argument("--wide", action="store_true",
+                            help="show the secondary columns too (the table may then be cut into blocks)")
+
+
+def table_targets(args: argparse.Namespace) -> list[str]:
+    """The files --csv / --json will write (to check before slow work)."""
+    return [path for path in (getattr(args, "csv", None), getattr(args, "json", None)) if path and path != "-"]
+
+
+def emit_table(args: argparse.Namespace, frame, name: str = "table") -> bool:
+    """Write `frame` (a DataFrame, or a list of dicts) as --csv / --json asked: to stdout ('-') or to a file.
+    True when the table went to stdout, so the caller prints nothing else there."""
+    csv_target, json_target = getattr(args, "csv", None), getattr(args, "json", None)
+    if not (csv_target or json_target):
+        return False
+    import pandas as pd
+
+    from opencode.files.terminal_text import unwrapped
+
+    if isinstance(frame, pd.DataFrame):
+        table = frame.convert_dtypes()  # whole numbers stay whole (a code column with a gap is not 1.0)
+        columns = [str(c) for c in table.columns]
+        rows = [list(row) for row in table.itertuples(index=False)]
+    else:
+        records = list(frame)
+        columns = list(dict.fromkeys(key for record in records for key in record))
+        rows = [[record.get(key) for key in columns] for record in records]
+    table = (columns, rows)
+    printed = False
+    for target, kind in ((csv_target, "csv"), (json_target, "json")):
+        if not target:
+            continue
+        text = _table_csv(table) if kind == "csv" else _table_json(table)
+        if target == "-":
+            with unwrapped(sys.stdout) as out:
+                out.write(text)
+                out.flush()
+            printed = True
+        else:
+            from opencode.files.safe_write import atomic_open
+
+            with atomic_open(target, "w", newline="" if kind == "csv" else None) as handle:
+                handle.write(text)
+            print(f"{name} written to {target}", file=sys.stderr)
+    return printed
+
+
+def _table_csv(table) -> str:
+    """CSV text with a header row; text cells pass the spreadsheet cell guard; a missing value is empty."""
+    import csv
+    import io
+
+    from opencode.files.cell_guard import guard_cell
+
+    columns, rows = table
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow([guard_cell(c) for c in columns])
+    for row in rows:
+        values = [_plain_value(v) for v in row]
+        writer.writerow(["" if v is None else guard_cell(v) if isinstance(v, str) else
+                         "; ".join(map(str, v)) if isinstance(v, list) else v for v in values])
+    return out.getvalue()
+
+
+def _table_json(table) -> str:
+    """JSON: a list of records, NaN as null, numpy numbers as plain numbers, lists kept as lists."""
+    import json
+
+    columns, rows = table
+    records = [{key: _plain_value(v) for key, v in zip(columns, row)} for row in rows]
+    return json.dumps(records, ensure_ascii=False, indent=1, default=str) + "\n"
+
+
+def _plain_value(value):
+    """A cell as a plain Python value: numpy scalars unwrapped, NaN as None, tuples as lists."""
+    import math
+
+    if value is None or (type(value).__name__ in ("NAType", "NaTType")):
+        return None
+    if hasattr(value, "item") and not isinstance(value, (list, tuple, dict, str)):
+        try:
+            value = value.item()
+        except (ValueError, AttributeError):
+            pass
+    if isinstance(value, float) and not math.isfinite(value):
+        return None if math.isnan(value) else ("inf" if value > 0 else "-inf")
+    if isinstance(value, tuple):
+        return [_plain_value(v) for v in value]
+    if isinstance(value, list):
+        return [_plain_value(v) for v in value]
+    return value

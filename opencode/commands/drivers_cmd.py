@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import argparse
 import csv
-
+import sys
 from typing import TYPE_CHECKING
 
-from opencode.commands.common import progress_bar, add_overwrite_option
+from opencode.commands.common import (
+    add_overwrite_option, add_table_output_options, emit_table, progress_bar, table_targets,
+)
 from opencode.errors import OpenCodeError
 
 if TYPE_CHECKING:
@@ -62,7 +64,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--force", action="store_true", help="print the table even when the text barely predicts "
                         "the outcome")
     parser.add_argument("--chart", metavar="PATH.png", help="write a chart of the top terms on each side")
-    parser.add_argument("--csv", metavar="PATH", help="write the whole ranking table as CSV")
+    add_table_output_options(parser, wide=True,
+                             csv_help="every term of every comparison as CSV: alone, on stdout instead of the text; "
+                                      "with PATH, written to the file")
     parser.add_argument("--indicators", nargs="+", metavar="TERM", help="store 0/1 variables '<question>_t_<term>' "
                         "for these terms, for tables and exports")
     parser.add_argument("--actor", default="oecode", help="who makes the change (for the audit trail)")
@@ -71,6 +75,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run_drivers(args: argparse.Namespace) -> int:
+    import pandas as pd
+
     from opencode.analysis.drivers import study as sdr
     from opencode.files.targets import check_targets
     from opencode.study.store import Study
@@ -79,7 +85,7 @@ def run_drivers(args: argparse.Namespace) -> int:
         raise OpenCodeError(f"--top {args.top}: give at least 1")
     if args.chart and not args.chart.lower().endswith(".png"):
         raise OpenCodeError(f"--chart {args.chart}: the chart is a PNG file; end the name in .png")
-    check_targets([(path, None) for path in (args.chart, args.csv) if path])  # before the slow work
+    check_targets([(path, None) for path in (args.chart, *table_targets(args)) if path])  # before the slow work
     with Study.open(args.study) as study:
         result = sdr.question_drivers(
             study, args.question, args.outcome, split=args.split, one_vs_rest=args.one_vs_rest,
@@ -89,16 +95,24 @@ def run_drivers(args: argparse.Namespace) -> int:
         ascending = True if args.ascending else (False if args.descending else None)
         sdr.remember_choice(study, args.question, args.outcome, split=args.split, one_vs_rest=args.one_vs_rest,
                             actor=args.actor)
-        print(sdr.format_drivers(result, sort_by=args.sort, ascending=ascending, n=args.top, force=args.force))
+        tables = [sdr.sorted_table(result, c, args.sort, ascending) for c in result.comparisons]
+        ranked = pd.concat([t.assign(comparison=c.title) for c, t in zip(result.comparisons, tables)],
+                           ignore_index=True)
+        ranked = ranked[["comparison", *[c for c in ranked.columns if c != "comparison"]]]
+        data = emit_table(argparse.Namespace(csv="-" if args.csv == "-" else None, json=args.json), ranked,
+                          "ranking table")
+        say = sys.stderr if data else sys.stdout  # stdout carries only the data then
+        if not data:
+            print(sdr.format_drivers(result, sort_by=args.sort, ascending=ascending, n=args.top, force=args.force,
+                                     wide=args.wide))
         if args.chart:
             for path in sdr.drivers_chart(result, args.chart):
-                print(f"chart written to {path}")
-        if args.csv:
-            tables = [sdr.sorted_table(result, c, args.sort, ascending) for c in result.comparisons]
-            print(f"ranking table written to {write_csv(result, tables, args.csv)}")
+                print(f"chart written to {path}", file=say)
+        if args.csv and args.csv != "-":
+            print(f"ranking table written to {write_csv(result, tables, args.csv)}", file=say)
         if args.indicators:
             names = sdr.write_indicators(study, args.question, result, args.indicators, actor=args.actor)
-            print("indicator variables stored: " + ", ".join(names))
+            print("indicator variables stored: " + ", ".join(names), file=say)
     return 0
 
 

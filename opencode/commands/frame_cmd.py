@@ -7,7 +7,9 @@ from typing import TYPE_CHECKING
 
 from opencode.coding.choices import BLANK_MEANINGS, DEFAULT_DELIMITERS, FILTERS, KINDS, LAYOUTS, SPECIALS
 from opencode.errors import OpenCodeError
-from opencode.commands.common import add_action, add_actions, add_overwrite_option
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, emit_table,
+)
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -26,6 +28,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p = add_action(actions, "list", "the frame's codes and nets (with one coder's counts)", [f"oecode frame list {S}"])
     _question(p)
     p.add_argument("--coder", help="count this coder's hand codes beside each code")
+    add_table_output_options(p)
 
     p = add_action(actions, "add", "add a code (or a net) to the frame",
                    [f'oecode frame add {S} --label "Opening hours" --hotkey h',
@@ -203,6 +206,8 @@ def _list(study: Study, args: argparse.Namespace) -> None:
 
     frame = frames.load_frame(study, args.question)
     counts = code_counts(study, args.question, args.coder) if args.coder else None
+    if emit_table(args, frames.frame_records(frame, counts), "frame"):
+        return
     print(f"frame {frame.name}: {sum(not c.is_net for c in frame.codes)} codes, "
           f"{sum(c.is_net for c in frame.codes)} nets" + (f"; counts: hand codes of {args.coder}" if counts else ""))
     print(frames.format_frame(frame, counts))
@@ -353,6 +358,7 @@ def _not_done(study: Study, args: argparse.Namespace) -> None:
 
 def _rule(study: Study, args: argparse.Namespace) -> None:
     from opencode.coding import rules
+    from opencode.files.textout import format_table
 
     _need(args, "code")
     text = args.rule if args.rule is not None else rules.code_rule(study, args.question, args.code)
@@ -361,12 +367,12 @@ def _rule(study: Study, args: argparse.Namespace) -> None:
     if args.dry_run:
         hits = rules.rule_hits(study, args.question, text, code=args.code)
         print(f"rule for code {args.code}: {text}")
-        print(f"would pre-code {hits.count} of {hits.total} verbatims (nothing written)"
-              + (f"; first {min(args.show, hits.count)} by respondent id, as the desk's go-to takes it:"
-                 if hits.count and args.show > 0 else ""))
-        width = max((len(r) for r in hits.respondents[: args.show]), default=0)
-        for respondent, verbatim in list(zip(hits.respondents, hits.texts))[: args.show]:
-            print(f"  {respondent:>{width}}  {verbatim[:100]}")
+        print(f"would pre-code {hits.count} of {hits.total} verbatims (nothing written)")
+        shown = list(zip(hits.respondents, hits.texts))[: args.show]
+        if shown:
+            print(format_table(["respondent", "text"], [[r, " ".join(t.split())] for r, t in shown], align="ll",
+                               note=f"{len(shown)} of {hits.count} matches, in verbatim order; respondent ids as the "
+                               "desk's go-to takes them"))
         return
     rules.set_rule(study, args.question, args.code, text, actor=_actor(args))
     print(f"code {args.code} rule set: {text}" if text else f"code {args.code} rule removed")

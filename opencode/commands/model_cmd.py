@@ -10,7 +10,7 @@ import argparse
 from typing import TYPE_CHECKING
 
 from opencode.coding.choices import FINAL
-from opencode.commands.common import add_action, add_actions, progress_line
+from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, progress_line
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -35,11 +35,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p = add_action(actions, "report", "the trained model: precision, recall, F1 and kappa per code",
                    [f"oecode model report {S}"])
     _question(p)
+    add_table_output_options(p)
     p = add_action(actions, "curve", "coverage against accuracy: how much the model can code at each threshold",
                    [f"oecode model curve {S} --threshold 0.9"])
     _question(p)
     p.add_argument("--threshold", type=float, help="show per-code precision and recall at this threshold "
                    "(default 0.80)")
+    add_table_output_options(p, csv_help="the curve (one row per threshold) as CSV instead of the text (or "
+                                         "written to PATH)")
     p = add_action(actions, "suggest", "the likeliest codes of verbatims a coder has not coded",
                    [f"oecode model suggest {S} --coder ash --limit 10"])
     _question(p)
@@ -60,6 +63,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="learn: what the model is least sure about (default); second-look: hand codes it "
                    "strongly disagrees with")
     _limit(p)
+    add_table_output_options(p)
     p = add_action(actions, "rules", "pre-code verbatims by the frame's keyword rules (as suggestions)",
                    [f"oecode model rules {S} --coder ash"])
     _question(p)
@@ -108,14 +112,16 @@ def _report(study: Study, args: argparse.Namespace) -> None:
     from opencode.files.textout import format_table
 
     trained = machine_coding.load_model(study, args.question)
+    rows = machine_coding.code_report(study, args.question)
+    if emit_table(args, rows, "model report"):
+        return
     for note in trained.notes:
         print(note)
-    rows = machine_coding.code_report(study, args.question)
     print("cross-validated, machine versus human (probability 0.5):")
     print(format_table(["code", "label", "examples", "precision", "recall", "F1", "kappa"],
                        [[r["code"], r["label"][:40], r["examples"], r["precision"], r["recall"], r["f1"], r["kappa"]]
                         if r["suggests"] else [r["code"], r["label"][:40], r["examples"], "cannot suggest", "", "", ""]
-                        for r in rows]))
+                        for r in rows], note="in code-frame order"))
 
 
 def _share(value: float) -> str:
@@ -139,16 +145,19 @@ def _curve(study: Study, args: argparse.Namespace) -> None:
 
     report = machine_coding.curve(study, args.question, code_threshold=0.8 if args.threshold is None
                                   else args.threshold)
+    if emit_table(args, report.rows, "coverage curve"):
+        return
     print("semi-automatic coding: the model codes a verbatim only when sure of every code it can suggest; "
           "people code the rest")
     print(format_table(["threshold", "auto-coded", "accuracy", "precision", "recall", "verbatims"],
                        [[f"{r['threshold']:.2f}", _share(r["coverage"]), _share(r["accuracy"]), _ratio(r["precision"]),
-                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr"))
+                         _ratio(r["recall"]), r["verbatims"]] for r in report.rows], align="rrrrrr",
+                       note="by threshold"))
     print(f"per code on the verbatims auto-coded at {report.threshold:.2f}:")
     print(format_table(["code", "label", "machine", "person", "both", "precision", "recall", ""],
                        [[c["code"], c["label"][:40], c["machine"], c["person"], c["both"], _ratio(c["precision"]),
                          _ratio(c["recall"]), "" if c["suggests"] else "cannot suggest"] for c in report.codes],
-                       align="rlrrrrrl"))
+                       align="rlrrrrrl", note="in code-frame order"))
     for note in report.notes:
         print(f"- {note}")
     if report.suggested_threshold is None:
@@ -174,7 +183,7 @@ def _suggest(study: Study, args: argparse.Namespace) -> None:
         rows.append([respondent, "  ".join(f"{int(c)}:{p:.2f}" for c, p in best.items())])
     print(f"{len(proba)} verbatims not yet coded by {_coder_of(args)}; first {len(rows)} (by respondent id, as the "
           "desk's go-to takes it):")
-    print(format_table(["respondent", "likeliest codes (probability)"], rows))
+    print(format_table(["respondent", "likeliest codes (probability)"], rows, note="in verbatim order"))
     print(SUGGESTION_NOTE)
 
 
@@ -194,17 +203,21 @@ def _queue(study: Study, args: argparse.Namespace) -> None:
 
     if args.kind == "learn":
         items = machine_coding.learning_queue(study, args.question, _coder_of(args), n=args.limit)
+        if emit_table(args, items, "queue"):
+            return
         print("code these next (the model is least sure about them; respondent ids as the desk's go-to takes them):")
-        print(format_table(["respondent", "doubt", "code", "p", "text"],
+        print(format_table(["respondent", "doubt", "code", "probability", "text"],
                            [[i["respondent"], i["uncertainty"], i["code"], i["probability"], i["text"][:70]]
-                            for i in items]))
+                            for i in items], note="most doubtful first"))
     else:
         items = machine_coding.second_look_queue(study, args.question, args.coder, n=args.limit)
+        if emit_table(args, items, "queue"):
+            return
         print("hand codes worth a second look (the model strongly disagrees in cross-validation; respondent ids as "
               "the desk's go-to takes them):")
-        print(format_table(["respondent", "coder", "code", "p", "why", "text"],
+        print(format_table(["respondent", "coder", "code", "probability", "why", "text"],
                            [[i["respondent"], i["coder"], i["code"], i["probability"], i["why"], i["text"][:60]]
-                            for i in items]))
+                            for i in items], note="strongest disagreement first"))
 
 
 def _rules(study: Study, args: argparse.Namespace) -> None:
@@ -212,5 +225,5 @@ def _rules(study: Study, args: argparse.Namespace) -> None:
     from opencode.files.textout import format_table
 
     written = rules.apply_rules(study, args.question, coder=_coder_of(args))
-    print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())]))
+    print(format_table(["code", "suggestions"], [[c, n] for c, n in sorted(written.items())], note="by code"))
     print(f"rule codes are suggestions for {_coder_of(args)}: they count only once a person accepts them at the desk")

@@ -10,7 +10,9 @@ from opencode.analysis.choices import TABLE_SUFFIXES
 from opencode.coding.choices import FINAL
 from opencode.errors import OpenCodeError
 from opencode.export.choices import EXPORT_FORMATS, SSS_FORMATS, SSS_MULTIPLE_LAYOUTS
-from opencode.commands.common import add_overwrite_option, add_verb
+from opencode.commands.common import (
+    add_overwrite_option, add_table_output_options, add_verb, emit_table, table_targets,
+)
 RAW_REMINDER = ("reminder: verbatims can identify respondents; your organisation's data-protection rules come "
                 "first: share this file only as they allow")
 MASKED_REMINDER = ("verbatims masked: e-mail addresses, phone numbers and web addresses replaced; names and other "
@@ -32,6 +34,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     tables.add_argument("--ci", action="store_true", help="show each percentage's Wilson score interval at the "
                         "--confidence level (on the Kish effective base when weighted)")
     tables.add_argument("--out", help="also write the tables: .csv, .xlsx (a sheet per table) or .html")
+    add_table_output_options(tables, csv_help="one row per code and net with every number of the tables (shares "
+                                              "0-1, letters, q) as CSV instead of the text (or written to PATH)")
     add_overwrite_option(tables)
     tables.set_defaults(handler=run_tables)
 
@@ -106,14 +110,16 @@ def run_tables(args: argparse.Namespace) -> int:
 
     if args.out and Path(args.out).suffix.lower() not in TABLE_SUFFIXES:
         raise OpenCodeError(f"{args.out}: tables are written as {', '.join(TABLE_SUFFIXES)}")
-    if args.out:
-        check_writable_target(args.out)
+    for path in [args.out, *table_targets(args)]:
+        if path:
+            check_writable_target(path)
     with Study.open(args.study) as study:
         made = question_tables(study, args.question, args.banner, coder=args.coder,
                                include_suggestions=args.with_suggestions, weight=args.weight,
                                unweighted=args.unweighted, confidence=_level(args.confidence, "--confidence"),
                                lower_confidence=_level(args.lower, "--lower"), intervals=args.ci)
-    print(format_table(made.tables[-1]))
+    if not emit_table(args, made.to_full_frame(), "table"):
+        print(format_table(made.tables[-1]))
     _warn(made.warnings)
     if args.out:
         print(f"wrote {write_tables(made.tables, args.out)}")

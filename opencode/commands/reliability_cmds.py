@@ -10,7 +10,9 @@ from opencode.analysis.choices import AGREEMENT_ALPHA_BAR, AGREEMENT_KAPPA_BAR
 from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
 from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
-from opencode.commands.common import add_action, add_actions, add_overwrite_option, add_verb
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table,
+)
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -49,6 +51,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    [f"oecode sample status {S} --name check"])
     _question(s)
     _name(s)
+    add_table_output_options(s)
     s = add_action(actions, "list", "the samples of a question", [f"oecode sample list {S}"])
     _question(s)
     for s in actions.choices.values():
@@ -66,7 +69,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--resamples", type=int, default=1000, help="bootstrap resamples for intervals (0: none)")
     a.add_argument("--seed", type=int, default=0, help="bootstrap seed")
     a.add_argument("--top", type=int, default=10, help="how many disputed verbatims and swapped codes to list")
-    a.add_argument("--csv", help="also write the results as a long CSV file")
+    add_table_output_options(a, csv_help="the statistics per code as CSV on stdout instead of the text; with PATH, "
+                                         "also write the results as a long CSV file",
+                             json_help="the statistics per code as JSON records on stdout instead of the text (or "
+                                       "written to PATH)")
     a.add_argument("--html", help="also write the results as an HTML page")
     a.add_argument("--differences", type=int, metavar="N", help="list N verbatims where the coders differ")
     a.add_argument("--kappa-bar", type=float, default=AGREEMENT_KAPPA_BAR, metavar="K",
@@ -136,7 +142,12 @@ def run_sample(args: argparse.Namespace) -> int:
             print(f"sample {assigned.name}: {len(assigned.verbatim_ids):,} verbatims, coded blind by "
                   f"{', '.join(assigned.coders)}")
         else:
-            print(reliability.format_sample_status(reliability.sample_status(study, args.question, args.name)))
+            status = reliability.sample_status(study, args.question, args.name)
+            n = len(status.sample.verbatim_ids)
+            if not emit_table(args, [{"coder": p.coder, "finished": p.finished, "to_do": p.remaining,
+                                      "done_share": p.finished / n if n else None} for p in status.progress],
+                              "sample status"):
+                print(reliability.format_sample_status(status))
     return 0
 
 
@@ -187,6 +198,17 @@ def _write_html(path: str, fragment: str, title: str) -> None:
                      f"</title></head><body>\n{fragment}\n</body></html>\n")
 
 
+def _agreement_frame(result):
+    """The agreement statistics as one table: per code for nominal codes, the scale table for a scale."""
+    if hasattr(result, "to_frame"):
+        return result.to_frame()
+    import pandas as pd
+
+    from opencode.analysis.agreement.report import _SCALE_HEADERS, _scale_rows
+
+    return pd.DataFrame(_scale_rows(result), columns=_SCALE_HEADERS)
+
+
 def run_agree(args: argparse.Namespace) -> int:
     from opencode.analysis.agreement.report import (format_agreement_html, format_agreement_text,
                                                    format_scale_agreement_text, write_agreement_csv,
@@ -197,8 +219,9 @@ def run_agree(args: argparse.Namespace) -> int:
     from opencode.files.targets import check_target
     from opencode.study.store import Study
 
-    if args.csv:
-        check_target(args.csv)  # before the slow work
+    for path in (args.csv, args.json):
+        if path and path != "-":
+            check_target(path)  # before the slow work
     with Study.open(args.study) as study:
         if args.adjudicate:
             _adjudicate(study, args)
@@ -211,12 +234,15 @@ def run_agree(args: argparse.Namespace) -> int:
         if args.level:
             remember_level(study, args.question, args.level, args.weights, scale, actor=args.actor)
         where = f"question {args.question}" + (f", reliability sample {args.sample}" if args.sample else "")
-        print(f"Agreement on {where}\n")
         on_scale = isinstance(result, ScaleAgreementResult)
+        if emit_table(argparse.Namespace(csv="-" if args.csv == "-" else None, json=args.json),
+                      _agreement_frame(result), "agreement table"):
+            return 0
+        print(f"Agreement on {where}\n")
         hint = "" if args.include_special_codes else "Count them in with --include-special-codes."
         print(format_scale_agreement_text(result) if on_scale else format_agreement_text(result, special_hint=hint),
               end="")
-        if args.csv:
+        if args.csv and args.csv != "-":
             print(f"\nwrote {(write_scale_agreement_csv if on_scale else write_agreement_csv)(result, args.csv)}")
         if args.html:
             _write_html(args.html, format_agreement_html(result, f"Coder agreement: {where}"),

@@ -6,7 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from opencode.commands.common import add_action, add_actions
+from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, table_targets
 from opencode.errors import OpenCodeError
 
 MIX_SUFFIXES = (".csv", ".xlsx", ".html")
@@ -38,6 +38,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     weights.add_argument("--weight", help="the weight variable (default: the study's weight, if any)")
     weights.add_argument("--unweighted", action="store_true", help="ignore the survey weight")
     m.add_argument("--out", help="also write the table (.csv, .xlsx or .html)")
+    add_table_output_options(m)
 
 
 def run_sentiment(args: argparse.Namespace) -> int:
@@ -51,7 +52,10 @@ def run_sentiment(args: argparse.Namespace) -> int:
                                            actor=args.actor)
         print(sentiment.format_run(run))
         return 0
-    from opencode.analysis.tables.output import format_table, to_html, write_csv, write_xlsx
+    from opencode.analysis.tables.output import format_table, table_records, to_html, write_csv, write_xlsx
+
+    for path in table_targets(args):
+        check_writable_target(path)
 
     if args.out:
         if Path(args.out).suffix.lower() not in MIX_SUFFIXES:
@@ -61,7 +65,8 @@ def run_sentiment(args: argparse.Namespace) -> int:
         table = sentiment.question_mix(study, args.question, coder=args.coder,
                                        include_suggestions=args.with_suggestions, weight=args.weight,
                                        unweighted=args.unweighted)
-    print(format_table(table))
+    if not emit_table(args, table_records(table), "mix table"):
+        print(format_table(table))
     small = [r.label for r, flag in zip(table.rows, table.small_base & (table.base_n > 0)) if flag]
     if small:
         print(f"warning: rows with bases under {table.min_base} flagged (!) and not tested: {', '.join(small)}",

@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-from opencode.commands.common import add_verb, parse_number_list, parse_pairs, progress_line
+from opencode.commands.common import (
+    add_table_output_options, add_verb, emit_table, parse_number_list, parse_pairs, progress_line,
+)
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -32,6 +34,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     info = add_verb(subparsers, "info", "questions, verbatim counts and closed-ended variables of a study",
                     ["oecode info survey.study"])
     info.add_argument("study")
+    add_table_output_options(info, csv_help="the questions and variables as one CSV table instead of the text "
+                                            "(or written to PATH)")
     info.set_defaults(handler=run_info)
 
 
@@ -61,8 +65,10 @@ def run_new(args: argparse.Namespace) -> int:
 
 def run_info(args: argparse.Namespace) -> int:
     from opencode.study.store import Study
-    from opencode.study.summary import format_summary, summarise
+    from opencode.study.summary import format_summary, summarise, summary_records
 
     with Study.open(args.study) as study:
-        print(format_summary(summarise(study)))
+        summary = summarise(study)
+    if not emit_table(args, summary_records(summary), "study summary"):
+        print(format_summary(summary))
     return 0

@@ -8,7 +8,9 @@ import sys
 
 from typing import TYPE_CHECKING
 
-from opencode.commands.common import add_action, add_actions, add_overwrite_option, add_verb, progress_bar
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table, progress_bar,
+)
 from opencode.errors import OpenCodeError
 
 if TYPE_CHECKING:
@@ -27,6 +29,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     words.add_argument("--top", type=int, default=30, help="how many terms (default 30)")
     words.add_argument("--where", metavar="VAR=CODE", action="append", default=[],
                        help="only respondents with this code or value label (repeat: all must hold)")
+    add_table_output_options(words)
     words.set_defaults(handler=run_words)
 
     kw = add_verb(subparsers, "kwic", "every occurrence of a term in its verbatims, aligned",
@@ -38,6 +41,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     kw.add_argument("--limit", type=int, default=50, help="at most this many lines (default 50)")
     kw.add_argument("--show", nargs="+", action="extend", default=[], metavar="VAR",
                     help="closed-ended variables to show beside each line (by value label)")
+    add_table_output_options(kw)
     kw.set_defaults(handler=run_kwic)
 
     ph = subparsers.add_parser("phrases", help="suggest, add, accept or remove multi-word phrases",
@@ -51,6 +55,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _question(p)
     p.add_argument("--min-count", type=int, default=5, help="pairs seen at least this often (default 5)")
     p.add_argument("--top", type=int, default=30, help="how many suggestions (default 30)")
+    add_table_output_options(p)
     p = add_action(actions, "accept", "add suggestions by their rank in the last list",
                    [f"oecode phrases accept survey.study 1 3 --question why"], usage="RANK [RANK ...]")
     p.add_argument("values", nargs="+", metavar="RANK", help="ranks from the last suggestion list")
@@ -167,6 +172,10 @@ def run_words(args: argparse.Namespace) -> int:
             groups.append(label)
         group = " and ".join(groups)
         rows = top_terms(tm, args.top, subset)
+        if emit_table(args, [{"term": r.term, "label": r.label, "count": r.count, "verbatims": r.verbatims,
+                              "percent": r.percent, "forms": "; ".join(f"{f} ({n})" for f, n in r.surfaces)}
+                             for r in rows], "terms"):
+            return 0
         chosen = np.ones(len(frame), dtype=bool) if subset is None else subset
         base = int(chosen[tm.rows_source].sum())
         left_out = int((chosen & frame["nonanswer"].to_numpy(dtype=bool)).sum())
@@ -184,6 +193,7 @@ def run_words(args: argparse.Namespace) -> int:
 def run_kwic(args: argparse.Namespace) -> int:
     from opencode.study.store import Study
     from opencode.text import study_text as st
+    from opencode.text.kwic import kwic_summary
 
     if args.width < 1 or args.limit < 1:
         raise OpenCodeError("--width and --limit must be 1 or more")
@@ -191,8 +201,11 @@ def run_kwic(args: argparse.Namespace) -> int:
         matrix = _matrix(study, args.question)  # builds (with a progress bar) or loads the cached matrix
         lines, columns = st.question_kwic(study, args.question, args.term, width=args.width, limit=args.limit,
                                           show=args.show, matrix=matrix)
-        print(f"{args.term!r} in question {args.question}: {len(lines)} occurrence(s)"
-              + (f" (first {args.limit})" if len(lines) >= args.limit else ""))
+        if emit_table(args, [{"respondent": line.doc_id, **{name: values[i] for name, values in columns.items()},
+                              "before": line.left, "match": line.match, "after": line.right}
+                             for i, line in enumerate(lines)], "kwic lines"):
+            return 0
+        print(kwic_summary(args.term, args.question, lines))
         if lines:
             print(st.format_question_kwic(lines, columns, args.width))
     return 0
@@ -212,10 +225,11 @@ def run_phrases(args: argparse.Namespace) -> int:
             if not rows:
                 print(f"no word pair occurs {args.min_count} times or more in question {q}")
                 return 0
-            table = format_phrase_suggestions(rows).splitlines()
-            print("  #  " + table[0] + "\n" + "---  " + table[1])
-            for rank, line in enumerate(table[2:], start=1):
-                print(f"{rank:>3}  {line}")
+            if emit_table(args, [{"rank": rank, "phrase": r.phrase, "first": r.terms[0], "second": r.terms[1],
+                                   "count": r.count, "g2": r.g2, "pmi": r.pmi}
+                                  for rank, r in enumerate(rows, start=1)], "phrase suggestions"):
+                return 0
+            print(format_phrase_suggestions(rows, ranked=True))
             print(f"accept with: oecode phrases accept {args.study} RANK [RANK ...] --question {q}")
             return 0
         if args.action == "accept":

@@ -7,7 +7,10 @@ import sys
 from typing import TYPE_CHECKING
 
 from opencode.analysis.choices import SHORT_TEXT_NOTE, THEMES_MIN_DF
-from opencode.commands.common import add_action, add_actions, add_overwrite_option, progress_bar, wrap
+from opencode.commands.common import (
+    add_action, add_actions, add_overwrite_option, add_table_output_options, emit_table, progress_bar, table_targets,
+    wrap,
+)
 from opencode.errors import OpenCodeError
 
 if TYPE_CHECKING:
@@ -40,6 +43,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                        help="start themes from the question's codes (their rules, else their labels); optionally "
                        "only these code numbers, e.g. 1,2,5")
     fit.add_argument("--chart", metavar="PATH.png", help="write a chart of each theme's top terms")
+    add_table_output_options(fit)
     _actor(fit)
     add_overwrite_option(fit)
 
@@ -51,17 +55,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "rule and why it chose k are printed)")
     _model_options(search)
     search.add_argument("--chart", metavar="PATH.png", help="write the k curve")
+    add_table_output_options(search)
     _actor(search)
     add_overwrite_option(search)
 
     runs = add_action(actions, "list", "the runs kept for a question (or for every question)",
                       ["oecode themes list survey.study --question why"], handler=run_themes)
     _question(runs)
+    add_table_output_options(runs)
 
     show = add_action(actions, "show", "a kept run again (or the verbatims no theme explains)",
                       ["oecode themes show survey.study 3 --unexplained"], handler=run_themes, usage="RUN_ID")
     show.add_argument("run_id", metavar="RUN_ID", help="the run's id (from list)")
     show.add_argument("--unexplained", action="store_true", help="list the verbatims no theme explains")
+    add_table_output_options(show)
 
     compare = add_action(actions, "compare", "match the themes of two runs by their top terms",
                          ["oecode themes compare survey.study 3 4"], handler=run_themes, usage="RUN_A RUN_B")
@@ -128,8 +135,9 @@ def run_themes(args: argparse.Namespace) -> int:
     from opencode.files.targets import check_target
     from opencode.study.store import Study
 
-    if getattr(args, "chart", None):
-        check_target(args.chart)  # before the slow work
+    for path in [getattr(args, "chart", None), *table_targets(args)]:
+        if path:
+            check_target(path)  # before the slow work
     with Study.open(args.study) as study:
         return HANDLERS[args.action](study, args)
 
@@ -147,9 +155,11 @@ def _fit(study: Study, args: argparse.Namespace) -> int:
     result = sth.question_themes(study, args.question, k=args.k, by=args.by, seed_terms=args.seed_terms,
                                  seed_from_frame=seed_codes, progress=progress_bar("analysing verbatims"),
                                  **_common(args))
-    print(sth.format_question_themes(result))
+    data = emit_table(args, result.to_full_frame(), "themes")
+    if not data:
+        print(sth.format_question_themes(result))
     if args.chart:
-        print(f"term chart written to {plot_theme_terms(result.run, args.chart)}")
+        print(f"term chart written to {plot_theme_terms(result.run, args.chart)}", file=sys.stderr if data else sys.stdout)
     return 0
 
 
@@ -169,16 +179,20 @@ def _search(study: Study, args: argparse.Namespace) -> int:
     bar = progress_bar("fitting k")
     result = sth.question_theme_search(study, args.question, args.k_range,
                                        progress=lambda done, total, k: bar(done, total), **_common(args))
-    print(sth.format_question_k_search(result))
+    data = emit_table(args, result.search.table, "k search")
+    if not data:
+        print(sth.format_question_k_search(result))
     if args.chart:
-        print(f"k curve written to {plot_k_curve(result.search, args.chart)}")
+        print(f"k curve written to {plot_k_curve(result.search, args.chart)}", file=sys.stderr if data else sys.stdout)
     return 0
 
 
 def _list(study: Study, args: argparse.Namespace) -> int:
     from opencode.analysis.themes import study as sth
 
-    print(sth.format_run_list(sth.list_theme_runs(study, args.question)))
+    table = sth.list_theme_runs(study, args.question)
+    if not emit_table(args, table, "theme runs"):
+        print(sth.format_run_list(table))
     return 0
 
 
@@ -190,13 +204,16 @@ def _show(study: Study, args: argparse.Namespace) -> int:
     if isinstance(loaded, sth.QuestionKSearch):
         if args.unexplained:
             raise OpenCodeError(f"run {run_id} is a k search: it has no unexplained verbatims to list")
-        print(sth.format_question_k_search(loaded))
+        if not emit_table(args, loaded.search.table, "k search"):
+            print(sth.format_question_k_search(loaded))
     elif args.unexplained:
         table = sth.unexplained_in_run(study, run_id)
+        if emit_table(args, table, "unexplained verbatims"):
+            return 0
         print(f"theme run {run_id}, question {loaded.question}: {len(table)} verbatim(s) with terms explained by "
               "no theme")
         print(sth.format_unexplained(table))
-    else:
+    elif not emit_table(args, loaded.to_full_frame(), "themes"):
         print(sth.format_question_themes(loaded))
     return 0
 

@@ -8,6 +8,7 @@ the aligned tables of files/textout.py clean each cell.
 
 from __future__ import annotations
 
+import contextlib
 import re
 from typing import TextIO
 
@@ -29,19 +30,72 @@ def one_line(text: str) -> str:
 
 
 class TerminalStream:
-    """A text stream that cleans everything written through it before it reaches the real stream."""
+    """A text stream that cleans everything written through it before it reaches the real stream.
 
-    def __init__(self, stream: TextIO, keep_cr: bool = False):
+    With a `width`, a complete line longer than the width (prose: a note, a warning, a list of ids) is wrapped
+    on spaces (files/textout.wrap_line); tables arrive already fitted by files/textout.format_table. Lines
+    wrapped this way are kept in `wrapped` so that tests can tell that no table needed it. A line holding a
+    carriage return (a progress bar redrawing itself) passes as it is.
+    """
+
+    def __init__(self, stream: TextIO, keep_cr: bool = False, width: int | None = None):
         self._stream = stream
         self._keep_cr = keep_cr
+        self._width = width
+        self._pending = ""
+        self.wrapped: list[str] = []
 
     def write(self, text: str) -> int:
-        self._stream.write(terminal_text(text, keep_cr=self._keep_cr))
+        clean = terminal_text(text, keep_cr=self._keep_cr)
+        if not self._width:
+            self._stream.write(clean)
+            return len(text)
+        *lines, rest = (self._pending + clean).split("\n")
+        if lines:
+            self._stream.write("\n".join(self._fit(line) for line in lines) + "\n")
+        if "\r" in rest:
+            self._stream.write(rest)
+            rest = ""
+        self._pending = rest
         return len(text)
+
+    def _fit(self, line: str) -> str:
+        if len(line) <= self._width or "\r" in line:
+            return line
+        from opencode.files.textout import wrap_line
+
+        self.wrapped.append(line)
+        return "\n".join(wrap_line(line, self._width))
 
     def writelines(self, lines) -> None:
         for line in lines:
             self.write(line)
 
+    def flush(self) -> None:
+        if self._pending:
+            self._stream.write(self._pending)
+            self._pending = ""
+        self._stream.flush()
+
+    @contextlib.contextmanager
+    def unwrapped(self):
+        """Write as given (no wrapping) inside the block: CSV and JSON for scripts."""
+        self.flush()
+        width, self._width = self._width, None
+        try:
+            yield self
+        finally:
+            self._width = width
+
     def __getattr__(self, name: str):
         return getattr(self._stream, name)
+
+
+@contextlib.contextmanager
+def unwrapped(stream):
+    """`stream` with prose wrapping off inside the block (any stream; only a TerminalStream wraps)."""
+    if isinstance(stream, TerminalStream):
+        with stream.unwrapped():
+            yield stream
+    else:
+        yield stream

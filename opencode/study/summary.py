@@ -44,21 +44,42 @@ def summarise(study: Study) -> StudySummary:
     return StudySummary(str(study.path), survey_data.respondent_count(study), questions, closed)
 
 
-def format_summary(summary: StudySummary) -> str:
-    """The summary as plain text for the terminal."""
-    lines = [f"study {summary.path}: {summary.respondents:,} respondents", "", "open questions"]
-    for q in summary.questions:
-        share = 100 * q.nonanswers / q.verbatims if q.verbatims else 0
-        lines.append(f"  {q.name:<16} {q.verbatims:>7,} verbatims  {q.nonanswers:>6,} non-answers ({share:4.1f}%)  "
-                     f"{q.coded:>6,} coded   {q.label}")
-    lines += ["", "closed-ended variables"]
+def summary_records(summary: StudySummary) -> list[dict]:
+    """The summary as one table for scripts: a row per open question, then a row per closed-ended variable
+    (`what` says which), with every field."""
+    rows = [{"what": "open question", "name": q.name, "label": q.label, "verbatims": q.verbatims,
+             "nonanswers": q.nonanswers, "coded": q.coded} for q in summary.questions]
     for v in summary.variables:
+        rows.append({"what": "closed-ended variable", "name": v.name, "label": v.label, "kind": v.kind,
+                     "role": v.role, "missing_codes": "; ".join(_plain(c) for c in sorted(v.missing_codes)),
+                     "values": "; ".join(f"{_plain(code)}={text}" for code, text in v.value_labels.items())})
+    return rows
+
+
+def format_summary(summary: StudySummary, width: int | None = None) -> str:
+    """The summary as plain text for the terminal: two tables fitted to `width` (labels and value lists wrap)."""
+    from opencode.files.textout import format_table
+
+    questions = [[q.name, f"{q.verbatims:,}", f"{q.nonanswers:,}",
+                  f"{100 * q.nonanswers / q.verbatims if q.verbatims else 0:.1f}%", f"{q.coded:,}", q.label]
+                 for q in summary.questions]
+    variables = []
+    for v in summary.variables:
+        label = v.label
         missing = ", ".join(_plain(c) for c in sorted(v.missing_codes))
-        lines.append(f"  {v.name:<16} {v.kind:<9} {v.role:<8} {v.label}" + (f"  [missing: {missing}]" if missing else ""))
+        if missing:
+            label += f" [missing: {missing}]"
         if v.value_labels:
-            labels = "; ".join(f"{_plain(code)}={label}" for code, label in v.value_labels.items())
-            lines.append(f"  {'':<16} values: {labels}")
-    return "\n".join(lines)
+            label += "; values: " + "; ".join(f"{_plain(code)}={text}" for code, text in v.value_labels.items())
+        variables.append([v.name, v.kind, v.role, label])
+    return "\n".join([
+        f"study {summary.path}: {summary.respondents:,} respondents", "",
+        format_table(["open question", "verbatims", "non-answers", "%", "coded", "label"], questions,
+                     align="lrrrrl", wrap=[5], width=width, stub=1),
+        "",
+        format_table(["closed-ended variable", "kind", "role", "label"], variables, align="llll", wrap=[3],
+                     width=width, stub=1),
+    ])
 
 
 def _plain(code: float) -> str:

@@ -27,6 +27,12 @@ class KwicLine:
     right: str
 
 
+class KwicLines(list):
+    """The kwic lines found (up to the limit), with `total`: how many occurrences there are in all."""
+
+    total: int = 0
+
+
 def _word_pattern(word: str) -> str:
     """Regex for one surface word, matching either apostrophe and an optional hyphen."""
     if word == URL_PLACEHOLDER:
@@ -67,30 +73,58 @@ def _forms(tm: TermMatrix, col: int, term: str) -> list[str]:
     return [form for form, _ in tm.surfaces[col]]
 
 
-def kwic(tm: TermMatrix, texts: Sequence[str], term: str, width: int = 40, limit: int | None = None) -> list[KwicLine]:
-    """Occurrences of a term in the verbatims that contain it; texts is the sequence given to build_matrix."""
+def kwic(tm: TermMatrix, texts: Sequence[str], term: str, width: int = 40, limit: int | None = None) -> KwicLines:
+    """Occurrences of a term in the verbatims that contain it; texts is the sequence given to build_matrix.
+
+    At most `limit` lines are returned; the result's `total` counts every occurrence."""
     if len(texts) != tm.n_input:
         raise OpenCodeError(f"kwic got {len(texts)} verbatims but the matrix was built from {tm.n_input}")
     col = tm.column(term)
     pattern = surface_pattern(_forms(tm, col, term))
     column = tm.counts[:, col]
-    lines: list[KwicLine] = []
+    lines = KwicLines()
+    total = 0
     rows = sorted(column.nonzero()[0])
     for row in rows:
         text = texts[tm.rows_source[row]]
         for m in pattern.finditer(text):
+            total += 1
+            if limit is not None and len(lines) >= limit:
+                continue
             left = " ".join(text[max(0, m.start() - width):m.start()].split())
             right = " ".join(text[m.end():m.end() + width].split())
             lines.append(KwicLine(tm.doc_ids[row], left[-width:], " ".join(m.group(0).split()), right[:width]))
-            if limit is not None and len(lines) >= limit:
-                return lines
+    lines.total = total
     return lines
 
 
-def format_kwic(lines: Sequence[KwicLine], width: int = 40) -> str:
-    """Aligned kwic table: id, left context right-aligned, the match, right context."""
+def kwic_summary(term: str, question: str, lines: Sequence[KwicLine]) -> str:
+    """The line above a kwic table: how many occurrences are shown of how many ("8 of 238")."""
+    total = getattr(lines, "total", len(lines))
+    shown = f"{len(lines)} of {total:,}" if len(lines) < total else f"all {total:,}"
+    return f"{term!r} in question {question}: {shown} occurrence{'s' if total != 1 else ''}, in verbatim order"
+
+
+def fit_contexts(lines: Sequence[KwicLine], width: int, room: int) -> tuple[list[str], list[str]]:
+    """Left and right contexts cut to share `room` characters beside the match (the left keeps its end)."""
+    match = max([len("match")] + [len(line.match) for line in lines])
+    side = max(8, min(width, (room - match - 4) // 2))  # two gaps of two spaces around the match
+    lefts = [line.left[-side:].lstrip() for line in lines]
+    rights = [line.right[:side].rstrip() for line in lines]
+    side_left = max((len(t) for t in lefts), default=0)
+    return [t.rjust(side_left) for t in lefts], rights
+
+
+def format_kwic(lines: Sequence[KwicLine], width: int = 40, out_width: int | None = None) -> str:
+    """Aligned kwic table: id, left context right-aligned, the match, right context; the contexts are cut to
+    fit `out_width` (the terminal's width by default)."""
+    from opencode.files.textout import output_width
+
+    out_width = out_width or output_width()
+    ids = max((len(str(line.doc_id)) for line in lines), default=2)
+    lefts, rights = fit_contexts(lines, width, out_width - max(ids, 2) - 2)
     return format_table(
         ["id", "before", "match", "after"],
-        [[line.doc_id, line.left.rjust(width), line.match, line.right] for line in lines],
-        align="lrll",
+        [[line.doc_id, left, line.match, right] for line, left, right in zip(lines, lefts, rights)],
+        align="lrll", wrap=[], width=out_width,
     )

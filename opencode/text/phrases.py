@@ -187,10 +187,11 @@ def _labels(keys: np.ndarray, surf: np.ndarray, vocabulary: Vocabulary) -> dict[
     return {int(k): term_label(vocabulary.key_names[k], vocabulary.surface_names[s]) for k, s in pairs[first]}
 
 
-def format_phrase_suggestions(rows: Sequence[PhraseSuggestion]) -> str:
-    """An aligned text table of phrase suggestions."""
+def format_phrase_suggestions(rows: Sequence[PhraseSuggestion], ranked: bool = False) -> str:
+    """An aligned text table of phrase suggestions (`ranked`: with their rank, 1 first, as `accept` takes)."""
     return format_table(
-        ["phrase", "count", "G2", "PMI"],
-        [[r.phrase, r.count, f"{r.g2:.1f}", f"{r.pmi:.2f}"] for r in rows],
-        align="lrrr",
+        (["#"] if ranked else []) + ["phrase", "count", "G2", "PMI"],
+        [([rank] if ranked else []) + [r.phrase, r.count, f"{r.g2:.1f}", f"{r.pmi:.2f}"]
+         for rank, r in enumerate(rows, start=1)],
+        align=("r" if ranked else "") + "lrrr", note="sorted by G2 (log-likelihood ratio), largest first",
     )

@@ -95,5 +95,5 @@ def format_variants(rows: Sequence[VariantSuggestion]) -> str:
     return format_table(
         ["rare term", "verbatims", "looks like", "verbatims", "edits"],
         [[r.label, r.verbatims, r.target_label, r.target_verbatims, r.distance] for r in rows],
-        align="lrlrr",
+        align="lrlrr", note="sorted by edits, then the verbatims of the term it looks like (most first)",
     )

@@ -554,12 +554,22 @@ def question_kwic(study: Study, question: str, term: str, *, width: int = 40, li
 
 
 def format_question_kwic(lines: Sequence[KwicLine], columns: dict[str, list[str]] | None = None,
-                         width: int = 40) -> str:
-    """Aligned kwic lines: respondent id, the shown variables, left context right-aligned, match, right context."""
+                         width: int = 40, out_width: int | None = None) -> str:
+    """Aligned kwic lines: respondent id, the shown variables, left context right-aligned, match, right context;
+    the contexts are cut so that the table fits `out_width` (the terminal's width by default), the shown
+    variables' labels wrap when they must."""
+    from opencode.files.textout import GAP, LABEL_MIN, output_width
+    from opencode.text.kwic import fit_contexts
+
     columns = columns or {}
+    out_width = out_width or output_width()
+    fixed = max([len("respondent")] + [len(str(line.doc_id)) for line in lines]) + GAP
+    for name, values in columns.items():
+        fixed += min(max([len(name)] + [len(str(v)) for v in values]), LABEL_MIN) + GAP
+    lefts, rights = fit_contexts(lines, width, out_width - fixed)
     return format_table(
         ["respondent", *columns, "before", "match", "after"],
-        [[line.doc_id, *(values[i] for values in columns.values()), line.left.rjust(width), line.match, line.right]
+        [[line.doc_id, *(values[i] for values in columns.values()), lefts[i], line.match, rights[i]]
          for i, line in enumerate(lines)],
-        align="l" * (1 + len(columns)) + "rll",
+        align="l" * (1 + len(columns)) + "rll", wrap=list(range(1, 1 + len(columns))), width=out_width,
     )

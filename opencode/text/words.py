@@ -66,5 +66,5 @@ def format_top_terms(rows: Sequence[TermRow], max_forms: int = 4) -> str:
              ", ".join(f"{form} ({c})" for form, c in r.surfaces[:max_forms])]
             for r in rows
         ],
-        align="lrrrl",
+        align="lrrrl", note="sorted by verbatims mentioning the term (then occurrences, then term)",
     )

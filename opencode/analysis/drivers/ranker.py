@@ -11,6 +11,8 @@ L1 is there for a short list of terms with exact zeros).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import inspect
 import warnings
 from dataclasses import dataclass, field
@@ -514,18 +516,50 @@ def term_indicators(X, terms, chosen) -> pd.DataFrame:
     return pd.DataFrame(P.toarray().astype(np.int8), columns=list(chosen))
 
 
-_FORMAT_COLUMNS = [("term", "term", "{}"), ("direction", "leans to", "{}"), ("coef", "coef", "{:+.3f}"),
-                   ("odds_ratio", "OR", "{:.2f}"), ("stability", "stab", "{:.2f}"), ("docs_1", "n1", "{}"),
-                   ("docs_0", "n0", "{}"), ("uni_or", "uni OR", "{:.2f}"), ("q", "q", "{:.3g}"),
-                   ("monroe_z", "z", "{:+.2f}")]
+def _or_text(value: float) -> str:
+    """An odds ratio for a table: two decimals (three significant figures past 100), 'inf' for infinite."""
+    if not np.isfinite(value):
+        return "-" if np.isnan(value) else ("inf" if value > 0 else "0")
+    return f"{value:.2f}" if value < 100 else f"{value:.0f}"
 
 
-def format_ranking_table(table: pd.DataFrame, term_column: str = "term") -> str:
-    """Ranking rows as an aligned text table: the term (from `term_column`) and its side left, the numbers right."""
-    columns = [(term_column, "term", "{}"), *_FORMAT_COLUMNS[1:]]
-    cells = [[fmt.format(v) for v in table[col]] for col, _, fmt in columns]
-    return format_table([head for _, head, _ in columns], [list(values) for values in zip(*cells)],
-                        align="ll" + "r" * (len(columns) - 2))
+def _or_interval_text(value: float, low: float, high: float) -> str:
+    """'OR [low, high]' with the interval's limits, or the OR alone when there is no interval."""
+    if not (np.isfinite(low) or np.isfinite(high)):
+        return _or_text(value)
+    return f"{_or_text(value)} [{_or_text(low)}, {_or_text(high)}]"
+
+
+def format_ranking_table(table: pd.DataFrame, term_column: str = "term", *, sides: Sequence[str] | None = None,
+                         wide: bool = False, note: str | None = None, width: int | None = None) -> str:
+    """Ranking rows as a text table fitted to the width: the term, the side it leans to, the odds ratio of its
+    2x2 table with its 95% interval, q, the verbatims on each side and the stability; `wide` adds the penalized
+    model's coefficient and odds ratio and the Monroe et al. z.
+
+    `sides` (the labels of outcome 0 and 1) factors the side labels into the header: the column shows 0 or 1
+    and a line above the table says which side each is.
+    """
+    from opencode.files.textout import format_p, format_table
+
+    side_of = {label: str(code) for code, label in enumerate(sides)} if sides else {}
+    has_interval = {"uni_or_low", "uni_or_high"} <= set(table.columns)
+    rows = []
+    for row in table.to_dict("records"):
+        odds = (_or_interval_text(row["uni_or"], row["uni_or_low"], row["uni_or_high"]) if has_interval
+                else _or_text(row["uni_or"]))
+        cells = [row[term_column], side_of.get(row["direction"], row["direction"]), odds, format_p(row["q"]),
+                 int(row["docs_1"]), int(row["docs_0"]), f"{row['stability']:.2f}"]
+        if wide:
+            cells += [f"{row['coef']:+.3f}", _or_text(row["odds_ratio"]), f"{row['monroe_z']:+.2f}"]
+        rows.append(cells)
+    headers = ["term", "side" if sides else "leans to", "OR [95% CI]" if has_interval else "uni OR", "q", "n1",
+               "n0", "stab"] + (["coef", "model OR", "z"] if wide else [])
+    align = "l" + ("r" if sides else "l") + "rrrrr" + ("rrr" if wide else "")
+    title = None
+    if sides:
+        title = f"side 1 = {sides[1]}\nside 0 = {sides[0]}"
+    return format_table(headers, rows, align=align, width=width, wrap=[0] + ([] if sides else [1]), title=title,
+                        note=note)
 
 
 def format_ranking(ranker: DriverRanker, n: int = 20, sort_by: str = "stability", force: bool = False) -> str:
@@ -541,7 +575,8 @@ def format_ranking(ranker: DriverRanker, n: int = 20, sort_by: str = "stability"
         lines.append(ranker.quality_note_)
         if not force:
             return "\n".join(lines)
-    lines.append(format_ranking_table(ranker.ranking(sort_by).head(n)))
-    lines.append("coef/OR: penalized model; stab: share of half-sample fits selecting the term; "
-                 "uni OR, q: 2x2 table (BH); z: Monroe et al. log-odds z")
+    lines.append(format_ranking_table(ranker.ranking(sort_by).head(n), sides=list(ranker.labels_),
+                                      note=f"sorted by {sort_by}"))
+    lines.append("side: the outcome the term leans to in the penalized model; OR [95% CI], q: the term's 2x2 "
+                 "table (q Benjamini-Hochberg); stab: share of half-sample fits selecting the term")
     return "\n".join(lines)

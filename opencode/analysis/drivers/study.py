@@ -234,7 +234,7 @@ def quality_lines(comparison: DriverComparison) -> list[str]:
 
 
 def format_drivers(result: StudyDrivers, *, sort_by: str = "stability", ascending: bool | None = None,
-                   n: int = 20, force: bool = False) -> str:
+                   n: int = 20, force: bool = False, wide: bool = False, width: int | None = None) -> str:
     """Plain-text drivers for the terminal: notes, then per comparison its quality, notes and top n rows.
 
     When the text barely predicts the outcome the table is left out (force=True prints it anyway).
@@ -245,10 +245,19 @@ def format_drivers(result: StudyDrivers, *, sort_by: str = "stability", ascendin
         lines += [""] + quality_lines(comparison) + [f"note: {note}" for note in comparison.notes]
         if comparison.ranker.quality_note_ and not force:
             continue
-        lines.append(format_ranking_table(sorted_table(result, comparison, sort_by, ascending).head(n), "label"))
-    lines.append("coef/OR: penalized model (verbatims mentioning the term); stab: share of half-sample fits "
-                 "selecting the term; n1/n0: verbatims on each side; uni OR, q: the term's 2x2 table "
-                 "(Benjamini-Hochberg); z: Monroe et al. log-odds z")
+        order = ascending if ascending is not None else sort_by in SMALL_FIRST
+        shown = min(n, len(comparison.table))
+        note = (f"top {shown} of {len(comparison.table):,} terms, sorted by {sort_by} "
+                f"({'smallest' if order else 'largest'} first)")
+        lines.append(format_ranking_table(sorted_table(result, comparison, sort_by, ascending).head(n), "label",
+                                          sides=list(comparison.outcome.labels), wide=wide, note=note,
+                                          width=width))
+    lines.append("side: the outcome the term leans to in the penalized model; OR [95% CI]: odds ratio of the "
+                 "term's 2x2 table (verbatims mentioning it on side 1 against side 0) with its 95% interval; "
+                 "q: that table's test, Benjamini-Hochberg adjusted; n1/n0: verbatims with the term on each side; "
+                 "stab: share of half-sample fits selecting the term"
+                 + ("; coef/model OR: penalized model; z: Monroe et al. log-odds z" if wide else
+                    " (--wide adds the model's coefficient and odds ratio and the Monroe et al. z)"))
     return "\n".join(lines)
 
 
@@ -336,11 +345,15 @@ def write_indicators(study: Study, question: str, result: StudyDrivers | None, t
 
 
 def _cell(value: Any, fmt: str) -> str:
+    if fmt == "p":
+        from opencode.files.textout import format_p
+
+        return html.escape(format_p(value))
     return html.escape(fmt.format(value) if isinstance(value, (int, float, np.integer, np.floating)) else str(value))
 
 
 _HTML_COLUMNS = [("label", "term", "{}"), ("odds_ratio", "odds ratio", "{:.2f}"), ("stability", "stability", "{:.2f}"),
-                 ("docs_1", "verbatims, {one}", "{}"), ("docs_0", "verbatims, {zero}", "{}"), ("q", "q (BH)", "{:.3g}")]
+                 ("docs_1", "verbatims, {one}", "{}"), ("docs_0", "verbatims, {zero}", "{}"), ("q", "q (BH)", "p")]
 
 
 def _side_rows(comparison: DriverComparison, side: int, n: int) -> str:

@@ -78,28 +78,76 @@ def layout_table(table: Table) -> Layout:
     raise TypeError(f"expected a FrequencyTable, BannerTable or MixTable, got {type(table).__name__}")
 
 
-def format_table(table: Table) -> str:
-    """Aligned plain text for the terminal: letters beside percentages, base rows, small-base marks."""
+def format_table(table: Table, width: int | None = None) -> str:
+    """Plain text fitted to the terminal (files/textout.format_table): letters beside percentages, base rows,
+    small-base marks. A banner too wide for the width is printed in successive blocks of banner columns, each
+    repeating the code and label; banner titles are printed whole above their block, never cut."""
+    from opencode.files import textout
+
     layout = layout_table(table)
-    texts = [["  " * cell.level + _text(cell) for cell in row] for row in layout.rows]
-    n_columns = max(len(row) for row in layout.rows)
-    widths = [0] * n_columns
-    for row, cells in zip(texts, layout.rows):
-        for i, (text, cell) in enumerate(zip(row, cells)):
-            if cell.span == 1:
-                widths[i] = max(widths[i], len(text))
-    lines = [layout.title, ""]
-    for r, (row, cells) in enumerate(zip(texts, layout.rows)):
-        parts, i = [], 0
-        for text, cell in zip(row, cells):
-            width = sum(widths[i:i + cell.span]) + 2 * (cell.span - 1)
-            parts.append(_align(text[:width], width, cell))
-            i += cell.span
-        lines.append("  ".join(parts).rstrip())
-        if r == layout.header_rows - 1:
-            lines.append("-" * (sum(widths) + 2 * (n_columns - 1)))
-    lines += [""] + layout.notes
-    return "\n".join(lines) + "\n"
+    body = layout.rows[layout.header_rows:]
+    headers = [_text(cell) for cell in layout.rows[layout.header_rows - 1]]
+    rows = [["  " * cell.level + _text(cell) for cell in cells] for cells in body]
+    numeric = ("count", "amount", "share", "p", "score", "interval")
+    kinds = [next((cells[i].kind for cells in body if cells[i].kind in numeric), body[0][i].kind if body else "text")
+             for i in range(len(headers))]
+    align = "".join("r" if kind in numeric else "l" for kind in kinds)
+    stub = layout.label_columns
+    wrap = [stub - 1]
+    if layout.header_rows == 1:
+        groups = [("", [[i] for i in range(stub, len(headers))])]
+    else:  # a banner: the top header row names each banner variable over its columns
+        groups, column = [], stub
+        for cell in layout.rows[0][stub:]:
+            members = list(range(column, column + cell.span))
+            units, unit = [], []
+            for i in members:
+                unit.append(i)
+                if kinds[i] == "mark" or i == members[-1]:
+                    units.append(unit)
+                    unit = []
+            if len(units) > 1 and kinds[units[-1][0]] == "p":  # the row test q stays with the last column
+                units[-2:] = [units[-2] + units[-1]]
+            title = _text(cell)
+            groups.append((f"Banner: {title}" if title else "", units))
+            column += cell.span
+    text = textout.format_table(headers, rows, align=align, width=width, wrap=wrap, title=layout.title,
+                                note=["rows in code-frame order, each net above its codes", *layout.notes], stub=stub,
+                                groups=groups)
+    return text + "\n"
+
+
+def table_records(table: Table) -> list[dict]:
+    """The table's body rows as records for scripts: one key per column (a mark column named after the column it
+    marks, banner columns prefixed by their variable's label), numbers as numbers (shares 0-1), NaN as None,
+    plus the row's kind (base, code, net, ...)."""
+    layout = layout_table(table)
+    names: list[str] = []
+    prefixes: list[str] = []
+    if layout.header_rows > 1:
+        for cell in layout.rows[0]:
+            prefixes += [str(cell.value or "")] * cell.span
+    for i, cell in enumerate(layout.rows[layout.header_rows - 1]):
+        name = str(cell.value or "")
+        if not name and names:
+            name = f"{names[-1]} mark"
+        if prefixes and prefixes[i]:
+            name = f"{prefixes[i]}: {name}"
+        while name in names:
+            name += " (2)"
+        names.append(name)
+    records = []
+    for cells, kind in zip(layout.rows[layout.header_rows:], layout.row_kinds[layout.header_rows:]):
+        record: dict[str, Any] = {"row kind": kind}
+        for name, cell in zip(names, cells):
+            value = cell.value
+            if isinstance(value, numbers.Real) and not isinstance(value, bool):
+                value = float(value) if math.isfinite(float(value)) else None
+                if value is not None and cell.kind == "count":
+                    value = int(value)
+            record[name] = value
+        records.append(record)
+    return records
 
 
 def write_csv(table: Table, path: str | os.PathLike) -> Path:
@@ -389,8 +437,12 @@ def _text(cell: Cell, percent_sign: bool = False) -> str:
         return f"{float(cell.value):.1f}"
     if cell.kind == "share":
         return f"{100 * float(cell.value):.1f}" + ("%" if percent_sign else "")
-    if cell.kind in ("p", "score"):
-        return f"{float(cell.value):+.3f}" if cell.kind == "score" else f"{float(cell.value):.3f}"
+    if cell.kind == "score":
+        return f"{float(cell.value):+.3f}"
+    if cell.kind == "p":
+        from opencode.files.textout import format_p
+
+        return format_p(cell.value)
     return str(cell.value)
 
 

@@ -47,6 +47,25 @@ class QuestionTables:
                 table[f"share: {name}"] = self.banner.column_share[:, j]
         return table
 
+    def to_full_frame(self) -> pd.DataFrame:
+        """to_frame plus the intervals (when asked for), each banner column's letters and each banner
+        variable's row test q: every number the text tables show, for scripts."""
+        table = self.to_frame()
+        f = self.frequencies
+        if f.show_intervals and f.ci_low is not None:
+            table["ci_low"], table["ci_high"] = f.ci_low, f.ci_high
+        if self.banner is not None:
+            b = self.banner
+            letters = b.letters()
+            for j, column in enumerate(b.columns):
+                name = column.label if column.variable is None else f"{column.variable}={column.label}"
+                table[f"letters: {name}"] = letters[:, j]
+                if b.show_intervals and b.ci_low is not None:
+                    table[f"ci_low: {name}"], table[f"ci_high: {name}"] = b.ci_low[:, j], b.ci_high[:, j]
+            for v, (variable, _) in enumerate(b.variables):
+                table[f"row test q: {variable}"] = b.row_q[:, v]
+        return table
+
 
 def question_tables(study: Study, question: str, banners: list[str] = (), *, coder: str = FINAL,
                     include_suggestions: bool = False, weight: str | None = None, unweighted: bool = False,

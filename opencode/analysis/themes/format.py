@@ -16,23 +16,27 @@ def _shorten(text: str | None, width: int) -> str:
     return textwrap.shorten(" ".join(str(text or "").split()), width=width, placeholder="...")
 
 
-def format_themes(run: ThemeRun, n_terms: int = 8, n_verbatims: int = 2, width: int = 100) -> str:
-    """Each theme: label, share it dominates, coherence, top terms with weights, a few verbatims."""
+def format_themes(run: ThemeRun, n_terms: int = 8, n_verbatims: int = 2, width: int | None = None) -> str:
+    """Each theme: label, share it dominates, coherence, top terms with weights, a few verbatims; fitted to
+    `width` (the terminal's by default)."""
+    from opencode.files.textout import output_width, wrap_text
+
+    width = width or output_width()
     included = run.n_docs - run.n_empty
     lines = [f"{len(run.themes)} themes ({run.params.get('method', '?')}) from {included} verbatims with terms "
              f"of {run.n_docs}; {run.n_empty} empty, {run.n_unexplained} explained by no theme"]
     for theme in run.themes:
         seeded = ("  [seeded]" if theme.seed_terms else "") + ("  [catch-all]" if theme.catch_all else "")
         lines.append("")
-        lines.append(f"{theme.index + 1:>2}. {theme.label}  {theme.n_dominant} verbatims ({theme.share:.1%})  "
-                     f"NPMI {theme.npmi:+.2f}  UMass {theme.umass:.2f}{seeded}")
+        lines.append(wrap_text(f"{theme.index + 1:>2}. {theme.label}  {theme.n_dominant} verbatims "
+                               f"({theme.share:.1%})  NPMI {theme.npmi:+.2f}  UMass {theme.umass:.2f}{seeded}", width))
         terms = ", ".join(f"{t} {w:.3f}" for t, w in zip(theme.top_terms[:n_terms], theme.top_weights[:n_terms]))
         lines.append(textwrap.fill(terms, width=width, initial_indent="    ", subsequent_indent="    "))
         for rep in theme.representatives[:n_verbatims]:
             who = rep.doc_id if rep.doc_id is not None else f"row {rep.row}"
-            lines.append(f"    - [{who}] {_shorten(rep.text, width - 20)}" if rep.text is not None
+            lines.append(f"    - [{who}] {_shorten(rep.text, max(width - 20, 20))}" if rep.text is not None
                          else f"    - [{who}] weight {rep.score:.3f}")
-    lines += ["", *run.notes]
+    lines += ["", *(wrap_text(note, width) for note in run.notes)]
     return "\n".join(lines)
 
 
@@ -50,7 +54,7 @@ def format_k_search(search: KSearch) -> str:
     headers = ["", "k", "NPMI", "UMass", "stability", "unexplained"]
     headers += ["largest", "theme"] if has_largest else []
     align = "lrrrrr" + ("rl" if has_largest else "") + "r"
-    table = format_table(headers + ["rank"], rows, align=align)
+    table = format_table(headers + ["rank"], rows, align=align, note="by k")
     return "\n".join([table, "", search.note])
 
 
@@ -59,19 +63,20 @@ def format_comparison(table: pd.DataFrame) -> str:
     rows = [["" if pd.isna(row.theme_a) else int(row.theme_a) + 1, _shorten(row.label_a, 30),
              "" if pd.isna(row.theme_b) else int(row.theme_b) + 1, _shorten(row.label_b, 30), f"{row.jaccard:.2f}"]
             for row in table.itertuples()]
-    return format_table(["A", "label A", "B", "label B", "Jaccard"], rows, align="rlrlr")
+    return format_table(["A", "label A", "B", "label B", "Jaccard"], rows, align="rlrlr", wrap=[1, 3],
+                        note="best match first (by Jaccard)")
 
 
 def p_value_text(p: float) -> str:
-    """A p-value for a table: four decimals, '<0.0001' below that, '-' when not tested."""
-    if pd.isna(p):
-        return "-"
-    return "<0.0001" if p < 0.0001 else f"{p:.4f}"
+    """A p-value for a table: files/textout.format_p ('<0.001', three decimals, '-' when not tested)."""
+    from opencode.files.textout import format_p
+
+    return format_p(p)
 
 
-def format_prevalence(run: ThemeRun, label_width: int = 36) -> str:
-    """Theme shares by group with full group labels as column heads, the base row, p and q (adjusted p), then
-    the note; empty string when the run has no grouping."""
+def format_prevalence(run: ThemeRun, width: int | None = None) -> str:
+    """Theme shares by group with full group labels as column heads (wrapped), the base row, p and q (adjusted
+    p), then the note; theme labels wrap in their cell; empty string when the run has no grouping."""
     prevalence = run.prevalence
     if prevalence is None:
         return ""
@@ -79,8 +84,8 @@ def format_prevalence(run: ThemeRun, label_width: int = 36) -> str:
     rows = [["base", *(f"{int(b):,}" for b in prevalence.bases), "", ""]]
     for theme, shares, p, q in zip(run.themes, prevalence.shares.to_numpy(), prevalence.tests["p"],
                                    prevalence.tests["p_adjusted"]):
-        name = f"{theme.index + 1}. {theme.label}"
-        rows.append([name if len(name) <= label_width else name[:label_width - 3] + "...",
-                     *(f"{s:.1%}" for s in shares), p_value_text(p), p_value_text(q)])
-    table = format_table(["theme", *groups, "p", "q"], rows, align="l" + "r" * (len(groups) + 2))
+        rows.append([f"{theme.index + 1}. {theme.label}", *(f"{s:.1%}" for s in shares), p_value_text(p),
+                     p_value_text(q)])
+    table = format_table(["theme", *groups, "p", "q"], rows, align="l" + "r" * (len(groups) + 2), wrap=[0],
+                         width=width, note="rows in theme order")
     return "\n".join([table, "", prevalence.note])

@@ -79,6 +79,18 @@ class QuestionThemes:
                               "share": t.share, "n_dominant": t.n_dominant, "npmi": t.npmi, "umass": t.umass}
                              for t in self.run.themes])
 
+    def to_full_frame(self) -> pd.DataFrame:
+        """to_frame plus, for a run fitted with `by`, each group's share and the theme's p and q."""
+        table = self.to_frame()
+        prevalence = self.run.prevalence
+        if prevalence is None:
+            return table
+        for j, group in enumerate(prevalence.shares.columns):
+            table[f"share in {group}"] = prevalence.shares.to_numpy()[:, j]
+        table["p"] = prevalence.tests["p"].to_numpy()
+        table["q"] = prevalence.tests["p_adjusted"].to_numpy()
+        return table
+
 
 @dataclass
 class QuestionKSearch:
@@ -451,9 +463,14 @@ def _settings_line(settings: dict[str, Any]) -> str:
     return ", ".join(parts)
 
 
-def format_question_themes(result: QuestionThemes, n_terms: int = 8, n_verbatims: int = 3, width: int = 100) -> str:
-    """A run for the terminal: header, themes with top terms and weights, representative verbatims with scores,
-    prevalence by group (Benjamini-Hochberg adjusted p), unexplained count and notes."""
+def format_question_themes(result: QuestionThemes, n_terms: int = 8, n_verbatims: int = 3,
+                           width: int | None = None) -> str:
+    """A run for the terminal, fitted to `width` (the terminal's by default): header, themes with top terms and
+    weights, representative verbatims with scores, prevalence by group (Benjamini-Hochberg adjusted p),
+    unexplained count and notes."""
+    from opencode.files.textout import output_width
+
+    width = width or output_width()
     run = result.run
     stored = f"theme run {result.run_id}" if result.run_id is not None else "theme run (not kept)"
     lines = [f"{stored}, question {result.question}" + (f", {result.created_at[:19]}" if result.created_at else ""),
@@ -464,13 +481,14 @@ def format_question_themes(result: QuestionThemes, n_terms: int = 8, n_verbatims
             lines.append(f"{theme.index + 1:>2}. {theme.label}")
             for rep in theme.representatives[:n_verbatims]:
                 text = " ".join(str(rep.text or "").split())
-                text = text if len(text) <= width - 30 else text[:width - 33] + "..."
                 who = rep.doc_id if rep.doc_id is not None else f"row {rep.row}"
-                lines.append(f"    {rep.score:6.3f} {rep.share:4.0%}  [{who}] {text}")
+                head = f"    {rep.score:6.3f} {rep.share:4.0%}  [{who}] "
+                room = max(width - len(head), 20)
+                lines.append(head + (text if len(text) <= room else text[:room - 3] + "..."))
     if run.prevalence is not None:
         lines += ["", f"Prevalence by {result.settings.get('by')} (share of each group's verbatims a theme "
                       "dominates; chi-square p per theme, q = Benjamini-Hochberg across themes):",
-                  format_prevalence(run)]
+                  format_prevalence(run, width=width)]
     lines += ["", f"unexplained: {run.n_unexplained} verbatim(s) with terms explained by no theme "
                   f"(oecode themes show STUDY {result.run_id if result.run_id is not None else 'RUN'} --unexplained)"]
     return "\n".join(lines)
@@ -488,16 +506,17 @@ def format_run_list(table: pd.DataFrame) -> str:
     """Stored runs as an aligned table."""
     if table.empty:
         return "no theme runs kept yet"
-    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").astype(str).values.tolist())
+    return format_table(list(table.columns), table.astype(object).where(table.notna(), "").astype(str).values.tolist(),
+                        note="by run number")
 
 
-def format_unexplained(table: pd.DataFrame, width: int = 100) -> str:
-    """Unexplained verbatims: respondent, best theme share, text."""
+def format_unexplained(table: pd.DataFrame, width: int | None = None) -> str:
+    """Unexplained verbatims: respondent, best theme share, text (wrapped to the width)."""
     if table.empty:
         return "every verbatim with terms is explained by a theme"
-    rows = [[d, f"{s:.0%}", " ".join(str(t or "").split())[:width - 30]]
+    rows = [[d, f"{s:.0%}", " ".join(str(t or "").split())]
             for d, s, t in zip(table["doc_id"], table["best_share"], table["text"])]
-    return format_table(["respondent", "best share", "text"], rows)
+    return format_table(["respondent", "best share", "text"], rows, width=width)
 
 
 # -- report -----------------------------------------------------------------------------------------------------
