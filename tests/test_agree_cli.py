@@ -98,7 +98,8 @@ def test_bad_input_exits_1_with_one_clear_line(demo_copy, capsys, argv, message)
     assert code == 1 and message in err and "Traceback" not in err
 
 
-def test_agree_leads_with_one_headline_and_advice(demo_copy, capsys, csv_sets):
+def test_agree_leads_with_one_headline_and_advice(demo_copy, capsys, csv_sets, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "200")  # the ranking read one row per line; at 80 columns its notes wrap
     sets = csv_sets
     # counted by hand from demo/double-coded.csv: verbatims where one coder has 7 without 9 and the other 9 without 7
     swapped = sum(1 for r in sets["ash"]
