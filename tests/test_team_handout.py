@@ -9,9 +9,9 @@ import pytest
 
 from opencode.cli import main
 from opencode.coding import assignments as coding
-from opencode.coding import frames, history, reliability
+from opencode.coding import frames, history, machine_coding, reliability
 from opencode.coding.handout import CONFLICTS_KEY, HANDOUT_KEY, handout, merge
-from opencode.errors import BadInput, NotAStudy
+from opencode.errors import BadInput, NotAStudy, OpenCodeError
 from opencode.study import desk_queries as dq
 from opencode.study import survey_data
 from opencode.study.store import Study
@@ -51,6 +51,38 @@ def test_a_handout_hides_what_the_coder_must_not_see(lead_study, tmp_path):
         actors = {row[2] for row in table_rows(copy, "audit")}
         assert actors <= {"kit"}
         assert copy.get_setting(HANDOUT_KEY)["coder"] == "kit"
+
+
+def test_a_handout_leaves_out_models_and_suggestions_on_the_blind_sample(lead_study, tmp_path, capsys):
+    path, free, blind = lead_study
+    with Study.open(path) as study:
+        machine_coding.train(study, "why")  # learns from the team's codes, the blind sample's included
+        models = len(table_rows(study, "models"))
+        a, b = _free_codes(study)[:2]
+        coding.assign(study, blind[0], a, "kit", source="machine", confidence=0.9)  # kit's own suggestions
+        coding.assign(study, blind[1], b, "kit", source="rule")                     # on the blind sample
+    copy = tmp_path / "kit.study"
+    assert main(["handout", str(path), "--coder", "kit", "--out", str(copy)]) == 0
+    printed = capsys.readouterr().out
+    assert models > 0 and f"{models} stored machine-coder models left out" in printed
+    assert "2 rule/machine suggestions on their blind sample left out" in printed
+    with Study.open(copy) as study:
+        assert table_rows(study, "models") == []
+        on_blind = [row for row in table_rows(study, "assignments") if row[1] in set(blind)]
+        assert all(row[3] == "kit" and row[4] == "hand" for row in on_blind)
+        with pytest.raises(OpenCodeError, match="no machine coder"):
+            machine_coding.suggest(study, "why", coder="kit")
+        coding.assign(study, blind[0], a, "kit")  # kit codes the sample from the text: the suggestion becomes hand
+        coding.assign(study, free[2], b, "kit")
+    with Study.open(path) as study:
+        report = merge(study, copy)
+        assert report.conflicts == [] and (report.added, report.changed, report.removed) == (1, 1, 0)
+        assert [(x.number, x.source) for x in coding.codes_of(study, blind[0], "kit")] == [(a, "hand")]
+        assert [(x.number, x.source) for x in coding.codes_of(study, blind[1], "kit")] == [(b, "rule")]  # kept
+        assert [x.number for x in coding.codes_of(study, free[2], "kit")] == [b]
+        assert len(table_rows(study, "models")) == models  # the study keeps its models
+    with Study.open(path) as study:
+        assert merge(study, copy).applied == 0
 
 
 def test_merge_brings_the_coders_work_back_and_lists_frame_conflicts(lead_study, tmp_path):

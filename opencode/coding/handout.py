@@ -1,7 +1,8 @@
 """Coder copies without a server: hand a coder a copy of the study, merge their work back later.
 
-`handout` writes a study file for one coder (other coders' codes on the coder's blind verbatims taken out)
-that remembers the coder's rows and the frame as they were. The coder codes in it with the desk as usual.
+`handout` writes a study file for one coder (other coders' codes on the coder's blind verbatims taken out,
+with every rule and machine suggestion on those verbatims and every stored machine-coder model: a model
+learned from the team's codes, blind ones included, would suggest them back) that remembers the coder's rows and the frame as they were. The coder codes in it with the desk as usual.
 `merge` brings the coder's assignments, notes and done marks back into the study: a change the coder made
 in the copy is applied when the study still holds what the copy started from. Where the frame changed
 meanwhile (the code was relabelled, renumbered, moved to another net, retired or removed, or the copy made
@@ -82,6 +83,8 @@ def handout(study: Study, coder: str, target: str | os.PathLike, *, actor: str =
         "marks": sorted(hstore.coder_marks(study, coder)),
         "notes": [[v, t] for v, t in sorted(hstore.coder_notes(study, coder).items())],
         "codes": {str(k): v for k, v in hstore.code_meanings(study).items()},
+        # the coder's own suggestions left out of the copy: their absence there is not a removal to merge
+        "withheld": [list(key) for key in hstore.own_blind_suggestions(study, coder)],
     }
     save_copy(study, target, overwrite=overwrite)
     with Study.open(target) as copy, copy.transaction():
@@ -117,6 +120,7 @@ def merge(study: Study, copy_path: str | os.PathLike) -> MergeReport:
         then_a = {(v, c): (s, conf) for v, c, s, conf in base["assignments"]}
         then_m = set(base["marks"])
         then_n = {v: t for v, t in base["notes"]}
+        withheld = {(int(v), int(c)) for v, c in base.get("withheld", [])}
         copy_a = hstore.coder_assignments(copy, coder)
         copy_m = set(hstore.coder_marks(copy, coder))
         copy_n = hstore.coder_notes(copy, coder)
@@ -134,6 +138,8 @@ def merge(study: Study, copy_path: str | os.PathLike) -> MergeReport:
             was, wanted, held = then_a.get(key), copy_a.get(key), now_a.get(key)
             if wanted == was or held == wanted:
                 continue  # not changed in the copy, or the study holds it already (a second merge)
+            if wanted is None and key in withheld:
+                continue  # a suggestion the copy never showed: the coder did not take it off
             verbatim_id, code_id = key
             kind = "added" if was is None else "removed" if wanted is None else "changed"
             number = (copy_codes.get(code_id) or then_codes.get(code_id) or {}).get("number", "?")

@@ -173,8 +173,13 @@ def run_handout(args: argparse.Namespace) -> int:
     with Study.open(args.study) as study:
         report = handout(study, args.coder, args.out, actor=getpass.getuser(), overwrite=args.replace)
     hidden = report.removed.get("blind codes", 0)
+    suggested = report.removed.get("blind suggestions", 0)
     print(f"wrote {report.path} for {report.coder}: {report.assignments:,} of their codes"
-          + (f"; {hidden:,} other coders' codes on their blind sample left out" if hidden else ""))
+          + (f"; {hidden:,} other coders' codes on their blind sample left out" if hidden else "")
+          + (f"; {suggested:,} rule/machine suggestions on their blind sample left out" if suggested else ""))
+    if report.removed.get("models"):
+        print(f"{report.removed['models']:,} stored machine-coder models left out (they learned from every "
+              f"coder's codes, blind ones included); {report.coder} can train one in the copy")
     print(f"they code it with: oecode code {report.path} --question QUESTION --coder {report.coder}")
     return 0
 

@@ -1,8 +1,10 @@
 """The SQL behind handouts (a coder's working copy of a study) and merging them back.
 
 A handout is a study file: a copy of the study with what the coder must not see taken out (other coders'
-codes and notes on the coder's blind sample verbatims, and other people's audit rows, whose payloads hold
-codes). The copy remembers, in its settings, what the coder's rows and the frame looked like when it was
+codes and notes on the coder's blind sample verbatims, rule and machine suggestions on those verbatims
+(the coder's own included: the sample is coded from the text alone), every stored machine-coder model
+(trained on the team's codes, blind ones included, so its suggestions would reproduce them), and other
+people's audit rows, whose payloads hold codes). The copy remembers, in its settings, what the coder's rows and the frame looked like when it was
 made; merging compares the three states (then, in the copy, in the study now).
 """
 
@@ -62,13 +64,27 @@ def verbatim_places(study: Study, verbatim_ids: list[int]) -> dict[int, tuple[st
         f"JOIN respondents r ON r.id = v.respondent_id WHERE v.id IN ({marks})", [int(i) for i in verbatim_ids])}
 
 
+_BLIND = ("SELECT si.verbatim_id FROM sample_items si JOIN sample_coders sc ON sc.sample_id = si.sample_id "
+          "WHERE sc.coder = ?")
+
+
+def own_blind_suggestions(study: Study, coder: str) -> list[tuple[int, int]]:
+    """(verbatim id, code id) of the coder's own rule/machine suggestions on their blind sample verbatims."""
+    return [(int(v), int(c)) for v, c in study._db.execute(
+        "SELECT verbatim_id, code_id FROM assignments WHERE coder = ? AND source IN ('rule', 'machine') "
+        f"AND verbatim_id IN ({_BLIND}) ORDER BY verbatim_id, code_id", (coder, coder))]
+
+
 def redact_for(study: Study, coder: str) -> dict[str, int]:
     """Take out of a copy what its coder must not read; returns rows removed per kind. Inside a transaction."""
-    blind = ("SELECT si.verbatim_id FROM sample_items si JOIN sample_coders sc ON sc.sample_id = si.sample_id "
-             "WHERE sc.coder = ?")
+    blind = _BLIND
     removed = {
         "blind codes": study._db.execute(f"DELETE FROM assignments WHERE coder <> ? AND verbatim_id IN ({blind})",
                                          (coder, coder)).rowcount,
+        "blind suggestions": study._db.execute(
+            "DELETE FROM assignments WHERE coder = ? AND source IN ('rule', 'machine') "
+            f"AND verbatim_id IN ({blind})", (coder, coder)).rowcount,
+        "models": study._db.execute("DELETE FROM models").rowcount,
         "blind notes": study._db.execute(f"DELETE FROM notes WHERE coder <> ? AND verbatim_id IN ({blind})",
                                          (coder, coder)).rowcount,
         "others' audit rows": study._db.execute("DELETE FROM audit WHERE actor <> ?", (coder,)).rowcount,
