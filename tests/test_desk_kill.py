@@ -8,6 +8,7 @@ import pty
 import select
 import signal
 import sqlite3
+import subprocess
 import sys
 import time
 
@@ -78,3 +79,83 @@ def test_sigkill_mid_session_loses_no_assignment(tmp_path):
                                   ).fetchone()[0] == 4
     finally:
         connection.close()
+
+
+_CHILD = '''
+import json, sys, time
+from opencode.tui.background import exit_with_parent
+how = exit_with_parent(use_prctl=sys.argv[1] == "prctl", every=0.2)
+print(json.dumps({"how": how}), flush=True)
+time.sleep(120)
+'''
+
+_PARENT = '''
+import os, sys, threading, time
+from opencode.tui.background import ProcessJob
+
+class App:  # what ProcessJob asks of the desk
+    is_running = True
+    def __init__(self):
+        self.jobs = set()
+    def call_from_thread(self, callback, *args):
+        callback(*args)
+
+job = ProcessJob(App(), "slow_child", [sys.argv[1]], line=lambda m: print(job.process.pid, m["how"], flush=True))
+job.start()
+time.sleep(120)
+'''
+
+
+def _gone(pid: int) -> bool:
+    try:
+        with open(f"/proc/{pid}/stat") as stat:
+            return stat.read().rsplit(")", 1)[1].split()[0] in ("Z", "X")  # a zombie has stopped running
+    except FileNotFoundError:
+        return True
+    except OSError:
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            return True
+        return False
+
+
+@pytest.mark.parametrize("how", ["prctl", "poll"])
+def test_a_child_job_ends_when_the_desk_is_killed(tmp_path, how):
+    # the terms screen's drivers fit runs as a ProcessJob child; SIGKILL on the desk must not leave it running
+    if how == "prctl" and not sys.platform.startswith("linux"):
+        pytest.skip("prctl is Linux only")
+    (tmp_path / "slow_child.py").write_text(_CHILD)
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(tmp_path), os.environ.get("PYTHONPATH", "")])}
+    parent = subprocess.Popen([sys.executable, "-c", _PARENT, how], stdout=subprocess.PIPE, text=True, env=env)
+    child = 0
+    try:
+        line = parent.stdout.readline().split()
+        assert len(line) == 2 and line[1] == how, f"the child did not start as expected: {line}"
+        child = int(line[0])
+        assert not _gone(child)
+    finally:
+        parent.kill()
+        parent.wait()
+    try:
+        end = time.monotonic() + 5
+        while not _gone(child) and time.monotonic() < end:
+            time.sleep(0.05)
+        assert _gone(child), f"the child {child} outlived its killed parent"
+    finally:
+        if child and not _gone(child):
+            os.kill(child, signal.SIGKILL)
+
+
+def test_the_drivers_job_watches_its_parent_before_any_work(monkeypatch):
+    from opencode.tui import background, drivers_job
+
+    class Watched(Exception):
+        pass
+
+    def watch(*args, **kwargs):
+        raise Watched
+
+    monkeypatch.setattr(background, "exit_with_parent", watch)
+    with pytest.raises(Watched):
+        drivers_job.main(["absent.study", "why"])

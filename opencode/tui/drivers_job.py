@@ -2,7 +2,8 @@
 
 It prints one JSON object a line: {"progress": [done, total]} as the steps finish, then {"rows": [[term,
 figure], ...], "note": "..."} or {"error": "..."}. The screen kills the process when the coder leaves it or
-quits, so a long fit never holds up the desk.
+quits, so a long fit never holds up the desk; and it ends by itself when the desk dies without a word
+(SIGKILL), through `background.exit_with_parent`.
 """
 
 from __future__ import annotations
@@ -17,6 +18,9 @@ def _emit(message: dict) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    from opencode.tui.background import exit_with_parent
+
+    exit_with_parent()
     args = sys.argv[1:] if argv is None else argv
     if len(args) != 2:
         _emit({"error": "usage: python -m opencode.tui.drivers_job STUDY QUESTION"})
