@@ -101,9 +101,14 @@ def test_a_coder_cannot_write_another_coders_codes(pg_server, team_study, places
 
 
 def test_hand_written_sql_gets_the_same_refusals(pg_server, team_study, places):
+    inside, outside, _ = places
+    with as_user(pg_server, team_study, "bryn") as bryn:  # a note of bryn's for kit to try to touch
+        coding.set_note(bryn, outside, "bryn", "bryn's own note")
+    marks = "SELECT verbatim_id, coder, marked_at FROM coded_marks ORDER BY verbatim_id, coder"
     with Study.open(pg_server.address(study=team_study)) as lead:
-        _, outside, _ = places
         before = coding.assignments(lead, "why", ["ash", "bryn"])
+    with sql_as(pg_server, team_study, pg_server.superuser) as owner:
+        marks_before = owner.execute(marks).fetchall()
     kit = sql_as(pg_server, team_study, "kit")
     try:
         code_id = kit.execute("SELECT code_id FROM assignments WHERE coder = 'bryn' AND verbatim_id = %s",
@@ -113,12 +118,29 @@ def test_hand_written_sql_gets_the_same_refusals(pg_server, team_study, places):
                         "VALUES (%s, %s, 'bryn', 'hand', 'now')", (outside, code_id))
         with pytest.raises(psycopg.errors.InsufficientPrivilege, match="row-level security"):
             kit.execute("INSERT INTO audit (at, actor, action, entity) VALUES ('now', 'ash', 'assign', 'verbatim')")
-        # another coder's rows are not the coder's to update or delete: the statements touch nothing
-        assert kit.execute("UPDATE assignments SET coder = 'kit' WHERE coder = 'bryn'").rowcount == 0
-        assert kit.execute("DELETE FROM assignments WHERE coder IN ('ash', 'bryn')").rowcount == 0
-        assert kit.execute("UPDATE coded_marks SET marked_at = 'x' WHERE coder = 'ash'").rowcount == 0
-        assert kit.execute("DELETE FROM coded_marks WHERE coder = 'ash'").rowcount == 0
+        # another coder's rows are not the coder's to update or delete: refused out loud, not 0 rows quietly
+        for statement in ("UPDATE assignments SET coder = 'kit' WHERE coder = 'bryn'",
+                          "UPDATE assignments SET confidence = 0.5 WHERE coder = 'bryn'",
+                          "DELETE FROM assignments WHERE coder IN ('ash', 'bryn')",
+                          f"DELETE FROM assignments WHERE coder = 'bryn' AND verbatim_id = {outside}",
+                          "UPDATE coded_marks SET marked_at = 'x' WHERE coder = 'ash'",
+                          "UPDATE coded_marks SET coder = 'kit' WHERE coder = 'ash'",
+                          "DELETE FROM coded_marks WHERE coder = 'ash'",
+                          "DELETE FROM coded_marks",
+                          "UPDATE notes SET text = 'kit was here' WHERE coder = 'bryn'",
+                          "DELETE FROM notes WHERE coder = 'bryn'"):
+            with pytest.raises(psycopg.errors.InsufficientPrivilege, match=r"kit may not (update|delete) \w+'s rows"):
+                kit.execute(statement)
+        # rows the coder cannot read stay silent (refusing would tell them the rows exist): others' audit rows,
+        # and other coders' codes on the coder's blind sample
         assert kit.execute("UPDATE audit SET undone = 1 WHERE actor <> 'kit'").rowcount == 0
+        assert kit.execute("DELETE FROM assignments WHERE coder = 'bryn' AND verbatim_id = %s",
+                           (inside,)).rowcount == 0
+        # the coder's own rows are theirs to change
+        kit.execute("INSERT INTO notes (verbatim_id, coder, text, updated_at) VALUES (%s, 'kit', 'mine', 'now') "
+                    "ON CONFLICT (verbatim_id, coder) DO NOTHING", (outside,))
+        assert kit.execute("UPDATE notes SET text = 'still mine' WHERE coder = 'kit'").rowcount == 1
+        assert kit.execute("DELETE FROM notes WHERE coder = 'kit'").rowcount == 1
         for statement in ("UPDATE audit SET payload = '{}' WHERE actor = 'kit'",     # only `undone` is writable
                           "UPDATE codes SET label = 'renamed by kit'",
                           "INSERT INTO frames (name) VALUES ('kit''s frame')",
@@ -135,7 +157,25 @@ def test_hand_written_sql_gets_the_same_refusals(pg_server, team_study, places):
         kit.close()
     with Study.open(pg_server.address(study=team_study)) as lead:
         after = coding.assignments(lead, "why", ["ash", "bryn"])
+        assert coding.note_of(lead, outside, "bryn") == "bryn's own note"
+    with sql_as(pg_server, team_study, pg_server.superuser) as owner:
+        assert owner.execute(marks).fetchall() == marks_before
     assert after.equals(before)
+
+
+def test_the_lead_and_the_owner_still_change_anyones_rows_by_hand(pg_server, team_study, places):
+    _, outside, number = places
+    with as_user(pg_server, team_study, "bryn") as bryn:
+        coding.set_note(bryn, outside, "bryn", "to be tidied by the lead")
+    for user in ("ann", pg_server.superuser):  # the lead, then the schema's owner
+        client = sql_as(pg_server, team_study, user)
+        try:
+            assert client.execute("UPDATE notes SET text = %s WHERE coder = 'bryn' AND verbatim_id = %s",
+                                  (f"tidied by {user}", outside)).rowcount == 1
+        finally:
+            client.close()
+    with as_user(pg_server, team_study, "ann") as lead:
+        assert coding.note_of(lead, outside, "bryn") == f"tidied by {pg_server.superuser}"
 
 
 def test_a_coder_cannot_change_the_frame_samples_or_settings(pg_server, team_study):

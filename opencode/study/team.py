@@ -4,7 +4,9 @@ Each study gets two group roles. Members of the lead group read and write everyt
 the `final` coder, the machine coder's output). Members of the coder group read the study and write only
 their own rows: assignments, notes and done marks whose `coder` is their database user name, audit rows
 whose actor is their name (for their own undo), and the term-matrix cache (derived data). Row-level
-security policies enforce this on the server, so a hand-written SQL client gets the same answer as the desk.
+security policies enforce this on the server, so a hand-written SQL client gets the same answer as the desk;
+a coder's UPDATE or DELETE reaching another coder's row is refused with an error (trigger `oecode_own_rows`)
+rather than quietly touching nothing.
 Blind double coding stays blind: on a verbatim of a reliability sample assigned to them, a coder cannot read
 another coder's codes or notes. A coder's name in the study is their database user name.
 """
@@ -182,10 +184,15 @@ def apply_policies(study: "Study") -> None:
     ]
     own = "coder = current_user::text"
     visible = f"{own} OR NOT {schema}.oecode_blind(verbatim_id)"
+    # UPDATE and DELETE reach every row the coder can read, so that the trigger below refuses another coder's
+    # row out loud instead of the statement quietly touching nothing; rows hidden on a blind sample stay out
+    # of reach (and silent: refusing would tell the coder they exist).
     policies = {
-        "assignments": {"SELECT": (visible, None), "INSERT": (None, own), "UPDATE": (own, own), "DELETE": (own, None)},
-        "notes": {"SELECT": (visible, None), "INSERT": (None, own), "UPDATE": (own, own), "DELETE": (own, None)},
-        "coded_marks": {"SELECT": ("true", None), "INSERT": (None, own), "UPDATE": (own, own), "DELETE": (own, None)},
+        "assignments": {"SELECT": (visible, None), "INSERT": (None, own), "UPDATE": (visible, own),
+                        "DELETE": (visible, None)},
+        "notes": {"SELECT": (visible, None), "INSERT": (None, own), "UPDATE": (visible, own), "DELETE": (visible, None)},
+        "coded_marks": {"SELECT": ("true", None), "INSERT": (None, own), "UPDATE": ("true", own),
+                        "DELETE": ("true", None)},
         "audit": {"SELECT": ("actor = current_user::text", None), "INSERT": (None, "actor = current_user::text"),
                   "UPDATE": ("actor = current_user::text", "actor = current_user::text")},
     }
@@ -204,9 +211,32 @@ def apply_policies(study: "Study") -> None:
             text += f" USING ({using})" if using else ""
             text += f" WITH CHECK ({check})" if check else ""
             statements.append(text)
+    lead_name, coder_name = group_roles(study)
+    statements.append(
+        # a coder (not a lead) changing or deleting a row of another coder: refused, naming both
+        f"""CREATE OR REPLACE FUNCTION {schema}.oecode_own_rows() RETURNS trigger LANGUAGE plpgsql AS $fn$
+            BEGIN
+                IF pg_has_role(current_user, {_literal(coder_name)}, 'MEMBER')
+                   AND NOT pg_has_role(current_user, {_literal(lead_name)}, 'MEMBER') THEN
+                    RAISE EXCEPTION USING ERRCODE = 'insufficient_privilege',
+                        MESSAGE = format('%s may not %s %s''s rows in %s (a coder changes only their own)',
+                                         current_user, lower(TG_OP), OLD.coder, TG_TABLE_NAME);
+                END IF;
+                IF TG_OP = 'DELETE' THEN RETURN OLD; END IF;
+                RETURN NEW;
+            END $fn$""")
+    for table in OWN_ROWS:
+        statements.append(f"DROP TRIGGER IF EXISTS oecode_own_rows ON {schema}.{table}")
+        statements.append(f"CREATE TRIGGER oecode_own_rows BEFORE UPDATE OR DELETE ON {schema}.{table} FOR EACH ROW "
+                          f"WHEN (OLD.coder <> current_user::text) EXECUTE FUNCTION {schema}.oecode_own_rows()")
     with study.transaction():
         for statement in statements:
             db.admin(statement)
+
+
+def _literal(text: str) -> str:
+    """A SQL string literal (role names are checked names, but quote them all the same)."""
+    return "'" + text.replace("'", "''") + "'"
 
 
 def check_coder_identity(study: "Study", coder: str) -> None:
