@@ -1,16 +1,16 @@
 """The fixed choices and defaults of the analyses that the command line offers, in a light module so that
-`oecode VERB --help` loads no analysis code (tests/test_cli_imports.py checks each equals its source)."""
+`oecode VERB --help` loads no analysis code; the analysis modules import them from here."""
 
-#: agreement.study.LEVELS: the codes' level of measurement.
+#: the codes' level of measurement (agreement.study.LEVELS derives the same from the scale levels it computes).
 AGREEMENT_LEVELS = ("nominal", "ordinal", "interval", "ratio")
-#: agreement.verdict.KAPPA_BAR and ALPHA_BAR: a code is flagged when its interval reaches under either.
-AGREEMENT_KAPPA_BAR = 0.60
-AGREEMENT_ALPHA_BAR = 0.667
-#: themes.study.DEFAULT_MIN_DF: keep terms found in at least this many verbatims.
+#: a code is flagged when its interval reaches under either bar (agreement.verdict).
+AGREEMENT_KAPPA_BAR = 0.60  # Landis & Koch (1977): above 0.60 reads "substantial"
+AGREEMENT_ALPHA_BAR = 0.667  # Krippendorff (2004): the lowest alpha for tentative conclusions
+#: themes: keep terms found in at least this many verbatims.
 THEMES_MIN_DF = 2
-#: tables.study.TABLE_SUFFIXES: the files tables are written as.
+#: tables: the files tables are written as.
 TABLE_SUFFIXES = (".csv", ".xlsx", ".html")
-#: themes.finder.SHORT_TEXT_NOTE: the paragraph on short verbatims, min_df and phrases.
+#: themes: the paragraph on short verbatims, min_df and phrases.
 SHORT_TEXT_NOTE = (
     "Themes from short verbatims. Most answers hold 3 to 30 words, so each verbatim gives a theme finder "
     "only a handful of terms, and two answers about the same thing often share no word at all. Two lexicon "

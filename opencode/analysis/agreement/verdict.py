@@ -13,9 +13,10 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from opencode.errors import OpenCodeError
+# the bars: Landis & Koch (1977) read kappa above 0.60 as "substantial"; Krippendorff (2004) draws tentative
+# conclusions from alpha of 0.667 up
+from opencode.analysis.choices import AGREEMENT_ALPHA_BAR as ALPHA_BAR, AGREEMENT_KAPPA_BAR as KAPPA_BAR
 
-KAPPA_BAR = 0.60  # Landis & Koch (1977): above 0.60 reads "substantial"
-ALPHA_BAR = 0.667  # Krippendorff (2004): the lowest alpha on which to draw tentative conclusions
 #: special codes left out of the headline by default: non-answers and "don't know" agree by construction (the
 #: non-answer flag codes them), so they would lift the mean without saying anything about the code frame.
 LEFT_OUT_SPECIALS = ("nonanswer", "dontknow")

@@ -23,9 +23,9 @@ from scipy import stats as sps
 
 from opencode.analysis.agreement.stats import _ratio
 from opencode.errors import OpenCodeError
+from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS  # noqa: F401
 
 WEIGHTS = ("identity", "linear", "quadratic")
-LEVELS = ("nominal", "ordinal", "interval", "ratio")
 
 
 def agreement_weights(values, kind: str = "identity") -> np.ndarray:

@@ -16,8 +16,8 @@ from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
 from opencode.files.safe_write import atomic_open
 from opencode.study.store import Study
+from opencode.analysis.choices import TABLE_SUFFIXES  # noqa: F401  (the files tables are written as)
 
-TABLE_SUFFIXES = (".csv", ".xlsx", ".html")
 
 
 @dataclass

@@ -6,7 +6,7 @@ started from NNDSVD, with the Frobenius loss (coordinate descent) or the Kullbac
 variational Bayes. Verbatims with no terms are left out of the fit and counted; seeded NMF starts chosen
 themes from the user's term lists (e.g. an existing code frame).
 
-SHORT_TEXT_NOTE below is the user-facing paragraph on short verbatims, min_df and phrases.
+SHORT_TEXT_NOTE (kept in analysis/choices.py) is the user-facing paragraph on short verbatims, min_df and phrases.
 """
 
 from __future__ import annotations
@@ -24,19 +24,8 @@ from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.utils.extmath import randomized_svd
 
 from opencode.errors import OpenCodeError
+from opencode.analysis.choices import SHORT_TEXT_NOTE  # noqa: F401  (the paragraph lives with the CLI's light choices)
 
-SHORT_TEXT_NOTE = (
-    "Themes from short verbatims. Most answers hold 3 to 30 words, so each verbatim gives a theme finder "
-    "only a handful of terms, and two answers about the same thing often share no word at all. Two lexicon "
-    "settings therefore move the themes more than the choice of method. min_df (the fewest verbatims a term "
-    "must appear in) removes typos and one-off words: raising it gives cleaner, more general themes and more "
-    "verbatims left with no terms (these are counted, not themed), while lowering it lets rare words and "
-    "misspellings form small, hard-to-read themes. Merged phrases (for example 'opening hours' or 'self "
-    "service' as one term) keep a two-word idea together: a theme then shows the phrase instead of its "
-    "separate words, verbatims that use it are pulled into the same theme, and fewer spurious themes are "
-    "built from common words that only mean something in a pair. Re-run the k search after changing either "
-    "setting; reading the themes and their verbatims stays the final test."
-)
 
 METHODS = ("nmf", "lda")
 LOSSES = {"frobenius": "frobenius", "kullback-leibler": "kullback-leibler", "kl": "kullback-leibler"}

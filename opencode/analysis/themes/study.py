@@ -36,9 +36,9 @@ from opencode.study.survey_data import analysis_values, get_question, get_variab
 from opencode.text.matrix import TermMatrix
 from opencode.text.study_text import analyzer_for, get_lexicon, term_matrix
 from opencode.files.textout import format_table
+from opencode.analysis.choices import THEMES_MIN_DF as DEFAULT_MIN_DF  # common practice, no published source
 
 KIND_THEMES, KIND_K_SEARCH = "themes", "k-search"
-DEFAULT_MIN_DF = 2  # common practice (no published source): drop one-off words and typos before finding themes
 RULE_TERMS = 5
 _PLACEHOLDER = re.compile(r"^(?:#\w+|_\w+_)$")  # #number, #url, #email (and the _num_ of older runs)
 
