@@ -65,13 +65,12 @@ def format_summary(summary: StudySummary, width: int | None = None) -> str:
                  for q in summary.questions]
     variables = []
     for v in summary.variables:
-        label = v.label
         missing = ", ".join(_plain(c) for c in sorted(v.missing_codes))
-        if missing:
-            label += f" [missing: {missing}]"
+        head = " ".join(part for part in (v.label, f"[missing: {missing}]" if missing else "") if part)
+        parts = [head] if head else []
         if v.value_labels:
-            label += "; values: " + "; ".join(f"{_plain(code)}={text}" for code, text in v.value_labels.items())
-        variables.append([v.name, v.kind, v.role, label])
+            parts.append("values: " + "; ".join(f"{_plain(code)}={text}" for code, text in v.value_labels.items()))
+        variables.append([v.name, v.kind, v.role, "; ".join(parts)])
     return "\n".join([
         f"study {summary.path}: {summary.respondents:,} respondents", "",
         format_table(["open question", "verbatims", "non-answers", "%", "coded", "label"], questions,
