@@ -9,6 +9,7 @@ import argparse
 
 from typing import TYPE_CHECKING
 
+from opencode.files.help_text import HelpFormatter
 from opencode.coding.choices import FINAL
 from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, progress_line
 
@@ -24,7 +25,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  "on people's codes and use its suggestions. Machine and rule codes are "
                                  "suggestions until a person accepts them at the desk.",
                                  epilog="example:\n  oecode model train survey.study --question why",
-                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 formatter_class=HelpFormatter)
     actions = add_actions(verb)
     S = "survey.study --question why"
     p = add_action(actions, "train", "train the machine coder on people's codes (cross-validated per code)",

@@ -10,6 +10,7 @@ from opencode.analysis.choices import AGREEMENT_ALPHA_BAR, AGREEMENT_KAPPA_BAR
 from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
 from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 from opencode.commands.common import (
     add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table,
 )
@@ -26,7 +27,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  description="Reliability samples: draw verbatims for blind double coding, "
                                  "assign them to coders, follow their progress.",
                                  epilog="example:\n  oecode sample draw survey.study --question why --name check "
-                                 "--n 150", formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 "--n 150", formatter_class=HelpFormatter)
     actions = add_actions(verb)
     S = "survey.study --question why"
     s = add_action(actions, "draw", "draw a sample of verbatims (stratified on request)",
