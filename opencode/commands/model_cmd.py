@@ -33,6 +33,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _question(p)
     p.add_argument("--coder", help="learn from this coder only (default: every person's codes)")
     p.add_argument("--min-examples", type=int, default=5, help="skip codes with fewer coded examples (default 5)")
+    p.add_argument("--max-iter", type=int, default=100, metavar="N", help="iteration limit of each logistic fit "
+                   "(default 100; the notes say when fits reach it)")
     p = add_action(actions, "report", "the trained model: precision, recall, F1 and kappa per code",
                    [f"oecode model report {S}"])
     _question(p)
@@ -101,7 +103,8 @@ def _train(study: Study, args: argparse.Namespace) -> None:
     from opencode.coding import machine_coding
 
     progress_line("analysing verbatims and cross-validating each code")
-    trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
+    trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples,
+                                   max_iter=args.max_iter)
     print(f"model {trained.id}: suggests {len(trained.model.classes_)} of {len(trained.model.codes_)} codes")
     _report(study, args)
     print("next, see how much the model can code alone at each threshold: "
