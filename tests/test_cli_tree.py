@@ -117,6 +117,9 @@ def test_a_wide_example_is_folded_between_options_and_kept_whole():
 def test_wide_terminals_leave_examples_on_one_line(monkeypatch, capsys):
     out = _help_at(("frame", "add"), 200, monkeypatch, capsys)
     assert '  oecode frame add survey.study --question why --label "Opening hours" --hotkey h\n' in out
+    out = _help_at(("themes", "fit"), 200, monkeypatch, capsys)  # notes stay readable: at most 100 columns
+    note = out.split("Themes from short verbatims")[1].split("\n\n")[0]
+    assert max(map(len, note.splitlines())) <= 100 and len(note.splitlines()) > 3
 
 
 @pytest.mark.parametrize("path", [p for p in TREE if len(p) == 2], ids=" ".join)

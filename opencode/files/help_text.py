@@ -32,13 +32,14 @@ class HelpFormatter(argparse.RawDescriptionHelpFormatter):
 def fit_lines(text: str, width: int) -> list[str]:
     """Each line of `text` fitted to `width` columns: examples folded, prose wrapped, short lines as written."""
     out: list[str] = []
+    prose = min(width, PROSE_MAX)
     for line in text.splitlines():
-        if len(line) <= width:
-            out.append(line)
-        elif line.lstrip().startswith("oecode "):
-            out += fold_command(line, width)
+        if line.lstrip().startswith("oecode "):
+            out += fold_command(line, width) if len(line) > width else [line]
+        elif len(line) > prose:
+            out += _wrap_prose(line, prose)
         else:
-            out += _wrap_prose(line, min(width, PROSE_MAX))
+            out.append(line)
     return out
 
 
