@@ -15,6 +15,7 @@ import os
 import re
 import sys
 
+from opencode.files.help_text import HelpFormatter
 from opencode.version import __version__
 
 #: Verbs that draw a full-screen terminal app: their output is not filtered.
@@ -112,7 +113,7 @@ def build_parser(verb: str | None = None) -> argparse.ArgumentParser:
     command starts at once); without, every verb is listed from VERBS and no command module is imported."""
     parser = Parser(prog="oecode", description="Code open-ended survey answers: from the survey file to a code "
                     "frame, coded data, agreement and tables.", epilog=TOP_EPILOG,
-                    formatter_class=argparse.RawDescriptionHelpFormatter)
+                    formatter_class=HelpFormatter)
     parser.add_argument("--version", action="version", version=f"oecode {__version__}")
     subparsers = parser.add_subparsers(dest="verb", metavar="VERB")
     if verb in VERBS:

@@ -10,7 +10,7 @@ import pytest
 from opencode.coding import adjudication as adj
 from opencode.coding import assignments as coding
 from opencode.coding import reliability as rel
-from opencode.errors import OpenCodeError
+from opencode.errors import BadInput, OpenCodeError
 from opencode.study import survey_data
 from opencode.study.store import Study
 
@@ -80,18 +80,31 @@ def test_no_code_decision_is_settled_and_marked_done(demo_copy):
 
 def test_bad_decisions_are_clear_errors(demo_copy):
     with Study.open(demo_copy) as study:
-        v = adj.differences(study, "why", "ash,bryn", limit=1)[0].verbatim_id
+        d = adj.differences(study, "why", "ash,bryn", limit=1)[0]
+        v = d.verbatim_id
         other = int(survey_data.verbatims(study, "improve")["verbatim_id"].iloc[0])
         lone = coding.uncoded_ids(study, "why", "ash", limit=1)[0]
-        with pytest.raises(OpenCodeError, match=f"coder 'cy' has not coded verbatim {v}"):
+        with pytest.raises(OpenCodeError, match=f"coder 'cy' has not coded respondent {d.respondent} on question"):
             adj.take(study, "why", v, "cy")
-        with pytest.raises(OpenCodeError, match=f"verbatim {other} is not an answer to question 'why'"):
+        with pytest.raises(OpenCodeError, match=f"verbatim id {other} is not an answer to question 'why'"):
             adj.take(study, "why", other, "ash")
         with pytest.raises(OpenCodeError, match="the frame has no code 77"):
             adj.set_final(study, "why", lone, [77])
         with pytest.raises(OpenCodeError, match="is a net"):
             adj.set_final(study, "why", lone, [90])
         assert study._db.execute("SELECT COUNT(*) FROM assignments WHERE coder = 'final'").fetchone()[0] == 0
+
+
+def test_a_respondent_id_finds_its_verbatim_and_an_unknown_one_is_refused(demo_copy):
+    with Study.open(demo_copy) as study:
+        ids = respondent_ids(study)
+        respondent = sorted(ids)[3]
+        assert adj.verbatim_of_respondent(study, "why", respondent) == ids[respondent]
+        assert adj.verbatim_of_respondent(study, "why", f" {respondent} ") == ids[respondent]
+        with pytest.raises(BadInput, match=r"^respondent 'ZZ404' has no verbatim in question 'why'$"):
+            adj.verbatim_of_respondent(study, "why", "ZZ404")
+        with pytest.raises(OpenCodeError, match="no open question named 'wh'"):
+            adj.verbatim_of_respondent(study, "wh", respondent)
 
 
 def test_accept_agreed_settles_every_agreed_verbatim_in_one_undoable_step(demo_copy, csv_sets):

@@ -8,6 +8,8 @@ import re
 import pytest
 
 from opencode.cli import main
+from opencode.coding import assignments as coding
+from opencode.study import survey_data
 from opencode.study.store import Study
 
 NAN = re.compile(r"\bnan\b", re.IGNORECASE)
@@ -41,7 +43,10 @@ def test_agree_prints_tables_and_writes_csv_and_html(demo_copy, tmp_path, capsys
                  "Not safe without staff", "300 by two or more coders", "Verbatims where the coders differ"):
         assert part in out
     assert not NAN.search(out)
-    assert out.count("(respondent ") == 2
+    assert len(re.findall(r"^respondent WR\d+: ", out, re.M)) == 2  # the differences, by respondent id
+    disputed = out.split("Verbatims with most disputed codes")[1]
+    assert re.search(r"^respondent\s+disputed codes\s+ash\s+bryn", disputed, re.M)
+    assert re.search(r"^WR\d+\s+\d+\s", disputed, re.M)
     with open(target_csv, newline="", encoding="utf-8") as handle:
         rows = list(csv.reader(handle))
     assert rows[0][:2] == ["section", "code"] and len(rows) > 50
@@ -68,16 +73,37 @@ def test_agree_on_a_sample_and_adjudicate_agreed(demo_copy, capsys, csv_sets):
     assert code == 0 and "undid final's last change" in out
 
 
-def test_agree_settles_one_verbatim(demo_copy, capsys):
+def test_agree_settles_one_verbatim_named_by_respondent_id(demo_copy, capsys):
+    """--respondent takes the id the differences list (and the desk's go-to) shows."""
     code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--resamples", "0",
                        "--differences", "1")
-    verbatim = re.search(r"^verbatim (\d+) ", out, re.M).group(1)
-    code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate", "set",
-                       "--verbatim", verbatim, "--codes", "1,7")
-    assert code == 0 and f"final now holds 1, 7 on verbatim {verbatim}" in out
+    respondent = re.search(r"^respondent (\S+): ", out, re.M).group(1)
+    code, out, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate",
+                         "set", "--respondent", respondent, "--codes", "1,7")
+    assert code == 0, err
+    assert out == f"final now holds 1, 7 for respondent {respondent}\n"
+    with Study.open(demo_copy) as study:
+        verbatim_id = int(survey_data.verbatims(study, "why").set_index("respondent").at[respondent, "verbatim_id"])
+        held = [a.number for a in coding.codes_of(study, verbatim_id, "final", ("hand",))]
+    assert held == [1, 7]
     code, out, _ = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate",
-                       "take", "--verbatim", verbatim, "--side", "ash")
-    assert code == 0 and "final now holds" in out
+                       "take", "--respondent", respondent, "--side", "ash")
+    assert code == 0 and out.startswith("final now holds ") and out.endswith(f" for respondent {respondent}\n")
+    # the study's internal verbatim number stays reachable under its own name (and older scripts' --verbatim)
+    for option in ("--verbatim-id", "--verbatim"):
+        code, out, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn",
+                             "--adjudicate", "union", option, verbatim_id)
+        assert code == 0, err
+        assert out.endswith(f" for respondent {respondent}\n")
+
+
+def test_a_respondent_not_in_the_question_is_one_clear_line(demo_copy, capsys):
+    code, out, err = run(capsys, "agree", demo_copy, "--question", "why", "--coders", "ash,bryn", "--adjudicate",
+                         "take", "--respondent", "ZZ404", "--side", "ash")
+    assert code == 1 and out == ""
+    assert err == "oecode agree: respondent 'ZZ404' has no verbatim in question 'why'\n"
+    with Study.open(demo_copy) as study:
+        assert study._db.execute("SELECT COUNT(*) FROM assignments WHERE coder = 'final'").fetchone()[0] == 0
 
 
 @pytest.mark.parametrize("argv, message", [
@@ -85,8 +111,9 @@ def test_agree_settles_one_verbatim(demo_copy, capsys):
     (["agree", "--question", "why", "--coders", "ash"], "name at least 2 coders"),
     (["agree", "--question", "wh", "--coders", "ash,bryn"], "no open question named 'wh'"),
     (["agree", "--question", "why", "--coders", "ash,bryn", "--sample", "rel7"], "no reliability sample named 'rel7'"),
-    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "take"], "--verbatim is needed"),
-    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "set", "--verbatim", "1", "--codes", "x"],
+    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "take"], "--respondent is needed"),
+    (["agree", "--question", "why", "--coders", "ash,bryn", "--adjudicate", "set", "--respondent", "WR04180", "--codes",
+      "x"],
      "not a comma-separated list of code numbers"),
     (["sample", "draw", "--question", "why", "--name", "r"], "give --n N or --percent P"),
     (["sample", "status", "--question", "why", "--name", "r"], "no reliability sample named 'r'"),

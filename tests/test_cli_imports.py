@@ -15,7 +15,7 @@ from opencode import cli
 
 #: Libraries that take a noticeable time to import.
 HEAVY = ("sklearn", "scipy", "matplotlib", "nltk", "textual", "pandas", "psycopg", "pyreadstat", "openpyxl",
-         "vaderSentiment", "opencode.demo_job", "opencode.analysis.themes.finder")
+         "lxml", "vaderSentiment", "opencode.demo_job", "opencode.analysis.themes.finder")
 
 _PROBE = r"""
 import contextlib, io, json, sys
@@ -85,8 +85,14 @@ def test_info_loads_no_heavy_library(demo_copy):
     # tables and agreement statistics need pandas and scipy; none of them fits models, draws charts or stems
     ("tables", ["--question", "why", "--banner", "support", "--coder", "ash"], {"pandas", "scipy"}),
     ("agree", ["--question", "why", "--coders", "ash,bryn", "--resamples", "20"], {"pandas", "scipy"}),
+    # each export format loads its own file-format library only: a CSV export none of them
     ("export", ["--format", "csv", "--out", "{out}.csv", "--question", "why", "--coder", "ash"],
-     {"pandas", "scipy", "pyreadstat"}),  # the exporters' module serves every format
+     {"pandas", "scipy"}),
+    ("export", ["--out", "{out}.sav", "--question", "why", "--coder", "ash"], {"pandas", "scipy", "pyreadstat"}),
+    ("export", ["--out", "{out}.xlsx", "--question", "why", "--coder", "ash"],
+     {"pandas", "scipy", "openpyxl", "lxml"}),
+    ("export", ["--format", "sss", "--out", "{out}.sss", "--question", "why", "--coder", "ash"],
+     {"pandas", "scipy"}),
     ("frame", ["list", "--question", "why"], set()),
     ("sample", ["list", "--question", "why"], set()),
 ])

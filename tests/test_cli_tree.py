@@ -7,11 +7,13 @@ from __future__ import annotations
 
 import argparse
 import re
+import shlex
 
 import pytest
 
 from opencode import cli
-from opencode.cli import VERBS, build_parser, main, reorder
+from opencode.cli import VERBS, build_parser, main, parse, reorder
+from opencode.files.help_text import fold_command, unfold_command
 
 
 def _subcommands(parser: argparse.ArgumentParser) -> dict[str, argparse.ArgumentParser]:
@@ -62,6 +64,62 @@ def test_help_runs_and_shows_an_example(path, capsys):
     if actions:  # a verb with actions lists them, each with its help
         for name, sub in actions.items():
             assert re.search(rf"^    {re.escape(name)}\b", out, re.M)
+
+
+def _help_at(path: tuple[str, ...], columns: int, monkeypatch, capsys) -> str:
+    monkeypatch.setenv("COLUMNS", str(columns))
+    with pytest.raises(SystemExit) as stop:
+        main([*path, "--help"])
+    assert stop.value.code == 0
+    return capsys.readouterr().out
+
+
+def _examples(text: str) -> list[list[str]]:
+    """The example command lines of a help text, each as its lines (one, or several continued by a backslash)."""
+    examples, lines = [], text.splitlines()
+    for index, line in enumerate(lines):
+        if line.startswith("  oecode ") and not (index and lines[index - 1].endswith("\\")):
+            example = [line]
+            while example[-1].endswith("\\"):
+                example.append(lines[index + len(example)])
+            examples.append(example)
+    return examples
+
+
+@pytest.mark.parametrize("path", [()] + TREE, ids=lambda p: " ".join(p) or "oecode")
+def test_help_fits_80_columns_and_its_examples_run(path, monkeypatch, capsys):
+    """At COLUMNS=80 no help line is wider than 80 (descriptions, notes, examples included), and every example,
+    folded or not, is a command line the parser takes (a folded one copies into a shell as one command)."""
+    out = _help_at(path, 80, monkeypatch, capsys)
+    wide = [line for line in out.splitlines() if len(line) > 80]
+    assert not wide, "\n".join(wide)
+    examples = _examples(out)
+    assert examples or not path
+    for example in examples:
+        words = shlex.split(" ".join(example).replace("\\ ", ""))  # as a shell joins continued lines
+        assert words == shlex.split(unfold_command(example))
+        assert words[0] == "oecode"
+        parse(words[1:])  # an example that no longer parses raises SystemExit(2) here
+
+
+def test_a_wide_example_is_folded_between_options_and_kept_whole():
+    line = '  oecode frame add survey.study --question why --label "Opening hours" --hotkey h'
+    assert len(line) > 80
+    folded = fold_command(line, 78)
+    assert folded == ['  oecode frame add survey.study --question why --label "Opening hours" \\',
+                      "      --hotkey h"]
+    assert unfold_command(folded) == line.strip()
+    narrow = fold_command(line, 30)  # a group wider than a line is cut between its words, never inside one
+    assert all(len(part) <= 30 for part in narrow), narrow
+    assert shlex.split(unfold_command(narrow)) == shlex.split(line)
+
+
+def test_wide_terminals_leave_examples_on_one_line(monkeypatch, capsys):
+    out = _help_at(("frame", "add"), 200, monkeypatch, capsys)
+    assert '  oecode frame add survey.study --question why --label "Opening hours" --hotkey h\n' in out
+    out = _help_at(("themes", "fit"), 200, monkeypatch, capsys)  # notes stay readable: at most 100 columns
+    note = out.split("Themes from short verbatims")[1].split("\n\n")[0]
+    assert max(map(len, note.splitlines())) <= 100 and len(note.splitlines()) > 3
 
 
 @pytest.mark.parametrize("path", [p for p in TREE if len(p) == 2], ids=" ".join)

@@ -126,6 +126,44 @@ def test_train_store_reload_and_single_suggestion(coded_study):
         assert [r["suggests"] for r in report] == [True, True, False]
 
 
+def test_fits_stopped_by_the_iteration_limit_are_one_note_not_a_raw_warning(coded_study, tmp_path, capsys):
+    """max_iter=1 stops liblinear early in every fit: scikit-learn would warn (ConvergenceWarning) once per fit;
+    the training result says it once, in plain words, and the warning never reaches the user."""
+    import shutil
+    import warnings
+
+    from sklearn.exceptions import ConvergenceWarning
+
+    from opencode.cli import main
+
+    path = tmp_path / "t.study"
+    shutil.copyfile(coded_study[0], path)
+    with Study.open(path) as study, warnings.catch_warnings(record=True) as seen:
+        warnings.simplefilter("always")
+        stalled = autocode.train(study, "why", max_iter=1)
+        calm = autocode.train(study, "why")
+    assert not [w for w in seen if issubclass(w.category, ConvergenceWarning)], [str(w.message) for w in seen]
+    limit = [n for n in stalled.notes if "iteration limit" in n]
+    assert len(limit) == 1
+    fits = 2 * (5 + 1)  # two learned codes, each fitted on 5 cross-validation folds and once on everything
+    assert stalled.model.n_fits_ == fits and 0 < stalled.model.n_stalled_fits_ <= fits
+    assert limit[0].startswith(f"{stalled.model.n_stalled_fits_} of the {fits} model fits stopped at the "
+                               "iteration limit (1) before converging")
+    assert limit[0].count(". ") == 0 and calm.model.n_stalled_fits_ == 0
+    assert not [n for n in calm.notes if "iteration limit" in n]
+    # the command line: the note printed once, no warning text on stderr
+    autocode._CACHE.clear()
+    with warnings.catch_warnings(record=True) as seen:
+        warnings.simplefilter("always")
+        assert main(["model", "train", str(path), "--question", "why", "--max-iter", "1"]) == 0
+    out, err = capsys.readouterr()
+    assert not [w for w in seen if issubclass(w.category, ConvergenceWarning)]
+    assert out.count("iteration limit (1)") == 1 and "ConvergenceWarning" not in err and "liblinear" not in err.lower()
+    autocode._CACHE.clear()
+    with Study.open(path) as study:  # the stored model keeps its note
+        assert [n for n in autocode.load_model(study, "why").notes if "iteration limit" in n] == limit
+
+
 def test_pickled_arrays_are_refused():
     buffer = io.BytesIO()
     np.savez(buffer, coef=np.array([{"x": 1}], dtype=object))

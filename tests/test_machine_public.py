@@ -198,7 +198,7 @@ def test_follows_scikit_learn_convention(described):
     analyzer = Analyzer(numbers="keep")
     model = MachineCoder(analyzer=analyzer, C=2.0, min_examples=8)
     assert set(model.get_params(deep=False)) == {"analyzer", "C", "cv", "min_examples", "sublinear_tf",
-                                                 "random_state"}
+                                                 "max_iter", "random_state"}
     assert model.get_params()["analyzer__numbers"] == "keep"
     with pytest.raises(NotFittedError):
         check_is_fitted(model)

@@ -7,6 +7,8 @@ For the compare screen and `oecode agree --adjudicate` (question = the open ques
 - `take(study, question, verbatim_id, coder) -> tuple[int, ...]`: final gets that coder's codes;
 - `take_union(study, question, verbatim_id, coders) -> tuple[int, ...]`: final gets every code any of them gave;
 - `set_final(study, question, verbatim_id, numbers) -> tuple[int, ...]`: final gets exactly `numbers`;
+- `verbatim_of_respondent(study, question, respondent) -> int`: the verbatim a respondent (by the survey's
+  respondent id, as every list shows it and the desk's go-to takes it) gave to the question, for the three above;
 - `accept_agreed(study, question, coders, sample=None) -> int`: every verbatim all `coders` coded alike and
   final has not settled yet goes to final in one step; returns how many;
 - `undo_last(study) -> str | None`: reverse final's newest change (the coding library's undo for `final`).
@@ -29,8 +31,9 @@ from opencode.coding.assignments import FINAL
 from opencode.coding.frames import load_frame
 from opencode.coding.history import Change
 from opencode.coding.reliability import MACHINE, codes_by_verbatim, coder_sets, parse_coders
-from opencode.errors import OpenCodeError
+from opencode.errors import BadInput, OpenCodeError
 from opencode.study import assignments_store as astore
+from opencode.study import desk_queries as dq
 from opencode.study import survey_data
 from opencode.study.store import Study, now
 
@@ -82,17 +85,33 @@ def format_differences(found: Sequence[Difference], labels: dict[int, str], widt
         text = d.text if len(d.text) <= width else d.text[: width - 3] + "..."
         names = [*d.codes, FINAL]
         pad = max(map(len, names))
-        lines = [f"verbatim {d.verbatim_id} (respondent {d.respondent}): {text}"]
+        lines = [f"respondent {d.respondent}: {text}"]
         lines += [f"  {c.ljust(pad)}  {_codes_text(n, labels, 'not coded')}" for c, n in d.codes.items()]
         lines.append(f"  {FINAL.ljust(pad)}  {_codes_text(d.final, labels, 'not settled yet')}")
         blocks.append("\n".join(lines))
     return "\n\n".join(blocks) if blocks else "no differences: the coders agree on every verbatim they both coded"
 
 
+def verbatim_of_respondent(study: Study, question: str, respondent: str) -> int:
+    """The verbatim id of a respondent's answer to a question, by the survey's respondent id; a respondent
+    who gave the question no verbatim (or is not in the survey) is refused naming both."""
+    question_id = survey_data.get_question(study, question).id
+    found = dq.verbatim_of_respondent(study, question_id, respondent)
+    if found is None:
+        raise BadInput(f"respondent {str(respondent).strip()!r} has no verbatim in question {question!r}")
+    return found
+
+
+def respondent_of(study: Study, verbatim_id: int) -> str:
+    """How messages name a verbatim: by its respondent's survey id."""
+    card = dq.verbatim_card(study, int(verbatim_id))
+    return f"respondent {card.respondent}" if card else f"verbatim {verbatim_id}"
+
+
 def _check_verbatim(study: Study, question: str, verbatim_id: int) -> None:
     question_id = survey_data.get_question(study, question).id
     if astore.verbatim_question(study, int(verbatim_id)) != question_id:
-        raise OpenCodeError(f"verbatim {verbatim_id} is not an answer to question {question!r}")
+        raise OpenCodeError(f"verbatim id {verbatim_id} is not an answer to question {question!r}")
 
 
 def _side(study: Study, question: str, verbatim_id: int, coder: str) -> tuple[int, ...]:
@@ -100,7 +119,7 @@ def _side(study: Study, question: str, verbatim_id: int, coder: str) -> tuple[in
     held = codes_by_verbatim(study, question, coder, np.asarray([verbatim_id], dtype=np.int64))
     if verbatim_id not in held:
         who = "the machine coder" if coder == MACHINE else f"coder {coder!r}"
-        raise OpenCodeError(f"{who} has not coded verbatim {verbatim_id} of question {question!r}")
+        raise OpenCodeError(f"{who} has not coded {respondent_of(study, verbatim_id)} on question {question!r}")
     return tuple(sorted(held[verbatim_id]))
 
 

@@ -14,6 +14,7 @@ a JSON vocabulary: stored without pickle, so opening someone else's study cannot
 from __future__ import annotations
 
 import io
+import warnings
 from dataclasses import dataclass
 from typing import Any, Sequence
 
@@ -21,6 +22,7 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator
+from sklearn.exceptions import ConvergenceWarning
 from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import KFold
 
@@ -128,27 +130,41 @@ class MachineCoder(BaseEstimator):
 
     Parameters: analyzer (turns texts into terms; None: the default Analyzer), C (inverse L2 strength), cv
     (folds), min_examples (fewest coded examples, and as many without, for a code to be learned),
-    sublinear_tf, random_state.
+    sublinear_tf, max_iter (iteration limit of each logistic fit), random_state.
 
     Learned: codes_ (every column of Y), y_ (Y as booleans), trained_ (mask over codes_ of the codes learned),
     classes_ (codes_[trained_]: the codes the model suggests, the columns of predict_proba), skipped_ ((code,
     examples) of the codes it cannot suggest), analyzer_, vectorizer_ (vocabulary and idf), coef_,
-    intercept_, platt_, oof_proba_ (cross-validated probabilities, verbatims x classes_) and metrics_
-    (cross-validated precision, recall, F1, kappa and positives per class at probability 0.5).
+    intercept_, platt_, oof_proba_ (cross-validated probabilities, verbatims x classes_), metrics_
+    (cross-validated precision, recall, F1, kappa and positives per class at probability 0.5), n_fits_ and
+    n_stalled_fits_ (logistic fits, and those stopped by max_iter before converging: counted for the training
+    notes instead of scikit-learn's ConvergenceWarning reaching the user).
     """
 
     def __init__(self, analyzer: Any = None, C: float = 1.0, cv: int = 5, min_examples: int = 5,
-                 sublinear_tf: bool = True, random_state: int | None = 0):
+                 sublinear_tf: bool = True, max_iter: int = 100, random_state: int | None = 0):
         self.analyzer = analyzer
         self.C = C
         self.cv = cv
         self.min_examples = min_examples
         self.sublinear_tf = sublinear_tf
+        self.max_iter = max_iter
         self.random_state = random_state
 
     # -- training ----------------------------------------------------------------------------------------------
     def _model(self) -> LogisticRegression:
-        return LogisticRegression(C=self.C, solver="liblinear", random_state=self.random_state)
+        return LogisticRegression(C=self.C, solver="liblinear", max_iter=self.max_iter,
+                                  random_state=self.random_state)
+
+    def _fit_one(self, X: sp.spmatrix, y: np.ndarray) -> LogisticRegression:
+        """One logistic fit; a fit stopped by max_iter is counted (the training notes say so in one sentence)
+        instead of scikit-learn's ConvergenceWarning reaching the user."""
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            model = self._model().fit(X, y)
+        self.n_fits_ += 1
+        self.n_stalled_fits_ += int(np.max(model.n_iter_) >= self.max_iter)
+        return model
 
     def _analyzer(self) -> Any:
         if self.analyzer is not None:
@@ -191,14 +207,15 @@ class MachineCoder(BaseEstimator):
         self.intercept_ = np.zeros(k)
         self.platt_ = np.zeros((k, 2))
         self.oof_proba_ = np.zeros((n, k))
+        self.n_fits_ = self.n_stalled_fits_ = 0
         for j in range(k):
             y = Y[:, j]
             for train, test in folds:
                 if y[train].min() == y[train].max():
                     decision[test, j] = 10.0 if y[train][0] else -10.0
                     continue
-                decision[test, j] = self._model().fit(X_terms[train], y[train]).decision_function(X_terms[test])
-            model = self._model().fit(X_terms, y)
+                decision[test, j] = self._fit_one(X_terms[train], y[train]).decision_function(X_terms[test])
+            model = self._fit_one(X_terms, y)
             self.coef_[j] = model.coef_[0]
             self.intercept_[j] = model.intercept_[0]
             self.platt_[j] = _platt(decision[:, j], y)
@@ -251,7 +268,7 @@ class MachineCoder(BaseEstimator):
         """(JSON-safe metadata, npz bytes) describing the fitted model."""
         params = {k: v for k, v in self.get_params(deep=False).items() if k != "analyzer"}
         meta = {"format": STATE_FORMAT, "params": params, "vocabulary": self.vectorizer_.vocabulary_,
-                "skipped": [list(s) for s in self.skipped_],
+                "skipped": [list(s) for s in self.skipped_], "fits": [self.n_fits_, self.n_stalled_fits_],
                 "analyzer": self.analyzer_.to_dict() if hasattr(self.analyzer_, "to_dict") else None}
         buffer = io.BytesIO()
         np.savez_compressed(buffer, coef=self.coef_, intercept=self.intercept_, platt=self.platt_,
@@ -288,6 +305,7 @@ class MachineCoder(BaseEstimator):
             idf = arrays["idf"]
         model.classes_ = model.codes_[model.trained_]
         model.skipped_ = [tuple(s) for s in meta.get("skipped", [])]
+        model.n_fits_, model.n_stalled_fits_ = meta.get("fits", [0, 0])  # not counted before they were stored
         model.analyzer_ = Analyzer.from_dict(meta["analyzer"]) if meta.get("analyzer") else Analyzer()
         model.vectorizer_ = TermVectorizer.from_state(meta["vocabulary"], idf, {"sublinear_tf": model.sublinear_tf})
         return model

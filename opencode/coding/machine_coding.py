@@ -57,6 +57,10 @@ class TrainedModel:
         for code, n in self.model.skipped_:
             notes.append(f"cannot suggest code {code}: {n} coded example(s) (needs {self.model.min_examples}, and as "
                          "many without it)")
+        if self.model.n_stalled_fits_:
+            notes.append(f"{self.model.n_stalled_fits_} of the {self.model.n_fits_} model fits stopped at the "
+                         f"iteration limit ({self.model.max_iter}) before converging, so the suggestions may be "
+                         "slightly off; train again with a higher limit (--max-iter)")
         return notes
 
 

@@ -6,18 +6,19 @@ from __future__ import annotations
 
 import argparse
 import sys
-import textwrap
 from pathlib import Path
 
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 
 
 def add_verb(subparsers: argparse._SubParsersAction, name: str, help: str, examples: list[str],
              description: str | None = None, notes: str = "") -> argparse.ArgumentParser:
-    """A verb's parser whose --help ends with example command lines (and any notes)."""
+    """A verb's parser whose --help ends with example command lines (and any notes). The help formatter fits
+    each line to the terminal: a wide example is folded into backslash-continued lines, notes are wrapped."""
     return subparsers.add_parser(name, help=help, description=description or _sentence(help),
-                                 epilog=_examples(examples) + (f"\n\n{wrap(notes)}" if notes else ""),
-                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 epilog=_examples(examples) + (f"\n\n{notes}" if notes else ""),
+                                 formatter_class=HelpFormatter)
 
 
 def add_actions(parser: argparse.ArgumentParser) -> argparse._SubParsersAction:
@@ -36,11 +37,6 @@ def add_action(actions: argparse._SubParsersAction, name: str, help: str, exampl
     if handler is not None:
         parser.set_defaults(handler=handler)
     return parser
-
-
-def wrap(text: str) -> str:
-    """A paragraph of help text wrapped for the terminal (epilogs are printed as written)."""
-    return "\n".join(textwrap.fill(part, width=100) for part in text.split("\n"))
 
 
 def _sentence(text: str) -> str:

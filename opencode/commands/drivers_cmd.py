@@ -11,6 +11,7 @@ from opencode.commands.common import (
     add_overwrite_option, add_table_output_options, emit_table, progress_bar, table_targets,
 )
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 
 if TYPE_CHECKING:
     from opencode.analysis.drivers import study as sdr
@@ -34,7 +35,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         usage="oecode drivers STUDY --question Q --outcome VAR [options]",
         description="Rank the terms of a question's verbatims by how they predict a closed-ended outcome: a "
         "penalized logistic model chosen by cross-validation, selection stability, and each term's 2x2 table.",
-        epilog=USAGE_NOTE, formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=USAGE_NOTE, formatter_class=HelpFormatter)
     parser.add_argument("study", help="the study file")
     parser.add_argument("--question", required=True, help="the open question")
     parser.add_argument("--outcome", required=True, metavar="VAR", help="the closed-ended outcome variable")

@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 
 from opencode.coding.choices import BLANK_MEANINGS, DEFAULT_DELIMITERS, FILTERS, KINDS, LAYOUTS, SPECIALS
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 from opencode.commands.common import (
     add_action, add_actions, add_overwrite_option, add_table_output_options, emit_table,
 )
@@ -21,7 +22,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  description="Build and change a question's code frame: codes, nets, hotkeys, "
                                  "keyword rules; import and export frames; import existing codes.",
                                  epilog="example:\n  oecode frame list survey.study --question why",
-                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 formatter_class=HelpFormatter)
     actions = add_actions(verb)
     S = "survey.study --question why"
 

@@ -9,6 +9,7 @@ import argparse
 
 from typing import TYPE_CHECKING
 
+from opencode.files.help_text import HelpFormatter
 from opencode.coding.choices import FINAL
 from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, progress_line
 
@@ -24,7 +25,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  "on people's codes and use its suggestions. Machine and rule codes are "
                                  "suggestions until a person accepts them at the desk.",
                                  epilog="example:\n  oecode model train survey.study --question why",
-                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 formatter_class=HelpFormatter)
     actions = add_actions(verb)
     S = "survey.study --question why"
     p = add_action(actions, "train", "train the machine coder on people's codes (cross-validated per code)",
@@ -32,6 +33,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _question(p)
     p.add_argument("--coder", help="learn from this coder only (default: every person's codes)")
     p.add_argument("--min-examples", type=int, default=5, help="skip codes with fewer coded examples (default 5)")
+    p.add_argument("--max-iter", type=int, default=100, metavar="N", help="iteration limit of each logistic fit "
+                   "(default 100; the notes say when fits reach it)")
     p = add_action(actions, "report", "the trained model: precision, recall, F1 and kappa per code",
                    [f"oecode model report {S}"])
     _question(p)
@@ -100,7 +103,8 @@ def _train(study: Study, args: argparse.Namespace) -> None:
     from opencode.coding import machine_coding
 
     progress_line("analysing verbatims and cross-validating each code")
-    trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples)
+    trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples,
+                                   max_iter=args.max_iter)
     print(f"model {trained.id}: suggests {len(trained.model.classes_)} of {len(trained.model.codes_)} codes")
     _report(study, args)
     print("next, see how much the model can code alone at each threshold: "

@@ -10,6 +10,7 @@ from opencode.analysis.choices import AGREEMENT_ALPHA_BAR, AGREEMENT_KAPPA_BAR
 from opencode.analysis.choices import AGREEMENT_LEVELS as LEVELS
 from opencode.coding.choices import MACHINE
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 from opencode.commands.common import (
     add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table,
 )
@@ -26,7 +27,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  description="Reliability samples: draw verbatims for blind double coding, "
                                  "assign them to coders, follow their progress.",
                                  epilog="example:\n  oecode sample draw survey.study --question why --name check "
-                                 "--n 150", formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 "--n 150", formatter_class=HelpFormatter)
     actions = add_actions(verb)
     S = "survey.study --question why"
     s = add_action(actions, "draw", "draw a sample of verbatims (stratified on request)",
@@ -60,7 +61,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a = add_verb(subparsers, "agree", "agreement between coders (kappa, alpha, AC1) and adjudication into final", [
         "oecode agree survey.study --question why --coders ash,bryn --differences 5",
         "oecode agree survey.study --question why --coders ash,bryn --kappa-bar 0.7 --alpha-bar 0.8",
-        "oecode agree survey.study --question why --coders ash,bryn --adjudicate agreed"])
+        "oecode agree survey.study --question why --coders ash,bryn --adjudicate agreed",
+        "oecode agree survey.study --question why --coders ash,bryn --adjudicate take --respondent WR04180 "
+        "--side ash"])
     a.add_argument("study")
     a.add_argument("--question", required=True, help="the open question")
     a.add_argument("--coders", required=True, help=f"coders compared, comma-separated; {MACHINE!r} "
@@ -91,8 +94,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     a.add_argument("--scale", help="the codes forming the scale, low to high, comma-separated (default: every "
                    "code of the frame by number)")
     a.add_argument("--adjudicate", choices=ADJUDICATE, help="agreed: put verbatims all coders coded alike into "
-                   "final; take / union / set: settle one --verbatim; undo: reverse final's last change")
-    a.add_argument("--verbatim", type=int, help="adjudicate take / union / set: the verbatim id")
+                   "final; take / union / set: settle one --respondent's verbatim; undo: reverse final's last change")
+    one = a.add_mutually_exclusive_group()
+    one.add_argument("--respondent", metavar="ID", help="adjudicate take / union / set: the survey's respondent id "
+                     "(as --differences and the desk's go-to show it)")
+    one.add_argument("--verbatim-id", type=int, metavar="N", help="adjudicate take / union / set: the study's "
+                     "internal verbatim number instead (older scripts)")
     a.add_argument("--side", help="adjudicate take: whose codes final takes")
     a.add_argument("--codes", help="adjudicate set: final's codes, comma-separated numbers (empty: no code)")
     a.add_argument("--actor", default="oecode", help="who adjudicates (for the audit trail)")
@@ -164,12 +171,16 @@ def _adjudicate(study: Study, args: argparse.Namespace) -> None:
         action = adjudication.undo_last(study)
         print(f"undid final's last change ({action})" if action else "final has nothing to undo")
         return
-    _need(args, verb, "verbatim")
+    if args.respondent is None and args.verbatim_id is None:
+        raise OpenCodeError(f"{verb}: --respondent is needed (the survey's respondent id, as --differences shows "
+                            "it)")
+    verbatim = (adjudication.verbatim_of_respondent(study, args.question, args.respondent)
+                if args.respondent is not None else args.verbatim_id)
     if args.adjudicate == "take":
         _need(args, verb, "side")
-        held = adjudication.take(study, args.question, args.verbatim, args.side)
+        held = adjudication.take(study, args.question, verbatim, args.side)
     elif args.adjudicate == "union":
-        held = adjudication.take_union(study, args.question, args.verbatim, args.coders)
+        held = adjudication.take_union(study, args.question, verbatim, args.coders)
     else:
         _need(args, verb, "codes")
         try:
@@ -177,8 +188,10 @@ def _adjudicate(study: Study, args: argparse.Namespace) -> None:
         except ValueError as error:
             raise OpenCodeError(f"{verb}: --codes {args.codes!r} is not a comma-separated list of code "
                                 "numbers") from error
-        held = adjudication.set_final(study, args.question, args.verbatim, numbers)
-    print(f"final now holds {', '.join(map(str, held)) or 'no code'} on verbatim {args.verbatim}")
+        held = adjudication.set_final(study, args.question, verbatim, numbers)
+    who = (f"respondent {args.respondent.strip()}" if args.respondent is not None
+           else adjudication.respondent_of(study, verbatim))
+    print(f"final now holds {', '.join(map(str, held)) or 'no code'} for {who}")
 
 
 def _scale_codes(text: str | None) -> list[int] | None:

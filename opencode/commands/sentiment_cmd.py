@@ -8,6 +8,7 @@ from pathlib import Path
 
 from opencode.commands.common import add_action, add_actions, add_table_output_options, emit_table, table_targets
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 
 MIX_SUFFIXES = (".csv", ".xlsx", ".html")
 
@@ -18,7 +19,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                  description="Sentiment of a question's verbatims (VADER, English): score them "
                                  "into closed variables, or show the negative / neutral / positive mix within each "
                                  "code.", epilog="example:\n  oecode sentiment score survey.study --question why",
-                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+                                 formatter_class=HelpFormatter)
     actions = add_actions(verb)
     s = add_action(actions, "score", "score and store <question>_sentiment and <question>_sentiment_score",
                    ["oecode sentiment score survey.study --question why --cut 0.1"], handler=run_sentiment)

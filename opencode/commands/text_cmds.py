@@ -12,6 +12,7 @@ from opencode.commands.common import (
     add_action, add_actions, add_overwrite_option, add_table_output_options, add_verb, emit_table, progress_bar,
 )
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -48,7 +49,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                description="Multi-word phrases (one term each): suggestions by Dunning's "
                                "log-likelihood, and the phrases of a question's lexicon.",
                                epilog=f"example:\n  oecode phrases suggest {S} --top 10",
-                               formatter_class=argparse.RawDescriptionHelpFormatter)
+                               formatter_class=HelpFormatter)
     actions = add_actions(ph)
     p = add_action(actions, "suggest", "word pairs seen together more than chance (log-likelihood, PMI)",
                    [f"oecode phrases suggest {S} --top 10 --min-count 3"])
@@ -76,7 +77,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                 description="A question's lexicon (or the study's default one): stop words, "
                                 "merges, stemming, language, stem exceptions, numbers, negations.",
                                 epilog=f"example:\n  oecode lexicon show {S}",
-                                formatter_class=argparse.RawDescriptionHelpFormatter)
+                                formatter_class=HelpFormatter)
     actions = add_actions(lex)
     for name, what, usage, metavar, nargs, example in LEXICON_ACTIONS:
         p = add_action(actions, name, what, [f"oecode lexicon {name} survey.study {example}".replace("  ", " ")

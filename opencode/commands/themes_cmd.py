@@ -9,9 +9,9 @@ from typing import TYPE_CHECKING
 from opencode.analysis.choices import SHORT_TEXT_NOTE, THEMES_MIN_DF
 from opencode.commands.common import (
     add_action, add_actions, add_overwrite_option, add_table_output_options, emit_table, progress_bar, table_targets,
-    wrap,
 )
 from opencode.errors import OpenCodeError
+from opencode.files.help_text import HelpFormatter
 
 if TYPE_CHECKING:
     from opencode.study.store import Study
@@ -23,8 +23,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     verb = subparsers.add_parser(
         "themes", help="find themes (NMF or LDA) in a question's verbatims; list, show, compare and promote runs",
         description="Find themes in a question's verbatims and keep each run in the study.",
-        epilog=f"example:\n  oecode themes search {S} --k-range 4:16\n\n{wrap(SHORT_TEXT_NOTE)}",
-        formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=f"example:\n  oecode themes search {S} --k-range 4:16\n\n{SHORT_TEXT_NOTE}",
+        formatter_class=HelpFormatter)
     actions = add_actions(verb)
 
     fit = add_action(actions, "fit", "find k themes and keep the run", [

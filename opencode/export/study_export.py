@@ -1,4 +1,7 @@
-"""Coded data of a study written in one of the export formats (the library under `oecode export`)."""
+"""Coded data of a study written in one of the export formats (the library under `oecode export`).
+
+Each format's writer module is imported only when that format is written, so a CSV export loads neither
+pyreadstat (SPSS, Stata) nor openpyxl and lxml (XLSX): tests/test_cli_imports.py checks it."""
 
 from __future__ import annotations
 
@@ -8,7 +11,6 @@ from pathlib import Path
 from opencode.analysis.tables import coded_data
 from opencode.coding.assignments import FINAL
 from opencode.errors import OpenCodeError
-from opencode.export import spss_stata, tabular, triple_s
 from opencode.export.dataset import sibling_path
 from opencode.files.targets import check_targets
 from opencode.study.store import Study
@@ -37,6 +39,8 @@ def export_targets(out: str | Path, fmt: str | None = None, sss_data: str = "fix
     """Every file an export writes (the one named, then its companions), checked before any work is done."""
     chosen = export_format(fmt, out)
     if chosen == "sss":
+        from opencode.export import triple_s
+
         companion = triple_s.data_path_for(out, sss_data)
     elif chosen == "xlsx":
         companion = None
@@ -55,11 +59,22 @@ def export_study(study: Study, out: str | Path, fmt: str | None = None, *, quest
     dataset, codings = coded_data.coded_dataset(study, questions, coder, include_suggestions=include_suggestions,
                                                 closed=closed, with_text=verbatims != "omit")
     if chosen == "sss":
+        from opencode.export import triple_s
+
         written = triple_s.write_triple_s(dataset, target, data_format=sss_data, multiple=sss_multiple,
                                           verbatims=verbatims)
     else:
-        writer = {"csv": tabular.write_csv, "xlsx": tabular.write_xlsx, "sav": spss_stata.write_sav,
-                  "dta": spss_stata.write_dta}[chosen]
-        written = writer(dataset, target, mention_columns=layout == "mentions", verbatims=verbatims)
+        written = _writer(chosen)(dataset, target, mention_columns=layout == "mentions", verbatims=verbatims)
     return ExportResult(list(written), dataset.n_respondents, [c.question for c in codings],
                         [note for c in codings for note in c.notes])
+
+
+def _writer(chosen: str):
+    """The writer of a tabular or labelled format, importing only its own module (and file-format library)."""
+    if chosen in ("sav", "dta"):
+        from opencode.export import spss_stata
+
+        return spss_stata.write_sav if chosen == "sav" else spss_stata.write_dta
+    from opencode.export import tabular
+
+    return tabular.write_csv if chosen == "csv" else tabular.write_xlsx

@@ -184,7 +184,7 @@ def format_agreement_text(result: AgreementResult, statistics: Sequence[str] | N
         parts += [f"Coder pair {title}", format_table(headers, rows)]
     if result.disputed_units:
         parts += ["Verbatims with most disputed codes",
-                  format_table(["verbatim", "disputed codes", *result.coders], _disputed_rows(result))]
+                  format_table(["respondent", "disputed codes", *result.coders], _disputed_rows(result))]
     if result.confused_pairs:
         parts += ["Codes most often swapped between coders",
                   format_table(["one coder", "another coder", "times"], _confused_rows(result))]
@@ -230,7 +230,7 @@ def agreement_csv_rows(result: AgreementResult) -> list[list[str]]:
                      str(q.n_verbatims), "", "", q.advice + ": " + " ".join(map(str, q.verbatims))])
     for u in result.disputed_units:
         sets = "; ".join(f"{coder}: {_codes(u.sets[coder])}" for coder in result.coders)
-        rows.append(["disputed_unit", "", "", "", coders, f"verbatim {u.unit}", str(u.n_disputed_codes), "", "", sets])
+        rows.append(["disputed_unit", "", "", "", coders, f"respondent {u.unit}", str(u.n_disputed_codes), "", "", sets])
     for q in result.confused_pairs:
         rows.append(["confused_pair", str(q.code_a), result.label(q.code_a), str(q.code_b), coders, "times",
                      str(q.count), "", "", result.label(q.code_b)])
@@ -289,7 +289,7 @@ def format_agreement_html(result: AgreementResult | ScaleAgreementResult, title:
         out.append(_html_table("oc-agreement-pair", headers, rows, range(2, 7)))
     if result.disputed_units:
         out.append("<h3>Verbatims with most disputed codes</h3>")
-        out.append(_html_table("oc-agreement-disputed", ["verbatim", "disputed codes", *result.coders], _disputed_rows(result), range(1, 2)))
+        out.append(_html_table("oc-agreement-disputed", ["respondent", "disputed codes", *result.coders], _disputed_rows(result), range(1, 2)))
     if result.confused_pairs:
         out.append("<h3>Codes most often swapped between coders</h3>")
         out.append(_html_table("oc-agreement-confused", ["one coder", "another coder", "times"], _confused_rows(result), range(2, 3)))
