@@ -13,7 +13,7 @@ import pytest
 
 from opencode.cli import main
 from opencode.coding import assignments as coding
-from opencode.coding import frames, history, reliability
+from opencode.coding import frames, history, machine_coding, reliability
 from opencode.coding.adjudication import take
 from opencode.errors import BadInput, NotPermitted
 from opencode.study import desk_queries as dq
@@ -281,3 +281,68 @@ def test_the_desk_refuses_a_coder_name_other_than_the_login(pg_server, team_stud
         admin.execute("DO $$ BEGIN CREATE ROLE zed LOGIN; EXCEPTION WHEN duplicate_object THEN NULL; END $$")
     assert main(["code", pg_server.address(study=team_study, user="zed"), "--question", "why", "--coder", "zed"]) == 1
     assert "zed is not in this study's team" in capsys.readouterr().err
+
+
+def test_the_machine_coder_is_the_leads(pg_server, team_study, places, capsys):
+    """A model learned from every coder's codes, the blind sample's too (running it would reproduce them), so
+    coders cannot read `models` (as handouts leave them out); the lead trains and applies. Kept last in the
+    module: it files machine suggestions under `final`."""
+    inside, outside, _ = places
+    with as_user(pg_server, team_study, "ann") as lead:
+        trained = machine_coding.train(lead, "why")
+        report = machine_coding.apply_machine(lead, "why", threshold=0.5)
+        assert report.verbatims > 0
+        machine = coding.assignments(lead, "why", ["final"], sources=("machine",))
+        blind = set(reliability.blind_verbatim_ids(lead, "why", "kit").tolist())
+    assert main(["model", "report", pg_server.address(study=team_study, user="ann"), "--question", "why"]) == 0
+    assert f"trained on {len(trained.train_ids):,} hand-coded verbatims" in capsys.readouterr().out
+    on_blind = sorted(set(machine["verbatim_id"]) & blind)
+    outside_blind = sorted(set(machine["verbatim_id"]) - blind)
+    assert on_blind and outside_blind
+
+    for user in ("kit", "bryn"):  # a hand-written SQL client: refused, whatever it asks of the table
+        client = sql_as(pg_server, team_study, user)
+        try:
+            for statement in ("SELECT COUNT(*) FROM models", "SELECT meta, arrays FROM models",
+                              "SELECT meta FROM models WHERE id = (SELECT MAX(id) FROM models)"):
+                with pytest.raises(psycopg.errors.InsufficientPrivilege, match="permission denied for table models"):
+                    client.execute(statement)
+        finally:
+            client.close()
+    ann = sql_as(pg_server, team_study, "ann")
+    try:
+        assert ann.execute("SELECT COUNT(*) FROM models").fetchone()[0] >= 1
+    finally:
+        ann.close()
+
+    kit_address = pg_server.address(study=team_study, user="kit")
+    with Study.open(kit_address) as kit:  # through the library: one clear line, before any work
+        for attempt in (lambda: machine_coding.load_model(kit, "why"), lambda: machine_coding.train(kit, "why"),
+                        lambda: machine_coding.suggest_one(kit, outside),
+                        lambda: machine_coding.second_look_queue(kit, "why", "bryn")):
+            with pytest.raises(NotPermitted, match="only a lead can run the machine coder on a server study"):
+                attempt()
+        # the suggestions the lead's run stored are the question's: kit sees them outside the blind sample only
+        assert all(coding.question_suggestions(kit, v, "kit") == [] for v in on_blind)
+        assert any(coding.question_suggestions(kit, v, "kit") for v in outside_blind)
+    for action in ("report", "train", "curve", "suggest", "apply", "queue"):
+        extra = ["--threshold", "0.9"] if action == "apply" else []
+        assert main(["model", action, kit_address, "--question", "why", *extra]) == 1
+        err = capsys.readouterr().err.strip()
+        assert "only a lead can run the machine coder on a server study" in err and "\n" not in err, (action, err)
+
+
+def test_grant_takes_models_from_coders_of_an_existing_study(pg_server, team_study):
+    """A study set up before coders lost `models` (they held SELECT on every table): the next grant takes it."""
+    with Study.open(pg_server.address(study=team_study)) as owner:
+        _, coder_group = team.group_roles(owner)
+    with psycopg.connect(pg_server.address(), autocommit=True) as admin:
+        admin.execute(f'GRANT SELECT ON "{team_study}".models TO "{coder_group}"')
+    kit = sql_as(pg_server, team_study, "kit")
+    try:
+        kit.execute("SELECT COUNT(*) FROM models")  # readable, as before
+        assert main(["team", "grant", pg_server.address(study=team_study), "--coder", "kit"]) == 0
+        with pytest.raises(psycopg.errors.InsufficientPrivilege, match="permission denied for table models"):
+            kit.execute("SELECT COUNT(*) FROM models")
+    finally:
+        kit.close()

@@ -135,10 +135,16 @@ def training_data(study: Study, question: str, coder: str | None = None) -> Trai
     return TrainingSet(ids, texts, Y, codes, [owner[v] for v in ids.tolist()], left_out, nonanswer_codes)
 
 
+def require_access(study: Study) -> None:
+    """On a server study the machine coder is the lead's: a coder is refused in one line (NotPermitted)."""
+    models_store.require_access(study)
+
+
 def train(study: Study, question: str, coder: str | None = None, analyzer: Any = None,
           **params: Any) -> TrainedModel:
     """Train and store a model for a question; codes with too few examples are not learned (model.skipped_),
-    non-answers and empty verbatims are left out (counted in the result's notes)."""
+    non-answers and empty verbatims are left out (counted in the result's notes). On a server study, the lead's."""
+    models_store.require_access(study)
     analyzer = analyzer or default_analyzer(study, question)
     data = training_data(study, question, coder)
     model = MachineCoder(analyzer=analyzer, **params).fit(data.texts, pd.DataFrame(data.Y, columns=data.codes))
@@ -160,6 +166,7 @@ def load_model(study: Study, question: str) -> TrainedModel:
 
 
 def _load(study: Study, question_id: int, question: str | None) -> TrainedModel:
+    models_store.require_access(study)
     model_id = models_store.latest_model_id(study, question_id)
     key = (str(study.path), question_id)
     cached = _CACHE.get(key)

@@ -102,6 +102,7 @@ def _coder_of(args: argparse.Namespace) -> str:
 def _train(study: Study, args: argparse.Namespace) -> None:
     from opencode.coding import machine_coding
 
+    machine_coding.require_access(study)  # before the progress line: a coder gets the refusal alone
     progress_line("analysing verbatims and cross-validating each code")
     trained = machine_coding.train(study, args.question, coder=args.coder, min_examples=args.min_examples,
                                    max_iter=args.max_iter)

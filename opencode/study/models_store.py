@@ -1,11 +1,22 @@
-"""Machine coder models kept in the study: JSON metadata and npz arrays (never pickle). The SQL."""
+"""Machine coder models kept in the study: JSON metadata and npz arrays (never pickle). The SQL.
+
+On a server study only the lead reads and writes them (coders have no SELECT on `models`, see study/team.py):
+`require_access` says so in one line before any work is done.
+"""
 
 from __future__ import annotations
 
 import json
 from typing import Any
 
+from opencode.study import team
 from opencode.study.store import Study, now
+
+
+def require_access(study: Study) -> None:
+    """Refuse a coder of a server study before they train or use a model (NotPermitted, one line)."""
+    team.require_lead(study, "run the machine coder",
+                      "its models learned from every coder's codes, blind reliability samples included")
 
 
 def save_model(study: Study, question_id: int, meta: dict[str, Any], arrays: bytes) -> int:

@@ -8,7 +8,8 @@ security policies enforce this on the server, so a hand-written SQL client gets 
 a coder's UPDATE or DELETE reaching another coder's row is refused with an error (trigger `oecode_own_rows`)
 rather than quietly touching nothing.
 Blind double coding stays blind: on a verbatim of a reliability sample assigned to them, a coder cannot read
-another coder's codes or notes. A coder's name in the study is their database user name.
+another coder's codes or notes, and coders cannot read the machine coder's stored models at all (a model learned
+from every coder's codes; running it would reproduce them): the machine coder is the lead's. A coder's name in the study is their database user name.
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ import re
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from opencode.errors import BadInput, OpenCodeError
+from opencode.errors import BadInput, NotPermitted, OpenCodeError
 from opencode.study.postgres import quote_ident
 
 if TYPE_CHECKING:
@@ -169,6 +170,9 @@ def apply_policies(study: "Study") -> None:
     statements = [
         f"GRANT USAGE ON SCHEMA {schema} TO {lead_group}, {coder_group}",
         f"GRANT SELECT ON ALL TABLES IN SCHEMA {schema} TO {coder_group}",
+        # the machine coder's models learned from every coder's codes, blind samples included: running one
+        # would reproduce another coder's blind codes, so coders do not read them (as handouts leave them out)
+        f"REVOKE ALL ON {schema}.models FROM {coder_group}",
         f"GRANT SELECT, INSERT, UPDATE, DELETE ON ALL TABLES IN SCHEMA {schema} TO {lead_group}",
         f"GRANT USAGE, SELECT, UPDATE ON ALL SEQUENCES IN SCHEMA {schema} TO {lead_group}",
         f"GRANT INSERT, UPDATE, DELETE ON {schema}.assignments, {schema}.notes, {schema}.coded_marks, "
@@ -237,6 +241,14 @@ def apply_policies(study: "Study") -> None:
 def _literal(text: str) -> str:
     """A SQL string literal (role names are checked names, but quote them all the same)."""
     return "'" + text.replace("'", "''") + "'"
+
+
+def require_lead(study: "Study", what: str, why: str) -> None:
+    """On a server, refuse a coder (or a non-member) `what` with one clear line; a study file allows anyone."""
+    if not study.on_server or role_of(study) in ("owner", "lead"):
+        return
+    raise NotPermitted(f"{study.path}: only a lead can {what} on a server study ({why}); {study._db.user} is not "
+                       "a lead of this study")
 
 
 def check_coder_identity(study: "Study", coder: str) -> None:
