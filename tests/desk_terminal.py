@@ -120,6 +120,13 @@ class TmuxTerminal:
         self.command("send-keys -t main " + ("-l " if literal else "") + " ".join(shlex.quote(k) for k in keys))
         return sent
 
+    def paste(self, text: str) -> float:
+        """Paste text as a terminal does (a bracketed paste when the program asked for one); the time sent."""
+        sent = time.perf_counter()
+        self.command(f"set-buffer -b oecode-paste {shlex.quote(text)}")
+        self.command("paste-buffer -p -d -b oecode-paste -t main")
+        return sent
+
     def screen(self) -> tuple[str, float]:
         """The visible screen as text, and the time of the last output tmux had read before drawing it."""
         block = self.command("capture-pane -p -t main")

@@ -139,6 +139,31 @@ def test_keys_typed_10_to_30_ms_apart_land_in_order(terminal, tmp_path):
     assert set(map(tuple, found)) == held
 
 
+def test_text_typed_or_pasted_right_after_a_dialog_key_arrives_whole(terminal, tmp_path):
+    """The dialog key and the text go to the terminal with no pause: typed (send-keys) into the new-code dialog,
+    pasted (tmux paste-buffer, a bracketed paste) into the note; the study holds exactly the text, and none of
+    its letters (s, j, h are code hotkeys) acted on the verbatim."""
+    text = "Why? 50% / late-night, [Sunday] & cafe shj"
+    path = make_desk_study(tmp_path)
+    open_desk(terminal, path)
+    terminal.send("Right", "s", "C-o")
+    terminal.send(text, literal=True)
+    terminal.send("Enter")
+    terminal.wait_for(lambda s: "added 91" in s)
+    assert on_disk(path, "SELECT number FROM codes WHERE label = ?", (text,)) == [(91,)]
+    terminal.send("C-n")
+    terminal.paste(text)
+    terminal.send("Enter")
+    terminal.wait_for(lambda s: "note saved" in s)
+    terminal.send("C-q")
+    terminal.wait_exit(30)
+    assert on_disk(path, "SELECT r.key, n.text FROM notes n JOIN verbatims v ON v.id = n.verbatim_id JOIN "
+                         "respondents r ON r.id = v.respondent_id WHERE n.coder = 'ash'") == [("A2", text)]
+    assert hand(path, "A2") == [1, 91] and hand(path, "A1") == []
+    assert on_disk(path, "SELECT COUNT(*) FROM audit WHERE actor = 'ash' AND action IN ('assign', 'unassign')") \
+        == [(2,)]
+
+
 def test_markup_in_labels_does_not_break_the_terminal(terminal, tmp_path):
     path = make_desk_study(tmp_path)
     from opencode.coding import frames

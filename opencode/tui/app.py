@@ -104,6 +104,11 @@ class DeskApp(App):
 
     # -- keys in order ------------------------------------------------------------------------------------------
     async def on_event(self, event: events.Event) -> None:
+        # Only keys reaching the desk while it is the top screen go to `take_key`. A key that opens a dialog
+        # runs its action here, on the app's queue: Textual's push_screen then makes the app wait for the
+        # dialog to mount before it reads the next event, so keys typed right after, or a bracketed paste
+        # (a Paste event, passed on below to the focused input), go to the dialog's input whole and in order
+        # (tests/test_desk_paste.py, and tests/test_desk_terminal.py in a real terminal).
         if isinstance(event, events.Key) and not event.is_forwarded and isinstance(self.screen, DeskScreen):
             if await self.screen.take_key(event):
                 return
