@@ -89,3 +89,28 @@ def test_text_right_after_the_dialog_key_arrives_whole(tmp_path, opener, pasted)
     else:
         assert f"respondent {TEXT!r} gave no answer" in status
 
+
+
+def test_typing_in_the_note_dialog_adds_to_the_note_already_there(tmp_path):
+    """The note dialog opens with the cursor after the existing note, not with it selected: a coder who types
+    (or pastes) adds to the note; a stray key cannot wipe it. Short values elsewhere stay selected for retyping."""
+    path = make_desk_study(tmp_path)
+
+    async def scenario():
+        app = make_app(path)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await pilot.pause()
+            send_now(app, ["ctrl+n", *"first", "enter"])
+            await wait_for(pilot, lambda: on_disk(path, "SELECT COUNT(*) FROM notes WHERE coder = 'ash'") == [(1,)])
+            shown = app.session.current_id
+            send_now(app, ["ctrl+n", *" typed", events.Paste(" + pasted"), "enter"])
+            await wait_for(pilot, lambda: on_disk(path, "SELECT text FROM notes WHERE coder = 'ash'")
+                           == [("first typed + pasted",)], timeout=20)
+            assert on_disk(path, "SELECT verbatim_id FROM notes WHERE coder = 'ash'") == [(shown,)]
+            send_now(app, ["ctrl+n"])
+            await wait_for(pilot, lambda: isinstance(app.screen, PromptModal))
+            assert app.screen.query_one(Input).select_on_focus is False
+        bar = PromptModal("Confidence bar", value="0.6")
+        assert bar.append is False  # a short value shown for editing is still selected, so typing replaces it
+
+    asyncio.run(scenario())

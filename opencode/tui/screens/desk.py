@@ -357,8 +357,8 @@ class DeskScreen(StudyScreen):
         def run(text: str | None) -> None:
             if text is not None:
                 self.act(lambda: self.session.set_note(text), lambda _: "note saved" if text.strip() else "note cleared")
-        self.app.push_screen(PromptModal("Note on this verbatim (empty clears it)", value=self.session.note() or ""),
-                             run)
+        self.app.push_screen(PromptModal("Note on this verbatim (empty clears it)", value=self.session.note() or "",
+                                         append=True), run)
 
     def action_add_code(self) -> None:
         used = set(self.session.hotkeys()) | {c.hotkey for c in self.session.codes if c.hotkey}

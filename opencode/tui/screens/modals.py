@@ -17,18 +17,24 @@ from textual.widgets import Input, Label, Static
 
 
 class PromptModal(ModalScreen[str | None]):
-    """Ask for one line of text; Enter gives it, Esc gives None."""
+    """Ask for one line of text; Enter gives it, Esc gives None.
+
+    A short value shown for editing (a number, a label) is selected, so typing replaces it; with `append=True`
+    (a note) the cursor waits at its end instead, so typing adds to what is there and nothing is lost by a
+    keystroke."""
 
     BINDINGS = [Binding("escape", "cancel", "cancel")]
 
-    def __init__(self, title: str, hint: str = "", value: str = "", placeholder: str = ""):
+    def __init__(self, title: str, hint: str = "", value: str = "", placeholder: str = "", append: bool = False):
         super().__init__()
         self.title_text, self.hint, self.value, self.placeholder = title, hint, value, placeholder
+        self.append = append
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
             yield Label(self.title_text, classes="dialog-title", markup=False)
-            yield Input(value=self.value, placeholder=self.placeholder, id="prompt-input")
+            yield Input(value=self.value, placeholder=self.placeholder, id="prompt-input",
+                        select_on_focus=not self.append)
             if self.hint:
                 yield Static(self.hint, classes="dialog-hint", markup=False)
 
