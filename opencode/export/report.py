@@ -244,7 +244,8 @@ def _question_part(anchor: str, coding: coded_data.QuestionCoding, banners, weig
         verdict = _agreement_verdict(agreement)
         if flagged:
             flags = (f'<p class="oc-flag">▽ <strong>Under the bar ({bars})</strong> in {html.escape(coding.question)}, '
-                     "least reliable first: " + "; ".join(html.escape(f) for f in flagged) + f". {verdict}</p>")
+                     "least reliable first: " + "; ".join(html.escape(f) for f in flagged) + f". {verdict} Why each "
+                     "is flagged: \"Coder agreement in detail\" below.</p>")
         else:
             flags = (f'<p class="oc-flag">Every code of {html.escape(coding.question)} clears the bars ({bars}). '
                      f"{verdict}</p>")
@@ -301,7 +302,7 @@ def _agreement_chart(result: AgreementResult) -> tuple[str, list[str], str]:
         marks.append(standing.flagged)
         if standing.flagged and standing.in_headline:
             interval = f" [{estimate.low:.3f}, {estimate.high:.3f}]" if estimate.low is not None else ""
-            flagged.append(f"{standing.code} {standing.label} ({estimate.value:.3f}{interval}: {standing.why})")
+            flagged.append(f"{standing.code} {standing.label} ({estimate.value:.3f}{interval})")  # why: below
     under = ", ".join(f"{s.code} {s.label}" for s in result.flagged) or "none"
     img = png_img(agreement_chart_png(labels, values, lows, highs, result.kappa_bar, statistic, flagged=marks),
                   f"Chart: {statistic} per code with intervals, least reliable first; under the bar: {under}",

@@ -67,7 +67,7 @@ class QuestionCoding:
                        "by a person" if self.suggestions else
                        f"{self.question}: suggestions were asked for, but coder {self.coder!r} has none")
         if self.flagged_but_coded or self.coded_non_answers:
-            out.append(f"{self.question}: non-answers follow {self.coder!r}'s codes where they differ from the "
+            out.append(f"{self.question}: non-answers follow the codes of {self.coder!r} where they differ from the "
                        f"import's flag ({self.flagged_but_coded:,} flagged verbatims hold a code and count as answers; "
                        f"{self.coded_non_answers:,} others were coded as non-answers), so the count differs from "
                        "`oecode info`")
