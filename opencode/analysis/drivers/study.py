@@ -147,17 +147,21 @@ def question_drivers(study: Study, question: str, outcome: str, *, split: str | 
     if one_vs_rest and split:
         raise OpenCodeError("give a split or one-vs-rest, not both")
     variable = _outcome_variable(study, outcome)
+    outcome_args = dict(variable=outcome, value_labels=variable.value_labels, missing_codes=variable.missing_codes)
+
+    def sides(codes: np.ndarray) -> list:
+        if one_vs_rest:
+            return list(outcome_per_category(codes, **outcome_args).values())
+        return [make_outcome(codes, split=split, **outcome_args)]
+
+    all_codes = np.array(survey_data.raw_values(study, outcome), dtype=float)
+    sides(all_codes)  # a bad split is refused before the term matrix is built or cached: the study stays as it was
     tm, frame = term_matrix(study, question, min_df=min_df)
     has_terms = np.diff(tm.counts.indptr) > 0
     X_all = tm.counts[has_terms]
     rows = _rows_of(study, [d for d, keep in zip(tm.doc_ids, has_terms) if keep])
-    codes = np.array(survey_data.raw_values(study, outcome), dtype=float)[rows]
     weights, weight_name = _weights(study, rows, weighted)
-    outcome_args = dict(variable=outcome, value_labels=variable.value_labels, missing_codes=variable.missing_codes)
-    if one_vs_rest:
-        outcomes = list(outcome_per_category(codes, **outcome_args).values())
-    else:
-        outcomes = [make_outcome(codes, split=split, **outcome_args)]
+    outcomes = sides(all_codes[rows])
     total = 1 + len(outcomes)
     if progress:
         progress(1, total)
