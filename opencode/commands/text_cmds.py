@@ -75,8 +75,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language, "
                                 "non-answers; import or export it",
                                 description="A question's lexicon (or the study's default one): stop words, "
-                                "merges, stemming, language, stem exceptions, numbers, negations; and which verbatims count "
-                                "as non-answers.",
+                                "merges, stemming, language, stem exceptions, numbers, negations; and which "
+                                "verbatims count as non-answers.",
                                 epilog=f"example:\n  oecode lexicon show {S}",
                                 formatter_class=HelpFormatter)
     actions = add_actions(lex)
