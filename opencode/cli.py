@@ -31,7 +31,8 @@ VERBS = {
     "words": ("text_cmds", "a question's top terms with counts, %% of verbatims and word forms"),
     "kwic": ("text_cmds", "every occurrence of a term in its verbatims, aligned"),
     "phrases": ("text_cmds", "suggest, add, accept or remove multi-word phrases"),
-    "lexicon": ("text_cmds", "a question's stop words, merges, stemming, language; import or export it"),
+    "lexicon": ("text_cmds", "a question's stop words, merges, stemming, language, non-answers; import "
+                "or export it"),
     "themes": ("themes_cmd", "find themes (NMF or LDA) in a question's verbatims; list, show, compare and "
                "promote runs"),
     "drivers": ("drivers_cmd", "rank a question's terms by how they predict a closed-ended outcome"),

@@ -72,10 +72,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     for p in actions.choices.values():
         p.set_defaults(handler=run_phrases)
 
-    lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language; "
-                                "import or export it",
+    lex = subparsers.add_parser("lexicon", help="a question's stop words, merges, stemming, language, "
+                                "non-answers; import or export it",
                                 description="A question's lexicon (or the study's default one): stop words, "
-                                "merges, stemming, language, stem exceptions, numbers, negations.",
+                                "merges, stemming, language, stem exceptions, numbers, negations; and which "
+                                "verbatims count as non-answers.",
                                 epilog=f"example:\n  oecode lexicon show {S}",
                                 formatter_class=HelpFormatter)
     actions = add_actions(lex)
@@ -97,6 +98,23 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         if name == "export":
             add_overwrite_option(p)
         p.set_defaults(handler=run_lexicon, remove=False)
+    p = add_action(actions, "nonanswers", "list the verbatims flagged as non-answers, or count some as answers",
+                   [f"oecode lexicon nonanswers {S}",
+                    f"oecode lexicon nonanswers {S} --text none --text nothing --set answer",
+                    f"oecode lexicon nonanswers {S} --respondent R17 --set nonanswer --dry-run"],
+                   handler=run_nonanswers,
+                   notes="Non-answers are flagged at import when they read like an entry of the non-answer lists "
+                   "(case, spaces and punctuation ignored); flagged verbatims are kept but left out of the "
+                   "coding queue, the bases and the machine coder.")
+    _question(p)
+    p.add_argument("--text", action="append", default=[], metavar="TEXT",
+                   help="verbatims reading this (case, spaces and punctuation ignored; repeat)")
+    p.add_argument("--respondent", action="append", default=[], metavar="ID",
+                   help="this survey respondent id's verbatim (repeat)")
+    p.add_argument("--set", choices=("answer", "nonanswer"), dest="set_to",
+                   help="count the chosen verbatims as answers, or flag them as non-answers")
+    p.add_argument("--dry-run", action="store_true", help="list what would change; write nothing")
+    _actor(p)
 
 
 #: lexicon actions: name, help, usage after STUDY, values metavar, nargs, example values
@@ -270,6 +288,42 @@ def _plain(value: object) -> str:
 
 
 # -- lexicon -----------------------------------------------------------------------------------------------------------
+def run_nonanswers(args: argparse.Namespace) -> int:
+    from opencode.ingest.nonanswers import nonanswer_counts, set_nonanswers
+    from opencode.study.store import Study
+
+    chosen = bool(args.text or args.respondent)
+    if chosen != bool(args.set_to):
+        raise OpenCodeError("lexicon nonanswers: --text/--respondent and --set go together "
+                            "(--set answer or --set nonanswer); with neither, the flagged texts are listed")
+    with Study.open(args.study) as study:
+        if not chosen:
+            counts = nonanswer_counts(study, args.question)
+            print(f"{sum(n for _, n in counts):,} verbatims of question {args.question} flagged as non-answers"
+                  + (":" if counts else ""))
+            for text, n in counts:
+                print(f"{n:>8,}  {text!r}")
+            return 0
+        change = set_nonanswers(study, args.question, flag=args.set_to == "nonanswer", texts=args.text,
+                                respondents=args.respondent, dry_run=args.dry_run, actor=args.actor)
+    what = "flagged as non-answers" if change.flag else "counted as answers"
+    if args.dry_run:
+        print(f"{len(change.respondents):,} verbatims would be {what} (dry run, nothing written):")
+        for key, text in zip(change.respondents, change.texts):
+            print(f"  {key}  {text!r}")
+        return 0
+    if not change.changed:
+        print(f"nothing changed: the chosen verbatims are already {what}")
+        return 0
+    texts = " ".join(repr(t) for t in dict.fromkeys(change.texts))
+    now = "now count as answers" if not change.flag else "are now non-answers"
+    noun = "verbatim" if change.changed == 1 else "verbatims"
+    if change.changed == 1:
+        now = "now counts as an answer" if not change.flag else "is now a non-answer"
+    print(f"{change.changed:,} {noun} {texts} {now}; bases of question {args.question} change")
+    return 0
+
+
 def _one(args: argparse.Namespace, what: str) -> str:
     if len(args.values) != 1:
         raise OpenCodeError(f"lexicon {args.action}: give exactly one {what}")

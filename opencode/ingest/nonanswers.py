@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
 import pandas as pd
 
+from opencode.errors import OpenCodeError
 from opencode.resources import lexicon_dir, read_lexicon
+from opencode.study import survey_data
+from opencode.study.store import Study
 
 
 def normalise(text: str) -> str:
@@ -46,3 +51,55 @@ def flag_nonanswers(texts: pd.Series, extra: tuple[str, ...] = ()) -> np.ndarray
         folded = _normalise_series(texts[short])  # a boolean mask: far faster than positions on arrow strings
         flags[short] = ((folded == "") | folded.isin(phrases)).to_numpy(dtype=bool)
     return flags
+
+
+@dataclass(frozen=True)
+class FlagChange:
+    """The verbatims a non-answer flag change touches (or would touch, on a dry run)."""
+
+    question: str
+    flag: bool
+    respondents: tuple[str, ...]  # survey respondent ids, in study order
+    texts: tuple[str, ...]  # their texts as typed, same order
+    changed: int  # how many flags changed (0 on a dry run)
+
+
+def set_nonanswers(study: Study, question: str, *, flag: bool, texts: Sequence[str] = (),
+                   respondents: Sequence[str] = (), dry_run: bool = False, actor: str = "oecode") -> FlagChange:
+    """Mark (flag=True) or count as answers (flag=False) a question's verbatims chosen by text, folded as the
+    import folds them against the non-answer lists, and/or by survey respondent id. A text matching no verbatim
+    or an unknown respondent id is an error and nothing is written; otherwise one transaction, one audit row."""
+    q = survey_data.get_question(study, question)
+    frame = survey_data.verbatims(study, question)
+    if not texts and not respondents:
+        raise OpenCodeError(f"question {question}: choose verbatims by text or by respondent id")
+    chosen = np.zeros(len(frame), dtype=bool)
+    if texts:
+        folded = _normalise_series(frame["text"].astype("string"))
+        for text in texts:
+            hit = (folded == normalise(text)).to_numpy(dtype=bool)
+            if not hit.any():
+                raise OpenCodeError(f"question {question}: no verbatim reads {text!r} (nothing changed)")
+            chosen |= hit
+    if respondents:
+        keys = frame["respondent"].astype(str)
+        for key in respondents:
+            hit = (keys == str(key)).to_numpy(dtype=bool)
+            if not hit.any():
+                raise OpenCodeError(f"question {question}: no verbatim of respondent {key!r} (nothing changed)")
+            chosen |= hit
+    todo = frame[chosen & (frame["nonanswer"].to_numpy(dtype=bool) != bool(flag))]
+    keys, typed = tuple(todo["respondent"].astype(str)), tuple(todo["text"].astype(str))
+    if dry_run or todo.empty:
+        return FlagChange(question, flag, keys, typed, 0)
+    with study.transaction():
+        changed = survey_data.set_nonanswer_flags(study, todo["verbatim_id"].tolist(), flag)
+        study.audit(actor, "flag-nonanswer" if flag else "unflag-nonanswer", "question", q.id,
+                    {"verbatim_ids": [int(v) for v in todo["verbatim_id"]], "respondents": list(keys),
+                     "texts": list(texts), "before": not flag, "after": bool(flag)})
+    return FlagChange(question, flag, keys, typed, changed)
+
+
+def nonanswer_counts(study: Study, question: str) -> list[tuple[str, int]]:
+    """The texts of a question's verbatims flagged as non-answers, with counts, most frequent first."""
+    return survey_data.nonanswer_text_counts(study, survey_data.get_question(study, question).id)

@@ -310,6 +310,23 @@ def flag_nonanswer_rows(study: Study, question_id: int, respondent_ids) -> None:
                           [(question_id, int(rid)) for rid in respondent_ids])
 
 
+def set_nonanswer_flags(study: Study, verbatim_ids, flag: bool) -> int:
+    """Set or clear the non-answer flag of these verbatims (call inside a transaction); how many changed."""
+    value = int(bool(flag))
+    changed = 0
+    for vid in verbatim_ids:
+        changed += study._db.execute("UPDATE verbatims SET nonanswer = ? WHERE id = ? AND nonanswer <> ?",
+                                     (value, int(vid), value)).rowcount
+    return changed
+
+
+def nonanswer_text_counts(study: Study, question_id: int) -> list[tuple[str, int]]:
+    """The texts of a question's verbatims flagged as non-answers, each with its count; most frequent first."""
+    return [(text, int(n)) for text, n in study._db.execute(
+        "SELECT text, COUNT(*) AS n FROM verbatims WHERE question_id = ? AND nonanswer = 1 "
+        "GROUP BY text ORDER BY n DESC, text", (question_id,))]
+
+
 def verbatims_by_respondent(study: Study, question_id: int) -> dict[int, tuple[str, str]]:
     """Respondent row id -> (stored text, survey respondent id) for one question."""
     return {int(rid): (text, key) for rid, text, key in study._db.execute(
