@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import contextlib
 import errno
+import glob
 import os
 import shutil
 import socket
@@ -110,6 +111,15 @@ def temporary_name(target: Path) -> str:
     return f"{TEMP_PREFIX}{os.getpid()}-{_host_tag()}-{target.name[:80]}"
 
 
+def remove_own_temporaries(target: Path) -> None:
+    """Remove every temporary file this process made beside `target` (with its -wal/-shm), found by name: also
+    one whose creation a Ctrl+C cut short before its name reached the caller."""
+    folder = target.parent if str(target.parent) else Path(".")
+    for leftover in folder.glob(glob.escape(temporary_name(target)) + ".*"):
+        with contextlib.suppress(FileNotFoundError):
+            os.remove(leftover)
+
+
 def make_temporary(target: Path, suffix: str | None = None) -> Path:
     """Create an empty temporary file (mode 0600) beside `target`, after removing stale leftovers there."""
     folder = target.parent if str(target.parent) else Path(".")
@@ -130,19 +140,17 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
     Use for writers that want a file name (pyreadstat, openpyxl, matplotlib).
     """
     target = check_target(path)
-    tmp_path = make_temporary(target, suffix)
-    try:
+    try:  # the temporary file is removed by name: also when Ctrl+C cuts its creation short
+        tmp_path = make_temporary(target, suffix)
         os.chmod(tmp_path, normal_file_mode())  # mkstemp makes 0600; a finished file gets normal permissions
         yield tmp_path
         check_target(target)  # still safe to replace (nothing became a study or a device meanwhile)
         os.replace(tmp_path, target)
     except OSError as error:
-        with contextlib.suppress(OSError):
-            tmp_path.unlink()
+        remove_own_temporaries(target)
         raise WriteFailed(describe_os_error(error, path)) from None
     except BaseException:
-        with contextlib.suppress(OSError):
-            tmp_path.unlink()
+        remove_own_temporaries(target)
         raise
     record_written(target)
 

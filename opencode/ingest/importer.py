@@ -6,7 +6,6 @@ transaction. Either way a bad file leaves the study exactly as it was.
 
 from __future__ import annotations
 
-import contextlib
 import difflib
 import json
 import os
@@ -19,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from opencode.errors import OpenCodeError, WriteFailed
-from opencode.files.safe_write import describe_os_error, make_temporary, normal_file_mode
+from opencode.files.safe_write import describe_os_error, make_temporary, normal_file_mode, remove_own_temporaries
 from opencode.ingest.columns import ColumnPlan, clean_text, combine_dichotomies, convert, infer_kind
 from opencode.ingest.labels_file import apply_labels_file
 from opencode.ingest.nonanswers import flag_nonanswers
@@ -195,8 +194,9 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
         raise OpenCodeError(f"{target}: a study file name must end in .study")
     if not target.parent.exists():
         raise OpenCodeError(f"{target}: the folder {target.parent} does not exist")
-    temp = make_temporary(target, ".study")  # a killed run's leftover is removed by the next run here
+    temp = None
     try:
+        temp = make_temporary(target, ".study")  # a killed run's leftover is removed by the next run here
         os.chmod(temp, normal_file_mode())
         study = Study.create(temp, overwrite=True)
         try:
@@ -206,13 +206,11 @@ def _create_then_rename(target: Path, fill: Callable[[Study], None]) -> None:
             study.close()
         os.replace(temp, target)
     except WriteFailed as error:  # name the study the user asked for, not the temporary file
-        raise WriteFailed(str(error).replace(str(temp), str(target))) from None
+        raise WriteFailed(str(error).replace(str(temp), str(target)) if temp else str(error)) from None
     except OSError as error:
         raise WriteFailed(describe_os_error(error, target)) from None
-    finally:
-        for extra in ("", "-wal", "-shm"):
-            with contextlib.suppress(FileNotFoundError):
-                os.remove(str(temp) + extra)
+    finally:  # by name, so that a Ctrl+C between the file's creation and `temp` being set leaves nothing either
+        remove_own_temporaries(target)
 
 
 def _write(study: Study, keys: list[str], plans: Callable[[], list[ColumnPlan]], report: ImportReport,
