@@ -262,34 +262,31 @@ def test_ctrl_c_during_new_leaves_no_study_and_exits_non_zero(tmp_path):
     assert list(target.parent.iterdir()) == []
 
 
-def test_ctrl_c_between_the_temporary_files_creation_and_its_use_leaves_nothing(tmp_path, monkeypatch):
-    """The subprocess test above lands its Ctrl+C at a random moment; this one lands it in the narrowest window:
-    the temporary study exists on disk but its name has not reached the importer yet (seen once in CI)."""
-    source = tmp_path / "s.csv"
-    source.write_text("rid,why\n1,late opening\n2,none\n", encoding="utf-8")
+@pytest.fixture
+def interrupted_after_mkstemp(monkeypatch):
+    """Ctrl+C lands right after a temporary file is created, before its name reaches the caller."""
     real = tempfile.mkstemp
 
     def created_then_interrupted(*args, **kwargs):
-        fd, name = real(*args, **kwargs)
+        fd, _ = real(*args, **kwargs)
         os.close(fd)
         raise KeyboardInterrupt
 
     monkeypatch.setattr(safe_write.tempfile, "mkstemp", created_then_interrupted)
+
+
+def test_ctrl_c_between_the_temporary_files_creation_and_its_use_leaves_nothing(tmp_path, interrupted_after_mkstemp):
+    """The subprocess test above lands its Ctrl+C at a random moment; this one lands it in the narrowest window:
+    the temporary study exists on disk but its name has not reached the importer yet (seen once in CI)."""
+    source = tmp_path / "s.csv"
+    source.write_text("rid,why\n1,late opening\n2,none\n", encoding="utf-8")
     out = tmp_path / "out"
     out.mkdir()
     assert main(["new", str(out / "s.study"), "--from", str(source), "--id", "rid", "--question", "why"]) == 130
     assert list(out.iterdir()) == []
 
 
-def test_ctrl_c_while_an_export_creates_its_temporary_file_leaves_nothing(tmp_path, monkeypatch):
-    real = tempfile.mkstemp
-
-    def created_then_interrupted(*args, **kwargs):
-        fd, name = real(*args, **kwargs)
-        os.close(fd)
-        raise KeyboardInterrupt
-
-    monkeypatch.setattr(safe_write.tempfile, "mkstemp", created_then_interrupted)
+def test_ctrl_c_while_an_export_creates_its_temporary_file_leaves_nothing(tmp_path, interrupted_after_mkstemp):
     out = tmp_path / "out"
     out.mkdir()
     with pytest.raises(KeyboardInterrupt):
