@@ -165,16 +165,15 @@ def _table_csv(table) -> str:
     import csv
     import io
 
-    from opencode.files.cell_guard import guard_cell
+    from opencode.files.cell_guard import guard_row
 
     columns, rows = table
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow([guard_cell(c) for c in columns])
+    writer.writerow(guard_row(columns))
     for row in rows:
-        values = [_plain_value(v) for v in row]
-        writer.writerow(["" if v is None else guard_cell(v) if isinstance(v, str) else
-                         "; ".join(map(str, v)) if isinstance(v, list) else v for v in values])
+        values = (_plain_value(v) for v in row)
+        writer.writerow(guard_row("; ".join(map(str, v)) if isinstance(v, list) else v for v in values))
     return out.getvalue()
 
 
